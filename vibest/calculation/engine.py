@@ -1,0 +1,186 @@
+"""The only place that talks to a tight-binding code.
+
+An :class:`Engine` answers one question: energy (Eh), gradient (Eh/Bohr) and dipole (e*Bohr)
+at a geometry (Bohr). The tblite backend is the default; xtb-python is optional behind the
+same interface. Engines keep the last converged wavefunction and use it as the SCF guess of
+the next evaluation (restart), which is what makes finite differences cheap.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+from ..errors import CalculationError, InputError
+
+BACKENDS = ("tblite", "xtb")
+
+
+@dataclass(frozen=True)
+class EngineSettings:
+    """What defines the level of theory; everything that changes the numbers.
+
+    Attributes:
+        method: tight-binding Hamiltonian (``"GFN2-xTB"``).
+        backend: ``"tblite"`` (default) or ``"xtb"`` (xtb-python, optional extra).
+        accuracy: tblite/xtb numerical accuracy multiplier (smaller is tighter; 1.0 is the codes' default).
+        electronic_temperature_K: Fermi smearing temperature in kelvin.
+        max_scf_iterations: SCF cycle limit.
+        solvent: ALPB solvent name, or None for gas phase.
+    """
+
+    method: str = "GFN2-xTB"
+    backend: str = "tblite"
+    accuracy: float = 0.01
+    electronic_temperature_K: float = 300.0
+    max_scf_iterations: int = 250
+    solvent: str | None = None
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """One single point: energy in Eh, gradient in Eh/Bohr (N, 3), dipole in e*Bohr (3,)."""
+
+    energy_hartree: float
+    gradient_hartree_bohr: np.ndarray
+    dipole_e_bohr: np.ndarray
+
+
+class Engine:
+    """Interface: evaluate energy, gradient and dipole at positions in Bohr."""
+
+    settings: EngineSettings
+    count: int = 0
+
+    def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:  # pragma: no cover - interface
+        raise NotImplementedError
+
+    def save_guess(self, path: str) -> bool:
+        """Write the current wavefunction to ``path`` for other processes; False if unsupported."""
+        return False
+
+    def load_guess(self, path: str) -> None:
+        """Use the wavefunction stored at ``path`` as the next SCF guess."""
+
+
+class TBLiteEngine(Engine):
+    """GFN2-xTB through tblite's Python API, restarting every SCF from the last wavefunction."""
+
+    def __init__(self, numbers, positions_bohr, charge: int = 0, uhf: int = 0,
+                 settings: EngineSettings = EngineSettings()):
+        from tblite.interface import Calculator
+
+        self.settings = settings
+        self.numbers = np.asarray(numbers, dtype=int)
+        self.count = 0
+        try:
+            self._calc = Calculator(settings.method, self.numbers, np.asarray(positions_bohr, float),
+                                    charge=float(charge), uhf=int(uhf))
+        except Exception as exc:  # tblite raises its own error types
+            raise CalculationError(f"tblite refused the structure: {exc}") from None
+        self._calc.set("verbosity", 0)
+        self._calc.set("accuracy", float(settings.accuracy))
+        self._calc.set("temperature", float(settings.electronic_temperature_K) * _KELVIN_TO_HARTREE)
+        self._calc.set("max-iter", int(settings.max_scf_iterations))
+        if settings.solvent:
+            try:
+                self._calc.add("alpb-solvation", settings.solvent)
+            except Exception as exc:
+                raise InputError(f"solvent {settings.solvent!r} is not known to tblite's ALPB model: {exc}") from None
+        self._result = None
+
+    def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:
+        self._calc.update(np.asarray(positions_bohr, dtype=float))
+        try:
+            self._result = self._calc.singlepoint(self._result)
+        except Exception as exc:
+            self._result = None
+            raise CalculationError(f"GFN2-xTB single point failed: {exc}") from None
+        self.count += 1
+        res = self._result
+        return Evaluation(float(res.get("energy")), np.array(res.get("gradient")), np.array(res.get("dipole")))
+
+    def save_guess(self, path: str) -> bool:
+        if self._result is None:
+            return False
+        self._result.save(path)
+        return True
+
+    def load_guess(self, path: str) -> None:
+        from tblite.interface import Result
+
+        res = Result()
+        res.load(path)
+        self._result = res
+
+
+class XTBEngine(Engine):
+    """GFN2-xTB through the optional xtb-python package (same interface)."""
+
+    def __init__(self, numbers, positions_bohr, charge: int = 0, uhf: int = 0,
+                 settings: EngineSettings = EngineSettings()):
+        try:
+            from xtb.interface import Calculator, Param
+            from xtb.libxtb import VERBOSITY_MUTED
+        except ImportError:
+            raise InputError("backend 'xtb' needs the optional xtb-python package: pip install 'vibest[xtb]'") from None
+        self.settings = settings
+        self.count = 0
+        param = {"GFN2-xTB": Param.GFN2xTB, "GFN1-xTB": Param.GFN1xTB}[settings.method]
+        self._calc = Calculator(param, np.asarray(numbers, int), np.asarray(positions_bohr, float),
+                                charge=float(charge), uhf=int(uhf))
+        self._calc.set_verbosity(VERBOSITY_MUTED)
+        self._calc.set_accuracy(float(settings.accuracy))
+        self._calc.set_electronic_temperature(float(settings.electronic_temperature_K))
+        self._calc.set_max_iterations(int(settings.max_scf_iterations))
+        if settings.solvent:
+            from xtb.utils import get_solvent
+
+            solv = get_solvent(settings.solvent)
+            if solv is None:
+                raise InputError(f"solvent {settings.solvent!r} is not known to xtb")
+            self._calc.set_solvent(solv)
+        self._result = None
+
+    def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:
+        self._calc.update(np.asarray(positions_bohr, float))
+        try:
+            self._result = self._calc.singlepoint(self._result)
+        except Exception as exc:
+            self._result = None
+            raise CalculationError(f"GFN2-xTB single point failed (xtb): {exc}") from None
+        self.count += 1
+        res = self._result
+        return Evaluation(float(res.get_energy()), np.array(res.get_gradient()), np.array(res.get_dipole()))
+
+
+def _kelvin_to_hartree() -> float:
+    from scipy.constants import physical_constants
+
+    return physical_constants["kelvin-hartree relationship"][0]
+
+
+_KELVIN_TO_HARTREE = _kelvin_to_hartree()
+
+
+def make_engine(numbers, positions_bohr, charge: int = 0, uhf: int = 0,
+                settings: EngineSettings = EngineSettings()) -> Engine:
+    """Create the engine named by ``settings.backend``."""
+    if settings.backend == "tblite":
+        return TBLiteEngine(numbers, positions_bohr, charge, uhf, settings)
+    if settings.backend == "xtb":
+        return XTBEngine(numbers, positions_bohr, charge, uhf, settings)
+    raise InputError(f"unknown backend {settings.backend!r}; choose one of {', '.join(BACKENDS)}")
+
+
+def scratch_file(suffix: str) -> str:
+    """A fresh temporary file name (the caller removes it)."""
+    fd, path = tempfile.mkstemp(suffix=suffix, prefix="vibest-")
+    os.close(fd)
+    return path

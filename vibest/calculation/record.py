@@ -1,0 +1,100 @@
+"""The product of the expensive stage: a plain, storable record of one Hessian calculation."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError
+
+RECORD_FORMAT = "vibest-hessian-record"
+RECORD_VERSION = 1
+
+
+@dataclass(frozen=True)
+class HessianRecord:
+    """Everything the analysis stage needs; nothing it has to recompute.
+
+    Attributes:
+        smiles: canonical SMILES of the molecule.
+        numbers: atomic numbers (N,).
+        positions_angstrom: optimised geometry (N, 3), Angstrom.
+        bonds: (i, j, bond order) from the structure stage.
+        charge, uhf: total charge and unpaired electrons used.
+        energy_hartree: electronic energy at the geometry (Eh).
+        hessian_hartree_bohr2: Cartesian Hessian (3N, 3N), Eh/Bohr^2.
+        dipole_e_bohr: dipole at the geometry (3,), e*Bohr.
+        dipole_derivatives_e: d mu / d x (3N, 3), e (e*Bohr per Bohr).
+        settings: level of theory and numerical settings (JSON-able).
+        timings: counts and seconds per stage (JSON-able).
+    """
+
+    smiles: str
+    numbers: np.ndarray
+    positions_angstrom: np.ndarray
+    bonds: tuple[tuple[int, int, float], ...]
+    charge: int
+    uhf: int
+    energy_hartree: float
+    hessian_hartree_bohr2: np.ndarray
+    dipole_e_bohr: np.ndarray
+    dipole_derivatives_e: np.ndarray
+    settings: dict = field(default_factory=dict)
+    timings: dict = field(default_factory=dict)
+
+    @property
+    def natoms(self) -> int:
+        return len(self.numbers)
+
+    def to_dict(self) -> dict:
+        return {
+            "format": RECORD_FORMAT,
+            "version": RECORD_VERSION,
+            "smiles": self.smiles,
+            "numbers": self.numbers.tolist(),
+            "positions_angstrom": self.positions_angstrom.tolist(),
+            "bonds": [list(b) for b in self.bonds],
+            "charge": self.charge,
+            "uhf": self.uhf,
+            "energy_hartree": self.energy_hartree,
+            "hessian_hartree_bohr2": self.hessian_hartree_bohr2.tolist(),
+            "dipole_e_bohr": self.dipole_e_bohr.tolist(),
+            "dipole_derivatives_e": self.dipole_derivatives_e.tolist(),
+            "settings": self.settings,
+            "timings": self.timings,
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "HessianRecord":
+        if d.get("format") != RECORD_FORMAT:
+            raise InputError("not a vibest Hessian record (missing 'format' field)")
+        if int(d.get("version", 0)) > RECORD_VERSION:
+            raise InputError(f"Hessian record version {d.get('version')} is newer than this vibest understands")
+        return cls(
+            smiles=d["smiles"],
+            numbers=np.array(d["numbers"], dtype=int),
+            positions_angstrom=np.array(d["positions_angstrom"], dtype=float),
+            bonds=tuple((int(i), int(j), float(o)) for i, j, o in d["bonds"]),
+            charge=int(d["charge"]),
+            uhf=int(d["uhf"]),
+            energy_hartree=float(d["energy_hartree"]),
+            hessian_hartree_bohr2=np.array(d["hessian_hartree_bohr2"], dtype=float),
+            dipole_e_bohr=np.array(d["dipole_e_bohr"], dtype=float),
+            dipole_derivatives_e=np.array(d["dipole_derivatives_e"], dtype=float),
+            settings=dict(d.get("settings", {})),
+            timings=dict(d.get("timings", {})),
+        )
+
+    def save(self, path: str | Path) -> None:
+        """Write as JSON (exact to float repr)."""
+        Path(path).write_text(json.dumps(self.to_dict()))
+
+    @classmethod
+    def load(cls, path: str | Path) -> "HessianRecord":
+        try:
+            return cls.from_dict(json.loads(Path(path).read_text()))
+        except (OSError, ValueError, KeyError, TypeError) as exc:
+            raise InputError(f"cannot read Hessian record {path}: {exc}") from None

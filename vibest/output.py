@@ -1,0 +1,114 @@
+"""Output stage: tables, CSV, JSON and plots of a prediction (no science here)."""
+
+from __future__ import annotations
+
+import csv
+import json
+from pathlib import Path
+
+import numpy as np
+
+from .predict import CAUTION, Prediction
+
+#: Below this wavenumber chemists speak of the fingerprint region (common practice, no source).
+FINGERPRINT_BELOW_CM1 = 1500.0
+PLOT_FORMATS = (".png", ".svg", ".pdf")
+
+
+def region_of(wavenumber_cm1: float) -> str:
+    """'fingerprint' below 1500 cm^-1, else 'stretch' (the group-frequency region)."""
+    return "fingerprint" if wavenumber_cm1 < FINGERPRINT_BELOW_CM1 else "stretch"
+
+
+def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bool = False) -> str:
+    """A plain-text table of the bands, highest wavenumber first (as spectra are read)."""
+    lines = [f"# {pred.smiles}   charge {pred.record.charge}   unpaired electrons {pred.record.uhf}",
+             f"# scale factor {pred.scale.factor:.4f} ({pred.scale.name}); "
+             f"optimisation {'converged' if pred.converged else 'NOT converged'}"]
+    for note in pred.notes:
+        lines.append(f"# note: {note}")
+    header = f"{'mode':>4}  {'cm-1':>7}  {'harm.':>7}  {'km/mol':>8}  {'region':<11}  character"
+    lines += [header, "-" * len(header)]
+    for b in sorted(pred.bands, key=lambda b: -b.wavenumber_cm1):
+        if b.intensity_km_mol < min_intensity_km_mol:
+            continue
+        wn = f"{b.wavenumber_cm1:7.1f}" if b.wavenumber_cm1 >= 0 else f"{abs(b.wavenumber_cm1):6.1f}i"
+        lines.append(f"{b.index:>4}  {wn}  {b.harmonic_cm1:7.1f}  {b.intensity_km_mol:8.2f}  "
+                     f"{region_of(b.wavenumber_cm1):<11}  {b.character}")
+    if verbose:
+        t = pred.record.timings
+        lines.append(f"# optimisation: {t.get('optimization_gradients')} gradients, "
+                     f"{t.get('optimization_seconds', 0):.2f} s; Hessian: {t.get('hessian_gradients')} gradients, "
+                     f"{t.get('hessian_seconds', 0):.2f} s on {t.get('hessian_workers')} worker(s); "
+                     f"total {t.get('total_seconds', 0):.2f} s")
+    lines.append(f"# caution: {CAUTION}")
+    return "\n".join(lines)
+
+
+def write_spectrum_csv(pred: Prediction, path: str | Path) -> None:
+    """Columns: wavenumber_cm1, absorption_km_mol_cm1, absorbance_normalised, transmittance_percent."""
+    s = pred.spectrum
+    with open(path, "w", newline="") as fh:
+        fh.write(f"# vibest predicted IR spectrum of {pred.smiles}; {s.line_shape} FWHM {s.fwhm_cm1} cm-1; "
+                 f"scale factor {pred.scale.factor:.4f}\n# {CAUTION}\n")
+        w = csv.writer(fh)
+        w.writerow(["wavenumber_cm1", "absorption_km_mol_cm1", "absorbance_normalised", "transmittance_percent"])
+        for row in zip(s.wavenumbers_cm1, s.absorption_km_mol_cm1, s.absorbance_normalised, s.transmittance_percent):
+            w.writerow([f"{row[0]:.2f}", f"{row[1]:.6g}", f"{row[2]:.6f}", f"{row[3]:.4f}"])
+
+
+def write_bands_csv(pred: Prediction, path: str | Path) -> None:
+    with open(path, "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["mode", "wavenumber_cm1", "harmonic_cm1", "intensity_km_mol", "reduced_mass_amu",
+                    "force_constant_mdyn_angstrom", "region", "character"])
+        for b in pred.bands:
+            w.writerow([b.index, f"{b.wavenumber_cm1:.2f}", f"{b.harmonic_cm1:.2f}", f"{b.intensity_km_mol:.4f}",
+                        f"{b.reduced_mass_amu:.4f}", f"{b.force_constant_mdyn_angstrom:.4f}",
+                        region_of(b.wavenumber_cm1), b.character])
+
+
+def write_json(pred: Prediction, path: str | Path) -> None:
+    Path(path).write_text(json.dumps(pred.to_dict(), indent=1))
+
+
+def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = False,
+                    label_count: int = 8) -> None:
+    """Spectrum plot with the wavenumber axis running 4000 -> 400 cm^-1; format from the suffix."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    path = Path(path)
+    s = pred.spectrum
+    fig, ax = plt.subplots(figsize=(10, 4.2), dpi=120)
+    y = s.transmittance_percent if transmittance else s.absorbance_normalised
+    ax.plot(s.wavenumbers_cm1, y, color="#1f4e79", lw=1.2)
+    peak = max(pred.intensities_km_mol.max(), 1e-12)
+    lo, hi = s.wavenumbers_cm1[0], s.wavenumbers_cm1[-1]
+    for b in pred.bands:
+        if lo <= b.wavenumber_cm1 <= hi and not transmittance:
+            ax.vlines(b.wavenumber_cm1, 0, b.intensity_km_mol / peak * 0.25, color="#c55a11", lw=0.8, alpha=0.7)
+    chosen: list[float] = []
+    for b in pred.strongest(len(pred.bands)):
+        if len(chosen) >= label_count or b.intensity_km_mol < 0.02 * peak:
+            break
+        if lo <= b.wavenumber_cm1 <= hi and all(abs(b.wavenumber_cm1 - c) > 0.025 * (hi - lo) for c in chosen):
+            chosen.append(b.wavenumber_cm1)
+            yk = np.interp(b.wavenumber_cm1, s.wavenumbers_cm1, y)
+            text = f"{b.wavenumber_cm1:.0f}\n{b.character.split(',')[0].rsplit(' ', 1)[0]}"
+            ax.annotate(text, (b.wavenumber_cm1, yk), xytext=(0, -28 if transmittance else 6),
+                        textcoords="offset points", ha="center", fontsize=6.5, color="#333333")
+    ax.set_xlim(hi, lo)
+    ax.set_xlabel("wavenumber / cm$^{-1}$")
+    ax.set_ylabel("transmittance / %" if transmittance else "absorbance (normalised)")
+    if not transmittance:
+        ax.set_ylim(0, 1.18)
+    ax.set_title(f"predicted IR spectrum: {pred.smiles}  (GFN2-xTB, scale {pred.scale.factor:.3f}, "
+                 f"{s.line_shape} FWHM {s.fwhm_cm1:g} cm$^{{-1}}$)", fontsize=9)
+    fig.text(0.01, 0.01, "Estimate only: confirm with reference standards and validated methods.",
+             fontsize=6.5, color="#7f7f7f")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    fig.savefig(path)
+    plt.close(fig)

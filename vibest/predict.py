@@ -1,0 +1,340 @@
+"""The prediction pipeline: SMILES -> Hessian record (expensive) -> analysed prediction (cheap).
+
+:func:`compute_record` is the only function here that calls the tight-binding engine.
+:func:`analyse` turns a stored record into wavenumbers, intensities, band characters and a
+spectrum without any new gradient, so re-analysis (other scaling, width, masses) is instant.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import platform
+import time
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+from ase.units import Bohr
+
+from . import __version__
+from .analysis.composition import ModeComposition, mode_composition
+from .analysis.harmonic import HarmonicModes, harmonic_analysis
+from .analysis.scaling import ScaleModel, default_scale_model, user_scale_model
+from .calculation.engine import EngineSettings, make_engine
+from .calculation.hessian import default_workers, finite_difference_hessian
+from .calculation.optimizer import OptimizerSettings, optimize
+from .calculation.record import HessianRecord
+from .errors import InputError
+from .spectrum import DEFAULT_FWHM_CM1, DEFAULT_RANGE_CM1, DEFAULT_STEP_CM1, LINE_SHAPES, Spectrum, broaden, grid
+from .structure import Molecule, build_molecule
+
+#: Imaginary modes weaker than this (cm^-1, absolute) are treated as numerical noise.
+IMAGINARY_THRESHOLD_CM1 = 20.0
+#: With the default worker count, a Hessian expected to take less than this on one core (s)
+#: runs in-process: starting worker processes would cost more than it saves.
+SERIAL_HESSIAN_SECONDS = 2.0
+CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical model; confirm any "
+           "identification with reference standards and a validated method.")
+
+#: progress(stage, done, total, message)
+Progress = Callable[[str, int, int, str], None]
+
+
+@dataclass(frozen=True)
+class CalculationOptions:
+    """Settings of the expensive stage (all change the numbers, all are recorded).
+
+    Attributes:
+        seed: random seed of the 3D embedding.
+        largest_fragment: keep only the largest fragment of a multi-fragment SMILES.
+        engine: level of theory (:class:`EngineSettings`).
+        optimizer: convergence settings (:class:`OptimizerSettings`).
+        hessian_step_bohr: finite-difference step, Bohr.
+        workers: processes for the Hessian (None = all cores).
+        max_imaginary_retries: how often to displace along an imaginary mode and re-optimise.
+    """
+
+    seed: int = 0xB1B
+    largest_fragment: bool = False
+    engine: EngineSettings = field(default_factory=EngineSettings)
+    optimizer: OptimizerSettings = field(default_factory=OptimizerSettings)
+    hessian_step_bohr: float = 0.005
+    workers: int | None = None
+    max_imaginary_retries: int = 2
+
+    def to_dict(self) -> dict:
+        d = dataclasses.asdict(self)
+        d.pop("workers")  # does not change the numbers
+        return d
+
+
+@dataclass(frozen=True)
+class SpectrumOptions:
+    """Settings of the cheap stage: scaling and broadening."""
+
+    scale_factor: float | None = None
+    fwhm_cm1: float = DEFAULT_FWHM_CM1
+    line_shape: str = "lorentzian"
+    range_cm1: tuple[float, float] = DEFAULT_RANGE_CM1
+    step_cm1: float = DEFAULT_STEP_CM1
+
+    def validate(self) -> None:
+        if self.line_shape not in LINE_SHAPES:
+            raise InputError(f"line shape {self.line_shape!r} unknown; choose one of {', '.join(LINE_SHAPES)}")
+        if not (0 < self.fwhm_cm1 <= 500):
+            raise InputError(f"FWHM {self.fwhm_cm1} cm^-1 must be between 0 and 500")
+        lo, hi = self.range_cm1
+        if not (0 <= lo < hi <= 10000):
+            raise InputError(f"range {lo}-{hi} cm^-1 must satisfy 0 <= low < high <= 10000")
+        if not (0 < self.step_cm1 <= (hi - lo) / 2):
+            raise InputError(f"grid step {self.step_cm1} cm^-1 does not fit the range")
+
+    def scale_model(self) -> ScaleModel:
+        return default_scale_model() if self.scale_factor is None else user_scale_model(self.scale_factor)
+
+
+@dataclass(frozen=True)
+class Band:
+    """One vibrational band: scaled and harmonic wavenumber (cm^-1), intensity (km/mol), character."""
+
+    index: int
+    wavenumber_cm1: float
+    harmonic_cm1: float
+    intensity_km_mol: float
+    reduced_mass_amu: float
+    force_constant_mdyn_angstrom: float
+    character: str
+
+    def to_dict(self) -> dict:
+        return dataclasses.asdict(self)
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """A predicted IR spectrum and everything it came from.
+
+    Attributes:
+        record: the Hessian record (geometry, Hessian, dipole derivatives, settings, timings).
+        modes: harmonic analysis of the record.
+        composition: internal-coordinate composition of the modes.
+        scale: the scale model applied.
+        bands: one :class:`Band` per mode (scaled wavenumbers).
+        spectrum: the broadened spectrum of the scaled bands.
+        converged: whether the geometry optimisation converged.
+        imaginary_cm1: imaginary wavenumbers that remain (negative numbers, cm^-1).
+        notes: remarks for the user (fragment choice, retries, warnings).
+    """
+
+    record: HessianRecord
+    modes: HarmonicModes
+    composition: ModeComposition
+    scale: ScaleModel
+    bands: tuple[Band, ...]
+    spectrum: Spectrum
+    converged: bool
+    imaginary_cm1: tuple[float, ...]
+    notes: tuple[str, ...]
+
+    @property
+    def smiles(self) -> str:
+        return self.record.smiles
+
+    @property
+    def wavenumbers_cm1(self) -> np.ndarray:
+        """Scaled wavenumbers, cm^-1."""
+        return np.array([b.wavenumber_cm1 for b in self.bands])
+
+    @property
+    def intensities_km_mol(self) -> np.ndarray:
+        return np.array([b.intensity_km_mol for b in self.bands])
+
+    def strongest(self, count: int = 5) -> list[Band]:
+        return sorted(self.bands, key=lambda b: -b.intensity_km_mol)[:count]
+
+    def to_dict(self, include_spectrum: bool = True) -> dict:
+        from ase.data import chemical_symbols
+
+        rec = self.record
+        d = {
+            "vibest_version": __version__,
+            "caution": CAUTION,
+            "smiles": rec.smiles,
+            "charge": rec.charge,
+            "uhf": rec.uhf,
+            "converged": self.converged,
+            "energy_hartree": rec.energy_hartree,
+            "imaginary_cm1": list(self.imaginary_cm1),
+            "notes": list(self.notes),
+            "geometry": {
+                "symbols": [chemical_symbols[int(z)] for z in rec.numbers],
+                "positions_angstrom": rec.positions_angstrom.tolist(),
+            },
+            "scale": self.scale.to_dict(),
+            "bands": [b.to_dict() for b in self.bands],
+            "modes": {
+                "displacements": self.modes.displacements.round(6).tolist(),
+                "composition": [[c.to_dict() for c in row] for row in self.composition.contributions],
+            },
+            "settings": rec.settings,
+            "timings": rec.timings,
+            "versions": _versions(),
+        }
+        if include_spectrum:
+            d["spectrum"] = self.spectrum.to_dict()
+        return d
+
+
+def _versions() -> dict:
+    import ase
+    import rdkit
+
+    out = {"vibest": __version__, "python": platform.python_version(), "rdkit": rdkit.__version__,
+           "ase": ase.__version__, "numpy": np.__version__}
+    try:
+        from importlib.metadata import version
+
+        out["tblite"] = version("tblite")
+    except Exception:  # pragma: no cover - metadata missing
+        out["tblite"] = "unknown"
+    return out
+
+
+def _notify(progress: Progress | None, stage: str, done: int, total: int, message: str = "") -> None:
+    if progress is not None:
+        progress(stage, done, total, message)
+
+
+def compute_record(molecule: Molecule, options: CalculationOptions = CalculationOptions(),
+                   progress: Progress | None = None) -> tuple[HessianRecord, bool, list[str]]:
+    """Optimise the geometry, compute the Hessian and dipole derivatives (the expensive stage).
+
+    Returns the record, whether the optimisation converged, and notes. Imaginary modes above
+    :data:`IMAGINARY_THRESHOLD_CM1` trigger a displacement along the mode and a new
+    optimisation, at most ``options.max_imaginary_retries`` times.
+    """
+    notes: list[str] = []
+    numbers = molecule.numbers
+    x = molecule.positions_angstrom / Bohr
+    engine = make_engine(numbers, x, molecule.charge, molecule.uhf, options.engine)
+    workers = options.workers or default_workers()
+    timings = {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
+               "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
+    attempt = 0
+    while True:
+        def opt_progress(step, energy, force):
+            _notify(progress, "optimisation", step, options.optimizer.max_steps,
+                    f"E = {energy:.8f} Eh, max force {force:.1e} Eh/Bohr")
+
+        opt = optimize(engine, numbers, x, options.optimizer, progress=opt_progress)
+        timings["optimization_gradients"] += opt.gradient_calls
+        timings["optimization_seconds"] += opt.seconds
+        timings["optimization_gradient_seconds"] += opt.gradient_seconds
+        if not opt.converged:
+            notes.append(f"geometry optimisation did not converge in {opt.gradient_calls} gradients "
+                         f"(max force {opt.max_force_hartree_bohr:.1e} Eh/Bohr); frequencies may be unreliable")
+        x = opt.positions_bohr
+        engine.evaluate(x)  # wavefunction at the final geometry is the guess for all displacements
+        timings["optimization_gradients"] += 1
+        per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
+        use = workers if options.workers or 6 * len(numbers) * per_gradient > SERIAL_HESSIAN_SECONDS else 1
+        hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
+                                        step_bohr=options.hessian_step_bohr, workers=use,
+                                        progress=lambda d, t: _notify(progress, "hessian", d, t))
+        timings["hessian_gradients"] += hes.gradient_calls
+        timings["hessian_seconds"] += hes.seconds
+        timings["hessian_workers"] = hes.workers
+        modes = harmonic_analysis(numbers, x * Bohr, hes.hessian_hartree_bohr2)
+        bad = [k for k in modes.imaginary if modes.wavenumbers_cm1[k] < -IMAGINARY_THRESHOLD_CM1]
+        if not bad or attempt >= options.max_imaginary_retries:
+            break
+        attempt += 1
+        timings["retries"] = attempt
+        notes.append(f"imaginary mode(s) {', '.join(f'{modes.wavenumbers_cm1[k]:.0f}' for k in bad)} cm^-1 "
+                     f"found: displaced along them and re-optimised (attempt {attempt})")
+        for k in bad:
+            d = modes.displacements[k]
+            x = x + (0.2 / Bohr) * d / np.abs(d).max() * 0.5
+    ev = engine.evaluate(x)
+    record = HessianRecord(
+        smiles=molecule.smiles, numbers=numbers, positions_angstrom=x * Bohr, bonds=molecule.bonds,
+        charge=molecule.charge, uhf=molecule.uhf, energy_hartree=ev.energy_hartree,
+        hessian_hartree_bohr2=hes.hessian_hartree_bohr2, dipole_e_bohr=ev.dipole_e_bohr,
+        dipole_derivatives_e=hes.dipole_derivatives_e,
+        settings=options.to_dict() | {"converged": bool(opt.converged)}, timings=timings,
+    )
+    return record, bool(opt.converged), notes
+
+
+def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
+            masses_amu=None, notes: tuple[str, ...] = ()) -> Prediction:
+    """Turn a Hessian record into bands and a spectrum (no gradients are computed)."""
+    options.validate()
+    scale = options.scale_model()
+    modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
+                              record.dipole_derivatives_e, masses_amu=masses_amu, charge=record.charge)
+    comp = mode_composition(record.numbers, record.positions_angstrom, record.bonds,
+                            record.hessian_hartree_bohr2, modes.displacements)
+    scaled = scale.apply(modes.wavenumbers_cm1)
+    bands = tuple(
+        Band(index=k + 1, wavenumber_cm1=float(scaled[k]), harmonic_cm1=float(modes.wavenumbers_cm1[k]),
+             intensity_km_mol=float(modes.intensities_km_mol[k]),
+             reduced_mass_amu=float(modes.reduced_masses_amu[k]),
+             force_constant_mdyn_angstrom=float(modes.force_constants_mdyn_angstrom[k]),
+             character=comp.rough_character(k))
+        for k in range(modes.count)
+    )
+    spec = broaden(scaled, modes.intensities_km_mol, options.fwhm_cm1, options.line_shape,
+                   grid(*options.range_cm1, options.step_cm1))
+    imaginary = tuple(float(w) for w in modes.wavenumbers_cm1 if w < -IMAGINARY_THRESHOLD_CM1)
+    all_notes = list(notes)
+    if imaginary:
+        all_notes.append(f"{len(imaginary)} imaginary mode(s) remain: the geometry is not a true minimum")
+    converged = bool(record.settings.get("converged", True))
+    return Prediction(record, modes, comp, scale, bands, spec, converged, imaginary, tuple(all_notes))
+
+
+def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, scale_factor: float | None = None,
+            fwhm_cm1: float = DEFAULT_FWHM_CM1, line_shape: str = "lorentzian",
+            range_cm1: tuple[float, float] = DEFAULT_RANGE_CM1, step_cm1: float = DEFAULT_STEP_CM1,
+            workers: int | None = None, backend: str = "tblite", solvent: str | None = None,
+            max_force_hartree_bohr: float = OptimizerSettings.max_force_hartree_bohr,
+            hessian_step_bohr: float = 0.005, progress: Progress | None = None) -> Prediction:
+    """Predict the IR spectrum of one molecule given as SMILES.
+
+    Args:
+        smiles: the structure; charges and radicals in the SMILES set charge and spin.
+        seed: embedding seed (same seed, same result).
+        largest_fragment: for salts/mixtures, keep the largest fragment instead of refusing.
+        scale_factor: override the fitted default scale factor.
+        fwhm_cm1, line_shape, range_cm1, step_cm1: broadening and grid (cm^-1).
+        workers: processes for the Hessian (default all cores).
+        backend: "tblite" (default) or "xtb".
+        solvent: ALPB solvent name or None (gas phase).
+        max_force_hartree_bohr: optimisation convergence, Eh/Bohr.
+        hessian_step_bohr: finite-difference step, Bohr.
+        progress: optional callback progress(stage, done, total, message).
+
+    Raises:
+        InputError: for invalid input (message suitable for the user).
+        CalculationError: when the tight-binding calculation fails.
+    """
+    spec_opts = SpectrumOptions(scale_factor, fwhm_cm1, line_shape, tuple(range_cm1), step_cm1)
+    spec_opts.validate()
+    spec_opts.scale_model()
+    if workers is not None and workers < 1:
+        raise InputError("workers must be at least 1")
+    calc_opts = CalculationOptions(
+        seed=seed, largest_fragment=largest_fragment,
+        engine=EngineSettings(backend=backend, solvent=solvent),
+        optimizer=OptimizerSettings(max_force_hartree_bohr=max_force_hartree_bohr),
+        hessian_step_bohr=hessian_step_bohr, workers=workers,
+    )
+    t0 = time.perf_counter()
+    _notify(progress, "structure", 0, 1, smiles)
+    molecule = build_molecule(smiles, seed=seed, largest_fragment=largest_fragment)
+    record, _, notes = compute_record(molecule, calc_opts, progress)
+    t1 = time.perf_counter()
+    pred = analyse(record, spec_opts, notes=tuple(molecule.notes) + tuple(notes))
+    record.timings["analysis_seconds"] = time.perf_counter() - t1
+    record.timings["total_seconds"] = time.perf_counter() - t0
+    return pred

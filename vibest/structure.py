@@ -1,0 +1,183 @@
+"""Structure stage: SMILES validation, charge and spin, 3D embedding.
+
+Knows RDKit; knows nothing of tight binding. Its product is a :class:`Molecule`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+
+import numpy as np
+from rdkit import Chem, RDLogger
+from rdkit.Chem import AllChem, Descriptors, rdMolDescriptors
+
+from .errors import InputError
+
+#: Elements GFN2-xTB is parametrised for (Z = 1-86).
+MAX_ATOMIC_NUMBER = 86
+
+
+@dataclass(frozen=True)
+class Molecule:
+    """A molecule with explicit hydrogens and one 3D geometry.
+
+    Attributes:
+        smiles: canonical SMILES of the (possibly fragment-reduced) input.
+        numbers: atomic numbers, shape (N,).
+        positions_angstrom: Cartesian coordinates in Angstrom, shape (N, 3).
+        charge: total formal charge (elementary charges).
+        uhf: number of unpaired electrons.
+        bonds: (i, j, bond order) triples from RDKit (aromatic = 1.5).
+        symbols: element symbols.
+        molblock: MDL molblock with H (keeps the atom order; used to rebuild RDKit objects).
+        notes: human-readable remarks made while building the structure.
+    """
+
+    smiles: str
+    numbers: np.ndarray
+    positions_angstrom: np.ndarray
+    charge: int
+    uhf: int
+    bonds: tuple[tuple[int, int, float], ...]
+    symbols: tuple[str, ...]
+    molblock: str = ""
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def natoms(self) -> int:
+        return len(self.numbers)
+
+    @property
+    def formula(self) -> str:
+        return rdMolDescriptors.CalcMolFormula(self.to_rdkit())
+
+    def to_rdkit(self) -> Chem.Mol:
+        """An RDKit molecule (with H) carrying this geometry as conformer 0."""
+        mol = Chem.MolFromMolBlock(self.molblock, removeHs=False, sanitize=True)
+        conf = Chem.Conformer(mol.GetNumAtoms())
+        for i, xyz in enumerate(self.positions_angstrom):
+            conf.SetAtomPosition(i, xyz.tolist())
+        mol.RemoveAllConformers()
+        mol.AddConformer(conf, assignId=True)
+        return mol
+
+    def with_positions(self, positions_angstrom: np.ndarray) -> "Molecule":
+        return dataclasses.replace(self, positions_angstrom=np.asarray(positions_angstrom, float).copy())
+
+
+def parse_smiles(smiles: str, largest_fragment: bool = False) -> tuple[Chem.Mol, list[str]]:
+    """Validate a SMILES string and return the RDKit molecule (no H) and notes.
+
+    Raises :class:`InputError` with a one-line message for empty input, unparsable SMILES,
+    unsupported elements, or several fragments (unless ``largest_fragment`` is set).
+    """
+    notes: list[str] = []
+    if smiles is None or not str(smiles).strip():
+        raise InputError("empty SMILES: give a structure such as 'CC(=O)C' (acetone)")
+    text = str(smiles).strip()
+    RDLogger.DisableLog("rdApp.*")
+    try:
+        mol = Chem.MolFromSmiles(text)
+    finally:
+        RDLogger.EnableLog("rdApp.*")
+    if mol is None:
+        raise InputError(f"invalid SMILES {text!r}: RDKit could not parse it (check brackets, ring closures, valences)")
+    if mol.GetNumAtoms() == 0:
+        raise InputError(f"SMILES {text!r} has no atoms")
+    for atom in mol.GetAtoms():
+        z = atom.GetAtomicNum()
+        if z < 1 or z > MAX_ATOMIC_NUMBER:
+            raise InputError(f"unsupported element {atom.GetSymbol()!r} in {text!r}: GFN2-xTB covers H to Rn (Z 1-86)")
+    frags = Chem.GetMolFrags(mol, asMols=True, sanitizeFrags=True)
+    if len(frags) > 1:
+        if not largest_fragment:
+            names = ", ".join(Chem.MolToSmiles(f) for f in frags)
+            raise InputError(f"SMILES {text!r} has {len(frags)} fragments ({names}); "
+                             "give one molecule, or ask for the largest fragment (--largest-fragment)")
+        frags = sorted(frags, key=lambda f: (f.GetNumHeavyAtoms(), Descriptors.MolWt(f)), reverse=True)
+        mol = frags[0]
+        notes.append(f"kept the largest fragment {Chem.MolToSmiles(mol)} of {len(frags)}")
+    return mol, notes
+
+
+def charge_and_uhf(mol: Chem.Mol) -> tuple[int, int]:
+    """Total formal charge and number of unpaired electrons (radical electrons in the SMILES)."""
+    charge = sum(a.GetFormalCharge() for a in mol.GetAtoms())
+    uhf = sum(a.GetNumRadicalElectrons() for a in mol.GetAtoms())
+    return int(charge), int(uhf)
+
+
+def _bond_list(mol: Chem.Mol) -> tuple[tuple[int, int, float], ...]:
+    return tuple((b.GetBeginAtomIdx(), b.GetEndAtomIdx(), float(b.GetBondTypeAsDouble()))
+                 for b in mol.GetBonds())
+
+
+def embed(mol_noh: Chem.Mol, seed: int = 0xB1B, prerelax: bool = True, num_conformers: int = 1) -> Chem.Mol:
+    """Add hydrogens and embed 3D conformers with ETKDGv3 (seeded, deterministic).
+
+    Each conformer is pre-relaxed with MMFF94 where parameters exist, else UFF. Returns the
+    molecule with H; conformers are ordered by the force-field energy (lowest first).
+    """
+    RDLogger.DisableLog("rdApp.*")
+    try:
+        return _embed(mol_noh, seed, prerelax, num_conformers)
+    finally:
+        RDLogger.EnableLog("rdApp.*")
+
+
+def _embed(mol_noh: Chem.Mol, seed: int, prerelax: bool, num_conformers: int) -> Chem.Mol:
+    mol = Chem.AddHs(mol_noh)
+    params = AllChem.ETKDGv3()
+    params.randomSeed = int(seed)
+    params.numThreads = 1
+    ids = list(AllChem.EmbedMultipleConfs(mol, numConfs=num_conformers, params=params))
+    if not ids:
+        params.useRandomCoords = True
+        ids = list(AllChem.EmbedMultipleConfs(mol, numConfs=num_conformers, params=params))
+    if not ids:
+        raise InputError(f"could not build 3D coordinates for {Chem.MolToSmiles(mol_noh)!r}")
+    energies = [0.0] * len(ids)
+    if prerelax and mol.GetNumAtoms() > 1:
+        if AllChem.MMFFHasAllMoleculeParams(mol):
+            res = AllChem.MMFFOptimizeMoleculeConfs(mol, numThreads=1, maxIters=2000)
+        elif AllChem.UFFHasAllMoleculeParams(mol):
+            res = AllChem.UFFOptimizeMoleculeConfs(mol, numThreads=1, maxIters=2000)
+        else:
+            res = [(0, 0.0)] * len(ids)
+        energies = [e for _, e in res]
+    order = sorted(range(len(ids)), key=lambda k: (round(energies[k], 6), k))
+    out = Chem.Mol(mol)
+    out.RemoveAllConformers()
+    for k in order:
+        out.AddConformer(mol.GetConformer(ids[k]), assignId=True)
+    return out
+
+
+def build_molecule(smiles: str, seed: int = 0xB1B, largest_fragment: bool = False,
+                   prerelax: bool = True) -> Molecule:
+    """SMILES -> validated :class:`Molecule` with one force-field-relaxed 3D geometry."""
+    mol_noh, notes = parse_smiles(smiles, largest_fragment=largest_fragment)
+    charge, uhf = charge_and_uhf(mol_noh)
+    mol = embed(mol_noh, seed=seed, prerelax=prerelax)
+    pos = np.array(mol.GetConformer(0).GetPositions(), dtype=float)
+    if mol.GetNumAtoms() == 1:
+        raise InputError(f"{smiles!r} is a single atom: it has no vibrations")
+    numbers = np.array([a.GetAtomicNum() for a in mol.GetAtoms()], dtype=int)
+    return Molecule(
+        smiles=Chem.MolToSmiles(mol_noh),
+        numbers=numbers,
+        positions_angstrom=pos,
+        charge=charge,
+        uhf=uhf,
+        bonds=_bond_list(mol),
+        symbols=tuple(a.GetSymbol() for a in mol.GetAtoms()),
+        molblock=Chem.MolToMolBlock(mol, confId=mol.GetConformer(0).GetId()),
+        notes=tuple(notes),
+    )
+
+
+def canonical_smiles(smiles: str) -> str:
+    """RDKit canonical SMILES of a valid input (raises InputError otherwise)."""
+    mol, _ = parse_smiles(smiles, largest_fragment=False)
+    return Chem.MolToSmiles(mol)
