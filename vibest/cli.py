@@ -13,6 +13,7 @@ import click
 
 from . import __version__
 from .errors import CalculationError, InputError
+from .analysis.scaling import SCALE_MODELS
 from .spectrum import DEFAULT_FWHM_CM1, LINE_SHAPES
 
 
@@ -84,7 +85,9 @@ def main() -> None:
               help="Write the Hessian record (JSON) for later re-analysis without new gradients.")
 @click.option("--plot", "plot_path", metavar="FILE", help="Write a plot (.png, .svg or .pdf).")
 @click.option("--transmittance", is_flag=True, help="Plot %T instead of absorbance.")
-@click.option("--scale-factor", type=float, default=None, help="Override the fitted frequency scale factor.")
+@click.option("--scale-factor", type=float, default=None, help="A uniform scale factor instead of the fitted default.")
+@click.option("--scale-model", type=click.Choice(SCALE_MODELS), default=None,
+              help="Fitted scaling to use [default: per-coordinate].")
 @click.option("--fwhm", type=float, default=DEFAULT_FWHM_CM1, show_default=True, help="Line width (FWHM), cm^-1.")
 @click.option("--line-shape", type=click.Choice(LINE_SHAPES), default="lorentzian", show_default=True)
 @click.option("--range", "range_cm1", type=(float, float), default=(400.0, 4000.0), show_default=True,
@@ -97,7 +100,7 @@ def main() -> None:
 @click.option("--min-intensity", type=float, default=0.0, help="Hide bands weaker than this (km/mol) in the table.")
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
-def predict_command(smiles, csv_path, bands_csv, json_path, record_path, plot_path, transmittance, scale_factor,
+def predict_command(smiles, csv_path, bands_csv, json_path, record_path, plot_path, transmittance, scale_factor, scale_model,
                     fwhm, line_shape, range_cm1, seed, workers, largest_fragment, backend, solvent, min_intensity,
                     verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
@@ -110,6 +113,7 @@ def predict_command(smiles, csv_path, bands_csv, json_path, record_path, plot_pa
         for p in (csv_path, bands_csv, json_path, record_path):
             _check_output_path(p)
         pred = predict(smiles, seed=seed, largest_fragment=largest_fragment, scale_factor=scale_factor,
+                       scale_model=scale_model,
                        fwhm_cm1=fwhm, line_shape=line_shape, range_cm1=range_cm1, workers=workers,
                        backend=backend, solvent=solvent, progress=progress)
         progress.finish()

@@ -23,7 +23,7 @@ def region_of(wavenumber_cm1: float) -> str:
 def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bool = False) -> str:
     """A plain-text table of the bands, highest wavenumber first (as spectra are read)."""
     lines = [f"# {pred.smiles}   charge {pred.record.charge}   unpaired electrons {pred.record.uhf}",
-             f"# scale factor {pred.scale.factor:.4f} ({pred.scale.name}); "
+             f"# scaling: {pred.scale.describe()}; "
              f"optimisation {'converged' if pred.converged else 'NOT converged'}"]
     for note in pred.notes:
         lines.append(f"# note: {note}")
@@ -50,7 +50,7 @@ def write_spectrum_csv(pred: Prediction, path: str | Path) -> None:
     s = pred.spectrum
     with open(path, "w", newline="") as fh:
         fh.write(f"# vibest predicted IR spectrum of {pred.smiles}; {s.line_shape} FWHM {s.fwhm_cm1} cm-1; "
-                 f"scale factor {pred.scale.factor:.4f}\n# {CAUTION}\n")
+                 f"scaling: {pred.scale.describe()}\n# {CAUTION}\n")
         w = csv.writer(fh)
         w.writerow(["wavenumber_cm1", "absorption_km_mol_cm1", "absorbance_normalised", "transmittance_percent"])
         for row in zip(s.wavenumbers_cm1, s.absorption_km_mol_cm1, s.absorbance_normalised, s.transmittance_percent):
@@ -105,7 +105,7 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
     ax.set_ylabel("transmittance / %" if transmittance else "absorbance (normalised)")
     if not transmittance:
         ax.set_ylim(0, 1.18)
-    ax.set_title(f"predicted IR spectrum: {pred.smiles}  (GFN2-xTB, scale {pred.scale.factor:.3f}, "
+    ax.set_title(f"predicted IR spectrum: {pred.smiles}  (GFN2-xTB, {pred.scale.describe()}, "
                  f"{s.line_shape} FWHM {s.fwhm_cm1:g} cm$^{{-1}}$)", fontsize=9)
     fig.text(0.01, 0.01, "Estimate only: confirm with reference standards and validated methods.",
              fontsize=6.5, color="#7f7f7f")

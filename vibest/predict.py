@@ -18,8 +18,9 @@ from ase.units import Bohr
 
 from . import __version__
 from .analysis.composition import ModeComposition, mode_composition
-from .analysis.harmonic import HarmonicModes, harmonic_analysis
-from .analysis.scaling import ScaleModel, default_scale_model, user_scale_model
+from .analysis.harmonic import HarmonicModes, harmonic_analysis, rayleigh_wavenumbers
+from .analysis.internal_space import InternalSpace
+from .analysis.scaling import ScaleModel, default_scale_model, named_scale_model, user_scale_model
 from .calculation.engine import EngineSettings, make_engine
 from .calculation.hessian import default_workers, finite_difference_hessian
 from .calculation.optimizer import OptimizerSettings, optimize
@@ -70,13 +71,18 @@ class CalculationOptions:
 
 @dataclass(frozen=True)
 class SpectrumOptions:
-    """Settings of the cheap stage: scaling and broadening."""
+    """Settings of the cheap stage: scaling and broadening.
+
+    ``scale_factor`` (a uniform factor) overrides ``scale_model`` ("uniform" or
+    "per-coordinate"); with neither, the shipped default model is used.
+    """
 
     scale_factor: float | None = None
     fwhm_cm1: float = DEFAULT_FWHM_CM1
     line_shape: str = "lorentzian"
     range_cm1: tuple[float, float] = DEFAULT_RANGE_CM1
     step_cm1: float = DEFAULT_STEP_CM1
+    scale_model: str | None = None
 
     def validate(self) -> None:
         if self.line_shape not in LINE_SHAPES:
@@ -89,8 +95,12 @@ class SpectrumOptions:
         if not (0 < self.step_cm1 <= (hi - lo) / 2):
             raise InputError(f"grid step {self.step_cm1} cm^-1 does not fit the range")
 
-    def scale_model(self) -> ScaleModel:
-        return default_scale_model() if self.scale_factor is None else user_scale_model(self.scale_factor)
+    def resolve_scale(self) -> ScaleModel:
+        if self.scale_factor is not None:
+            return user_scale_model(self.scale_factor)
+        if self.scale_model is not None:
+            return named_scale_model(self.scale_model)
+        return default_scale_model()
 
 
 @dataclass(frozen=True)
@@ -269,14 +279,24 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
             masses_amu=None, notes: tuple[str, ...] = ()) -> Prediction:
     """Turn a Hessian record into bands and a spectrum (no gradients are computed)."""
     options.validate()
-    scale = options.scale_model()
-    modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
+    scale = options.resolve_scale()
+    space = InternalSpace.build(record.positions_angstrom, record.bonds)
+    if scale.per_coordinate:
+        hessian = scale.scaled_hessian(record.numbers, record.bonds, record.hessian_hartree_bohr2, space)
+    else:
+        hessian = record.hessian_hartree_bohr2
+    modes = harmonic_analysis(record.numbers, record.positions_angstrom, hessian,
                               record.dipole_derivatives_e, masses_amu=masses_amu, charge=record.charge)
-    comp = mode_composition(record.numbers, record.positions_angstrom, record.bonds,
-                            record.hessian_hartree_bohr2, modes.displacements)
-    scaled = scale.apply(modes.wavenumbers_cm1)
+    comp = mode_composition(record.numbers, record.positions_angstrom, record.bonds, hessian,
+                            modes.displacements, space=space)
+    if scale.per_coordinate:
+        scaled = modes.wavenumbers_cm1
+        harmonic = rayleigh_wavenumbers(record.hessian_hartree_bohr2, modes)
+    else:
+        scaled = scale.apply(modes.wavenumbers_cm1)
+        harmonic = modes.wavenumbers_cm1
     bands = tuple(
-        Band(index=k + 1, wavenumber_cm1=float(scaled[k]), harmonic_cm1=float(modes.wavenumbers_cm1[k]),
+        Band(index=k + 1, wavenumber_cm1=float(scaled[k]), harmonic_cm1=float(harmonic[k]),
              intensity_km_mol=float(modes.intensities_km_mol[k]),
              reduced_mass_amu=float(modes.reduced_masses_amu[k]),
              force_constant_mdyn_angstrom=float(modes.force_constants_mdyn_angstrom[k]),
@@ -285,7 +305,7 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
     )
     spec = broaden(scaled, modes.intensities_km_mol, options.fwhm_cm1, options.line_shape,
                    grid(*options.range_cm1, options.step_cm1))
-    imaginary = tuple(float(w) for w in modes.wavenumbers_cm1 if w < -IMAGINARY_THRESHOLD_CM1)
+    imaginary = tuple(float(w) for w in harmonic if w < -IMAGINARY_THRESHOLD_CM1)
     all_notes = list(notes)
     if imaginary:
         all_notes.append(f"{len(imaginary)} imaginary mode(s) remain: the geometry is not a true minimum")
@@ -294,6 +314,7 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
 
 
 def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, scale_factor: float | None = None,
+            scale_model: str | None = None,
             fwhm_cm1: float = DEFAULT_FWHM_CM1, line_shape: str = "lorentzian",
             range_cm1: tuple[float, float] = DEFAULT_RANGE_CM1, step_cm1: float = DEFAULT_STEP_CM1,
             workers: int | None = None, backend: str = "tblite", solvent: str | None = None,
@@ -305,7 +326,8 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
         smiles: the structure; charges and radicals in the SMILES set charge and spin.
         seed: embedding seed (same seed, same result).
         largest_fragment: for salts/mixtures, keep the largest fragment instead of refusing.
-        scale_factor: override the fitted default scale factor.
+        scale_factor: a uniform scale factor instead of the fitted default model.
+        scale_model: "uniform" or "per-coordinate" (default: the shipped default model).
         fwhm_cm1, line_shape, range_cm1, step_cm1: broadening and grid (cm^-1).
         workers: processes for the Hessian (default all cores).
         backend: "tblite" (default) or "xtb".
@@ -318,9 +340,9 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
         InputError: for invalid input (message suitable for the user).
         CalculationError: when the tight-binding calculation fails.
     """
-    spec_opts = SpectrumOptions(scale_factor, fwhm_cm1, line_shape, tuple(range_cm1), step_cm1)
+    spec_opts = SpectrumOptions(scale_factor, fwhm_cm1, line_shape, tuple(range_cm1), step_cm1, scale_model)
     spec_opts.validate()
-    spec_opts.scale_model()
+    spec_opts.resolve_scale()
     if workers is not None and workers < 1:
         raise InputError("workers must be at least 1")
     calc_opts = CalculationOptions(

@@ -17,9 +17,9 @@ from dataclasses import dataclass
 
 import numpy as np
 from ase.data import chemical_symbols
-from ase.units import Bohr
 
-from ..internal_coordinates import BEND, LINEAR_BEND, OUT_OF_PLANE, STRETCH, TORSION, Primitive, b_matrix, primitives_from_bonds
+from ..internal_coordinates import BEND, LINEAR_BEND, OUT_OF_PLANE, STRETCH, TORSION, Primitive
+from .internal_space import InternalSpace
 
 BOND_SYMBOL = {1.0: "-", 1.5: ":", 2.0: "=", 3.0: "#"}
 
@@ -113,25 +113,22 @@ def describe(prim: Primitive, numbers, orders) -> tuple[str, str]:
 
 
 def mode_composition(numbers, positions_angstrom, bonds, hessian_hartree_bohr2, displacements,
-                     min_percent: float = 1.0) -> ModeComposition:
+                     min_percent: float = 1.0, space: InternalSpace | None = None) -> ModeComposition:
     """Composition of each mode over internal coordinates built from ``bonds``.
 
     Args:
         bonds: (i, j, order) triples of the molecule.
         displacements: Cartesian displacement vectors of the modes (M, N, 3), any normalisation.
         min_percent: contributions below this are left out of ``contributions`` (not of ``shares``).
+        space: the molecule's internal coordinates, when already built.
     """
-    x_bohr = np.asarray(positions_angstrom, dtype=float) / Bohr
-    pairs = [(int(i), int(j)) for i, j, _ in bonds]
-    prims = primitives_from_bonds(x_bohr, pairs)
+    space = space or InternalSpace.build(positions_angstrom, bonds)
+    prims = space.primitives
     m = len(displacements)
     if not prims:
         return ModeComposition((), np.zeros((m, 0)), tuple(() for _ in range(m)))
-    bmat = b_matrix(x_bohr, prims)
-    g_inv = np.linalg.pinv(bmat @ bmat.T, rcond=1e-8, hermitian=True)
-    bg = g_inv @ bmat  # (P, 3N): generalised inverse transpose
-    f_diag = np.einsum("ij,jk,ik->i", bg, np.asarray(hessian_hartree_bohr2), bg)
-    dq = np.asarray(displacements).reshape(m, -1) @ bmat.T  # (M, P)
+    f_diag = space.diagonal_force_constants(hessian_hartree_bohr2)
+    dq = np.asarray(displacements).reshape(m, -1) @ space.b.T  # (M, P)
     energy = np.abs(f_diag)[None, :] * dq ** 2
     total = energy.sum(1, keepdims=True)
     shares = np.divide(energy, total, out=np.zeros_like(energy), where=total > 0)

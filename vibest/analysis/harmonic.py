@@ -139,3 +139,14 @@ def harmonic_analysis(numbers, positions_angstrom, hessian_hartree_bohr2, dipole
         linear=linear,
         rigid_body_eigenvalues_au=rb_eigs,
     )
+
+
+def rayleigh_wavenumbers(hessian_hartree_bohr2, modes: HarmonicModes) -> np.ndarray:
+    """Wavenumbers (cm^-1) of another Hessian along the given modes: sqrt(q^T H_mw q) per mode.
+
+    Used to report the unscaled harmonic value of each mode of a scaled force field.
+    """
+    inv_sqrt_m = np.repeat(1.0 / np.sqrt(modes.masses_amu), 3)
+    q = modes.modes_mass_weighted.reshape(modes.count, -1) * inv_sqrt_m[None, :]
+    values = np.einsum("mi,ij,mj->m", q, np.asarray(hessian_hartree_bohr2), q)
+    return eigenvalues_to_wavenumbers(values)

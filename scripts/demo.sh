@@ -1,0 +1,14 @@
+#!/usr/bin/env bash
+# Demo: set up, then predict the spectrum of the demo sample and write table, CSV, JSON and plot
+# to out/demo/. Scenario (invented): the Halvorsen Lab checks that solvent recovered from batch
+# HX-07 is 2-butanone before it goes back into use.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash scripts/setup.sh
+mkdir -p out/demo
+.venv/bin/vibest predict "CCC(C)=O" -v \
+  --plot out/demo/hx07-2-butanone.png \
+  --csv out/demo/hx07-2-butanone-spectrum.csv \
+  --bands-csv out/demo/hx07-2-butanone-bands.csv \
+  --json out/demo/hx07-2-butanone.json
+echo "demo outputs are in out/demo/"

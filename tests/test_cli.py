@@ -1,0 +1,45 @@
+"""Command line: clear one-line errors with exit code 2, outputs written on request."""
+
+import json
+import subprocess
+import sys
+
+import pytest
+from click.testing import CliRunner
+
+from vibest.cli import main
+
+
+def run(*args):
+    return CliRunner().invoke(main, list(args))
+
+
+@pytest.mark.parametrize("smiles", ["C1CC", "", "C(C", "[Na+].[Cl-]", "[U]"])
+def test_bad_input_exit_2_one_line(smiles):
+    res = subprocess.run([sys.executable, "-m", "vibest.cli", "predict", smiles, "-q"],
+                         capture_output=True, text=True)
+    assert res.returncode == 2
+    lines = [l for l in res.stderr.splitlines() if l.strip()]
+    assert len(lines) == 1 and lines[0].startswith("vibest: error:")
+    assert "Traceback" not in res.stderr
+
+
+def test_bad_option_values_exit_2():
+    assert run("predict", "O", "--fwhm", "-3", "-q").exit_code == 2
+    assert run("predict", "O", "--scale-factor", "7", "-q").exit_code == 2
+    assert run("predict", "O", "--plot", "x.txt", "-q").exit_code == 2
+
+
+def test_predict_writes_outputs(tmp_path):
+    files = {k: tmp_path / f"w.{k}" for k in ("csv", "json", "png", "svg")}
+    res = run("predict", "O", "-q", "-v", "--csv", str(files["csv"]), "--json", str(files["json"]),
+              "--plot", str(files["png"]), "--workers", "1")
+    assert res.exit_code == 0, res.output
+    assert "O-H stretch" in res.output and "caution" in res.output and "gradients" in res.output
+    data = json.loads(files["json"].read_text())
+    assert len(data["bands"]) == 3 and data["settings"]["engine"]["method"] == "GFN2-xTB"
+    rows = files["csv"].read_text().splitlines()
+    assert rows[2].startswith("wavenumber_cm1") and len(rows) == 3 + 3601
+    assert files["png"].stat().st_size > 10000
+    assert run("predict", "O", "-q", "--plot", str(files["svg"]), "--transmittance").exit_code == 0
+    assert files["svg"].read_text().lstrip().startswith("<?xml")

@@ -1,0 +1,95 @@
+"""End-to-end behaviour of the calculation stage: optimiser, parallel Hessian, retries, records."""
+
+import numpy as np
+import pytest
+from ase import Atoms
+from ase.units import Bohr, Hartree
+
+from vibest.analysis.harmonic import harmonic_analysis
+from vibest.calculation.engine import EngineSettings, make_engine
+from vibest.calculation.hessian import finite_difference_hessian
+from vibest.calculation.optimizer import optimize
+from vibest.calculation.record import HessianRecord
+from vibest.predict import CalculationOptions, analyse, compute_record, predict
+from vibest.structure import build_molecule
+
+from .conftest import record_of
+
+
+def test_optimiser_reaches_the_same_minimum_as_ase_bfgs():
+    """Same minimum as ASE's BFGS (general-purpose reference) with the same tblite settings."""
+    from ase.optimize import BFGS
+    from tblite.ase import TBLite
+
+    mol = build_molecule("CC(=O)O")
+    x = mol.positions_angstrom / Bohr
+    res = optimize(make_engine(mol.numbers, x), mol.numbers, x)
+    assert res.converged and res.max_force_hartree_bohr < 5e-5
+    atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
+    atoms.calc = TBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    BFGS(atoms, logfile=None).run(fmax=5e-5 * Hartree / Bohr, steps=1000)
+    assert res.energy_hartree == pytest.approx(atoms.get_potential_energy() / Hartree, abs=1e-6)
+    assert res.gradient_calls < 60
+
+
+@pytest.mark.slow
+def test_parallel_hessian_equals_serial():
+    mol = build_molecule("CCO")
+    x = mol.positions_angstrom / Bohr
+    eng = make_engine(mol.numbers, x)
+    eng.evaluate(x)
+    serial = finite_difference_hessian(eng, mol.numbers, x, workers=1)
+    eng.evaluate(x)
+    parallel = finite_difference_hessian(eng, mol.numbers, x, workers=2)
+    assert parallel.workers == 2 and parallel.gradient_calls == 6 * mol.natoms
+    np.testing.assert_allclose(parallel.hessian_hartree_bohr2, serial.hessian_hartree_bohr2, atol=1e-7)
+    # SCF noise (threads reduce in another order): ~1e-7 e, far below anything visible in a spectrum.
+    np.testing.assert_allclose(parallel.dipole_derivatives_e, serial.dipole_derivatives_e, atol=2e-6)
+    w = [harmonic_analysis(mol.numbers, mol.positions_angstrom, r.hessian_hartree_bohr2, r.dipole_derivatives_e)
+         for r in (serial, parallel)]
+    np.testing.assert_allclose(w[0].wavenumbers_cm1, w[1].wavenumbers_cm1, atol=0.01)
+    np.testing.assert_allclose(w[0].intensities_km_mol, w[1].intensities_km_mol, rtol=1e-4, atol=1e-3)
+
+
+def test_hessian_symmetric_and_translation_invariant():
+    h = record_of("C=O").hessian_hartree_bohr2
+    np.testing.assert_array_equal(h, h.T)
+    # Sum over atoms of each column vanishes for a translation (acoustic sum rule; common practice).
+    n = h.shape[0] // 3
+    for a in range(3):
+        t = np.zeros(3 * n)
+        t[a::3] = 1.0
+        assert np.abs(h @ t).max() < 1e-4
+
+
+def test_planar_ammonia_saddle_is_escaped():
+    """Planar NH3 is the inversion transition state; the retry must reach the pyramidal minimum."""
+    mol = build_molecule("N")
+    planar = np.array([[0.0, 0.0, 0.0], [1.01, 0.0, 0.0], [-0.505, 0.8747, 0.0], [-0.505, -0.8747, 0.0]])
+    record, converged, notes = compute_record(mol.with_positions(planar), CalculationOptions(workers=1))
+    modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2)
+    assert converged and modes.wavenumbers_cm1.min() > 500
+    assert any("imaginary" in n for n in notes)
+    assert abs(record.positions_angstrom[:, 2] - record.positions_angstrom[0, 2]).max() > 0.2
+
+
+def test_record_round_trip_reanalysis_is_identical(tmp_path):
+    rec = record_of("CC#N")
+    path = tmp_path / "rec.json"
+    rec.save(path)
+    again = HessianRecord.load(path)
+    a, b = analyse(rec), analyse(again)
+    np.testing.assert_array_equal(a.wavenumbers_cm1, b.wavenumbers_cm1)
+    np.testing.assert_array_equal(a.intensities_km_mol, b.intensities_km_mol)
+
+
+def test_predict_is_deterministic_and_reports_counts():
+    a = predict("CO", workers=1)
+    b = predict("CO", workers=1)
+    # Identical geometry from the seeded embedding; threaded reductions in tblite/BLAS may differ
+    # in the last bits (~1e-13 relative), far below the printed precision.
+    np.testing.assert_allclose(a.wavenumbers_cm1, b.wavenumbers_cm1, rtol=0, atol=1e-6)
+    t = a.record.timings
+    assert t["hessian_gradients"] == 36 and t["optimization_gradients"] > 0
+    d = a.to_dict()
+    assert d["caution"] and d["versions"]["tblite"] and len(d["bands"]) == 12
