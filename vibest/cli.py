@@ -1,10 +1,15 @@
 """Command line: a thin layer over the Python API (every command is a call a script could make).
 
+Commands: ``predict`` (one structure), ``compare`` (one structure against a measured spectrum),
+``rank`` (many candidates against a measured spectrum).
 Exit codes: 0 success, 2 bad input (one-line message), 3 calculation failed, 130 interrupted.
 """
 
 from __future__ import annotations
 
+import contextlib
+import functools
+import json
 import sys
 import time
 from pathlib import Path
@@ -12,16 +17,17 @@ from pathlib import Path
 import click
 
 from . import __version__
-from .errors import CalculationError, InputError
 from .analysis.scaling import SCALE_MODELS
+from .errors import CalculationError, InputError
 from .spectrum import DEFAULT_FWHM_CM1, LINE_SHAPES
 
 
 class ProgressLine:
     """Progress on stderr: one rewritten line on a terminal, a few plain lines otherwise."""
 
-    def __init__(self, enabled: bool = True):
+    def __init__(self, enabled: bool = True, prefix: str = ""):
         self.enabled = enabled
+        self.prefix = prefix
         self.tty = sys.stderr.isatty()
         self.last_stage = None
         self.last_print = 0.0
@@ -33,15 +39,14 @@ class ProgressLine:
         now = time.perf_counter()
         elapsed = now - self.t0
         if stage == "hessian":
-            text = f"[{elapsed:6.1f} s] Hessian: {done}/{total} displaced gradients"
+            text = f"Hessian: {done}/{total} displaced gradients"
         elif stage == "optimisation":
-            text = f"[{elapsed:6.1f} s] optimisation step {done}: {message}"
+            text = f"optimisation step {done}: {message}"
         else:
-            text = f"[{elapsed:6.1f} s] {stage}: {message}"
+            text = f"{stage}: {message}"
+        text = f"[{elapsed:6.1f} s] {self.prefix}{text}"
         if self.tty:
-            click.echo("\r" + text.ljust(90)[:110], nl=False, err=True)
-            if stage == "hessian" and done == total:
-                click.echo("", err=True)
+            click.echo("\r" + text.ljust(100)[:120], nl=False, err=True)
         elif stage != self.last_stage or now - self.last_print > 5.0 or (stage == "hessian" and done == total):
             click.echo(text, err=True)
             self.last_print = now
@@ -67,10 +72,98 @@ def _check_output_path(path: str | None, suffixes: tuple[str, ...] | None = None
         p.parent.mkdir(parents=True, exist_ok=True)
 
 
+@contextlib.contextmanager
+def _user_errors(progress: ProgressLine | None = None):
+    """Turn vibest's own errors into one-line messages and exit codes."""
+    try:
+        yield
+    except InputError as exc:
+        if progress:
+            progress.finish()
+        _fail(str(exc), 2)
+    except CalculationError as exc:
+        if progress:
+            progress.finish()
+        _fail(str(exc), 3)
+    except OSError as exc:
+        if progress:
+            progress.finish()
+        _fail(f"cannot read or write a file: {exc}", 2)
+    except KeyboardInterrupt:
+        if progress:
+            progress.finish()
+        _fail("interrupted", 130)
+
+
+def calculation_options(f):
+    """Options that change the computed Hessian."""
+    for opt in reversed([
+        click.option("--seed", type=int, default=0xB1B, show_default=True, help="3D embedding seed."),
+        click.option("--workers", type=click.IntRange(min=1), default=None, help="Processes for the Hessian [all cores]."),
+        click.option("--largest-fragment", is_flag=True, help="For salts/mixtures, keep only the largest fragment."),
+        click.option("--backend", type=click.Choice(["tblite", "xtb"]), default="tblite", show_default=True),
+        click.option("--solvent", default=None, help="ALPB implicit solvent name (e.g. water); default gas phase."),
+    ]):
+        f = opt(f)
+    return f
+
+
+def spectrum_options(f):
+    """Options of the cheap stage (scaling and broadening)."""
+    for opt in reversed([
+        click.option("--scale-factor", type=float, default=None, help="A uniform scale factor instead of the fitted default."),
+        click.option("--scale-model", type=click.Choice(SCALE_MODELS), default=None,
+                     help="Fitted scaling to use [default: per-coordinate]."),
+        click.option("--fwhm", type=float, default=DEFAULT_FWHM_CM1, show_default=True, help="Line width (FWHM), cm^-1."),
+        click.option("--line-shape", type=click.Choice(LINE_SHAPES), default="lorentzian", show_default=True),
+    ]):
+        f = opt(f)
+    return f
+
+
+def comparison_options(f):
+    from .compare import DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_SCORE, SCORES
+
+    for opt in reversed([
+        click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
+                     help="What the measured Y values are (CSV); default: from the file's units, else guessed."),
+        click.option("--block", type=click.IntRange(min=1), default=None, help="Spectrum number in a multi-block JCAMP-DX file."),
+        click.option("--score", "score_name", type=click.Choice(SCORES), default=DEFAULT_SCORE, show_default=True),
+        click.option("--compare-range", type=(float, float), default=(500.0, 3800.0), show_default=True,
+                     metavar="LOW HIGH", help="Wavenumber range compared, cm^-1."),
+        click.option("--fit-scale", is_flag=True, help="Fit an extra scale factor (0.95-1.05) that maximises the score."),
+        click.option("--fit-shift", is_flag=True, help="Fit a shift (-40 to +40 cm^-1) that maximises the score."),
+        click.option("--baseline", is_flag=True, help="Remove a rubber-band (lower convex hull) baseline from the measured spectrum."),
+        click.option("--tolerance", type=float, default=DEFAULT_MATCH_TOLERANCE_CM1, show_default=True,
+                     help="Largest shift for a peak match, cm^-1."),
+    ]):
+        f = opt(f)
+    return f
+
+
+def _calc_options(seed, workers, largest_fragment, backend, solvent):
+    from .calculation.engine import EngineSettings
+    from .predict import CalculationOptions
+
+    return CalculationOptions(seed=seed, largest_fragment=largest_fragment,
+                              engine=EngineSettings(backend=backend, solvent=solvent), workers=workers)
+
+
+def _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1=(400.0, 4000.0)):
+    from .predict import SpectrumOptions
+
+    opts = SpectrumOptions(scale_factor=scale_factor, fwhm_cm1=fwhm, line_shape=line_shape,
+                           range_cm1=tuple(range_cm1), scale_model=scale_model)
+    opts.validate()
+    opts.resolve_scale()
+    return opts
+
+
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="vibest")
 def main() -> None:
-    """vibest: predicted IR spectra from structure (GFN2-xTB, harmonic, scaled).
+    """vibest: predicted IR spectra from structure (GFN2-xTB, harmonic, scaled),
+    compared with measured spectra.
 
     Predictions are estimates: confirm identifications with reference standards.
     """
@@ -79,75 +172,152 @@ def main() -> None:
 @main.command("predict")
 @click.argument("smiles")
 @click.option("--csv", "csv_path", metavar="FILE", help="Write the broadened spectrum as CSV.")
+@click.option("--jcamp", "jcamp_path", metavar="FILE", help="Write the broadened spectrum as JCAMP-DX.")
 @click.option("--bands-csv", metavar="FILE", help="Write the band list (wavenumber, intensity, character) as CSV.")
 @click.option("--json", "json_path", metavar="FILE", help="Write the full result (geometry, modes, settings) as JSON.")
 @click.option("--record", "record_path", metavar="FILE",
               help="Write the Hessian record (JSON) for later re-analysis without new gradients.")
 @click.option("--plot", "plot_path", metavar="FILE", help="Write a plot (.png, .svg or .pdf).")
 @click.option("--transmittance", is_flag=True, help="Plot %T instead of absorbance.")
-@click.option("--scale-factor", type=float, default=None, help="A uniform scale factor instead of the fitted default.")
-@click.option("--scale-model", type=click.Choice(SCALE_MODELS), default=None,
-              help="Fitted scaling to use [default: per-coordinate].")
-@click.option("--fwhm", type=float, default=DEFAULT_FWHM_CM1, show_default=True, help="Line width (FWHM), cm^-1.")
-@click.option("--line-shape", type=click.Choice(LINE_SHAPES), default="lorentzian", show_default=True)
 @click.option("--range", "range_cm1", type=(float, float), default=(400.0, 4000.0), show_default=True,
               metavar="LOW HIGH", help="Spectrum range, cm^-1.")
-@click.option("--seed", type=int, default=0xB1B, show_default=True, help="3D embedding seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=None, help="Processes for the Hessian [all cores].")
-@click.option("--largest-fragment", is_flag=True, help="For salts/mixtures, keep only the largest fragment.")
-@click.option("--backend", type=click.Choice(["tblite", "xtb"]), default="tblite", show_default=True)
-@click.option("--solvent", default=None, help="ALPB implicit solvent name (e.g. water); default gas phase.")
+@calculation_options
+@spectrum_options
 @click.option("--min-intensity", type=float, default=0.0, help="Hide bands weaker than this (km/mol) in the table.")
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
-def predict_command(smiles, csv_path, bands_csv, json_path, record_path, plot_path, transmittance, scale_factor, scale_model,
-                    fwhm, line_shape, range_cm1, seed, workers, largest_fragment, backend, solvent, min_intensity,
-                    verbose, quiet) -> None:
+def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
+                    range_cm1, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model, fwhm,
+                    line_shape, min_intensity, verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
     from .predict import predict
 
     progress = ProgressLine(enabled=not quiet)
-    try:
+    with _user_errors(progress):
         _check_output_path(plot_path, output.PLOT_FORMATS)
-        for p in (csv_path, bands_csv, json_path, record_path):
+        for p in (csv_path, jcamp_path, bands_csv, json_path, record_path):
             _check_output_path(p)
         pred = predict(smiles, seed=seed, largest_fragment=largest_fragment, scale_factor=scale_factor,
-                       scale_model=scale_model,
-                       fwhm_cm1=fwhm, line_shape=line_shape, range_cm1=range_cm1, workers=workers,
-                       backend=backend, solvent=solvent, progress=progress)
+                       scale_model=scale_model, fwhm_cm1=fwhm, line_shape=line_shape, range_cm1=range_cm1,
+                       workers=workers, backend=backend, solvent=solvent, progress=progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
-        written = []
-        if csv_path:
-            output.write_spectrum_csv(pred, csv_path)
-            written.append(csv_path)
-        if bands_csv:
-            output.write_bands_csv(pred, bands_csv)
-            written.append(bands_csv)
-        if json_path:
-            output.write_json(pred, json_path)
-            written.append(json_path)
-        if record_path:
-            pred.record.save(record_path)
-            written.append(record_path)
+        writers = [(csv_path, output.write_spectrum_csv), (jcamp_path, output.write_spectrum_jcamp),
+                   (bands_csv, output.write_bands_csv), (json_path, output.write_json),
+                   (record_path, lambda pr, p: pr.record.save(p)),
+                   (plot_path, functools.partial(output.plot_prediction, transmittance=transmittance))]
+        for path, write in writers:
+            if path:
+                write(pred, path)
+                click.echo(f"wrote {path}", err=True)
+
+
+@main.command("compare")
+@click.argument("measured", type=click.Path(dir_okay=False))
+@click.argument("smiles")
+@comparison_options
+@calculation_options
+@spectrum_options
+@click.option("--plot", "plot_path", metavar="FILE", help="Overlay plot (.png, .svg, .pdf).")
+@click.option("--json", "json_path", metavar="FILE", help="Comparison with peak table as JSON.")
+@click.option("--cache", "cache_dir", metavar="DIR", default=None, help="Record cache directory [~/.cache/vibest/records].")
+@click.option("--no-cache", is_flag=True, help="Neither read nor write the record cache.")
+@click.option("-q", "--quiet", is_flag=True, help="No progress output.")
+def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, baseline,
+                    tolerance, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model, fwhm,
+                    line_shape, plot_path, json_path, cache_dir, no_cache, quiet) -> None:
+    """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
+    from . import output
+    from .compare import compare
+    from .measured import load_spectrum
+    from .ranking import predict_cached
+    from .store import RecordCache
+
+    progress = ProgressLine(enabled=not quiet)
+    with _user_errors(progress):
+        _check_output_path(plot_path, output.PLOT_FORMATS)
+        _check_output_path(json_path)
+        spec = load_spectrum(measured, kind=y_kind, block=block)
+        calc = _calc_options(seed, workers, largest_fragment, backend, solvent)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        pred, _ = predict_cached(smiles, calc, sopts, None if no_cache else RecordCache(cache_dir), progress)
+        progress.finish()
+        comp = compare(pred, spec, score_name=score_name, range_cm1=compare_range, fit_scale=fit_scale,
+                       fit_shift=fit_shift, baseline=baseline, tolerance_cm1=tolerance)
+        for note in spec.notes:
+            click.echo(f"# note: {note}")
+        click.echo(output.comparison_summary(comp))
+        click.echo(output.peak_table(comp))
+        click.echo(f"# caution: {output.CAUTION}")
         if plot_path:
-            output.plot_prediction(pred, plot_path, transmittance=transmittance)
-            written.append(plot_path)
-        for p in written:
-            click.echo(f"wrote {p}", err=True)
-    except InputError as exc:
+            output.plot_overlay(comp, plot_path, measured_label=f"measured {Path(measured).name}")
+            click.echo(f"wrote {plot_path}", err=True)
+        if json_path:
+            Path(json_path).write_text(json.dumps(comp.to_dict(include_curves=True) | {"caution": output.CAUTION,
+                                                                                      "measured_notes": list(spec.notes)}, indent=1))
+            click.echo(f"wrote {json_path}", err=True)
+
+
+@main.command("rank")
+@click.argument("measured", type=click.Path(dir_okay=False))
+@click.argument("candidates", nargs=-1)
+@click.option("--candidates-file", type=click.Path(dir_okay=False), default=None,
+              help="File of candidates: 'SMILES [name]' per line, or CSV with smiles,name columns.")
+@comparison_options
+@calculation_options
+@spectrum_options
+@click.option("--csv", "csv_path", metavar="FILE", help="Ranked table as CSV.")
+@click.option("--json", "json_path", metavar="FILE", help="Ranking with peak tables as JSON.")
+@click.option("--plot-dir", metavar="DIR", default=None, help="Write overlay plots of the best candidates here.")
+@click.option("--top", type=click.IntRange(min=1), default=3, show_default=True, help="How many overlays to plot.")
+@click.option("--cache", "cache_dir", metavar="DIR", default=None, help="Record cache directory [~/.cache/vibest/records].")
+@click.option("--no-cache", is_flag=True, help="Neither read nor write the record cache.")
+@click.option("-q", "--quiet", is_flag=True, help="No progress output.")
+def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
+                 baseline, tolerance, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model,
+                 fwhm, line_shape, csv_path, json_path, plot_dir, top, cache_dir, no_cache, quiet) -> None:
+    """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
+    from . import output
+    from .measured import load_spectrum
+    from .ranking import Candidate, rank_candidates, read_candidates
+    from .store import RecordCache
+
+    progress = ProgressLine(enabled=not quiet)
+    with _user_errors(progress):
+        for p in (csv_path, json_path):
+            _check_output_path(p)
+        cands = [Candidate(s, s) for s in candidates]
+        if candidates_file:
+            cands += read_candidates(candidates_file)
+        if not cands:
+            raise InputError("give candidate SMILES as arguments or with --candidates-file")
+        spec = load_spectrum(measured, kind=y_kind, block=block)
+        calc = _calc_options(seed, workers, largest_fragment, backend, solvent)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+
+        def report(done, total, name):
+            progress("candidates", done, total, f"{done}/{total} {name}")
+
+        ranking = rank_candidates(spec, cands, calc=calc, spec=sopts,
+                                  cache=None if no_cache else RecordCache(cache_dir), score_name=score_name,
+                                  progress=report, range_cm1=compare_range, fit_scale=fit_scale, fit_shift=fit_shift,
+                                  baseline=baseline, tolerance_cm1=tolerance)
         progress.finish()
-        _fail(str(exc), 2)
-    except CalculationError as exc:
-        progress.finish()
-        _fail(str(exc), 3)
-    except OSError as exc:
-        progress.finish()
-        _fail(f"cannot write output: {exc}", 2)
-    except KeyboardInterrupt:
-        progress.finish()
-        _fail("interrupted", 130)
+        click.echo(output.ranking_table(ranking))
+        if csv_path:
+            ranking.write_csv(csv_path)
+            click.echo(f"wrote {csv_path}", err=True)
+        if json_path:
+            Path(json_path).write_text(json.dumps(ranking.to_dict(), indent=1))
+            click.echo(f"wrote {json_path}", err=True)
+        if plot_dir:
+            Path(plot_dir).mkdir(parents=True, exist_ok=True)
+            for e in [e for e in ranking.entries if e.comparison][:top]:
+                path = Path(plot_dir) / f"rank{e.rank}.png"
+                output.plot_overlay(e.comparison, path, measured_label=f"measured {Path(measured).name}",
+                                    title=f"rank {e.rank}: {e.candidate.name}  {score_name} {e.score:.3f}")
+                click.echo(f"wrote {path}", err=True)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -112,3 +112,92 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     fig.savefig(path)
     plt.close(fig)
+
+
+def write_spectrum_jcamp(pred: Prediction, path: str | Path) -> None:
+    """The predicted spectrum (normalised absorbance) as JCAMP-DX, readable by other software."""
+    from .measured.jcamp import write_jcamp
+
+    s = pred.spectrum
+    write_jcamp(path, s.wavenumbers_cm1, s.absorbance_normalised, title=f"vibest prediction {pred.smiles}",
+                yunits="ABSORBANCE", extra_labels={
+                    "$VIBEST SMILES": pred.smiles, "$VIBEST SCALING": pred.scale.describe(),
+                    "$VIBEST LINE SHAPE": f"{s.line_shape} FWHM {s.fwhm_cm1:g} 1/CM",
+                    "$VIBEST CAUTION": CAUTION})
+
+
+def peak_table(comp) -> str:
+    """Plain-text peak-match table of a :class:`vibest.compare.Comparison`."""
+    lines = [f"{'measured':>9} {'height':>6}  {'predicted':>9} {'height':>6}  {'shift':>6}  {'region':<11}  character"]
+    for m in comp.matches:
+        meas = f"{m.measured_cm1:9.1f} {m.measured_height:6.2f}" if m.measured_cm1 is not None else f"{'-':>9} {'':>6}"
+        prd = f"{m.predicted_cm1:9.1f} {m.predicted_height:6.2f}" if m.predicted_cm1 is not None else f"{'-':>9} {'':>6}"
+        shift = f"{m.shift_cm1:+6.1f}" if m.shift_cm1 is not None else f"{'unmatched':>6}"
+        where = region_of(m.measured_cm1 if m.measured_cm1 is not None else m.predicted_cm1)
+        lines.append(f"{meas}  {prd}  {shift}  {where:<11}  {m.character}")
+    return "\n".join(lines)
+
+
+def comparison_summary(comp) -> str:
+    s = comp.scores
+    text = (f"{comp.smiles}: {comp.score_name} {comp.score:.4f}  (pearson {s['pearson']:.3f}, spearman "
+            f"{s['spearman']:.3f}, cosine {s['cosine']:.3f}, overlap {s['overlap']:.3f})")
+    if comp.settings.get("fit_scale") or comp.settings.get("fit_shift"):
+        text += f"\n  fitted: extra scale {comp.extra_scale:.4f}, shift {comp.shift_cm1:+.1f} cm-1"
+    n = sum(m.matched for m in comp.matches)
+    nm = sum(m.measured_cm1 is not None for m in comp.matches)
+    return text + f"\n  peaks: {n} of {nm} measured peaks matched within {comp.settings['tolerance_cm1']:g} cm-1"
+
+
+def ranking_table(ranking) -> str:
+    lines = [f"# measured: {ranking.measured.source}  ({ranking.measured.title})"]
+    for note in ranking.measured.notes:
+        lines.append(f"# note: {note}")
+    lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'peaks':>7}  name  (SMILES)")
+    for e in ranking.entries:
+        if e.error:
+            lines.append(f"{'-':>4}  {'failed':>7}  {'':>7}  {'':>7}  {e.candidate.name}  ({e.candidate.smiles}): {e.error}")
+            continue
+        c = e.comparison
+        peaks = f"{sum(m.matched for m in c.matches)}/{sum(m.measured_cm1 is not None for m in c.matches)}"
+        margin = f"{e.margin_to_next:7.4f}" if e.margin_to_next is not None else f"{'':>7}"
+        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {peaks:>7}  {e.candidate.name}  ({e.candidate.smiles})")
+    lines.append(f"# score: {ranking.score_name}; margin: score minus the next candidate's")
+    lines.append(f"# caution: {CAUTION}")
+    return "\n".join(lines)
+
+
+def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = "measured") -> None:
+    """Measured (top, black) and predicted curves on 4000 -> 400, matched peaks marked, residual below."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    g, m, p = comp.grid_cm1, comp.measured_curve, comp.predicted_curve
+    fig, (ax, axr) = plt.subplots(2, 1, figsize=(10, 5.6), dpi=120, sharex=True,
+                                  gridspec_kw={"height_ratios": [3.2, 1]})
+    ax.plot(g, m, color="black", lw=1.1, label=measured_label)
+    ax.plot(g, p, color="#c55a11", lw=1.1, label=f"predicted {comp.smiles}")
+    for row in comp.matches:
+        if row.matched:
+            ax.plot([row.measured_cm1, row.predicted_cm1], [row.measured_height + 0.04, row.predicted_height + 0.04],
+                    color="#1f4e79", lw=0.8)
+            ax.plot(row.measured_cm1, row.measured_height + 0.04, "v", color="#1f4e79", ms=3)
+        elif row.measured_cm1 is not None:
+            ax.plot(row.measured_cm1, row.measured_height + 0.04, "x", color="#7f7f7f", ms=4)
+    ax.set_ylim(0, 1.15)
+    ax.set_ylabel("absorbance (normalised)")
+    ax.legend(loc="upper left", fontsize=8, frameon=False)
+    ax.set_title(title or f"{comp.score_name} {comp.score:.3f}   (v: matched peak, x: unmatched measured peak)",
+                 fontsize=9)
+    axr.plot(g, m - p, color="#404040", lw=0.8)
+    axr.axhline(0, color="#999999", lw=0.6)
+    axr.set_ylabel("residual")
+    axr.set_xlabel("wavenumber / cm$^{-1}$")
+    axr.set_xlim(4000, 400)
+    fig.text(0.01, 0.005, "Estimate only: confirm with reference standards and validated methods.",
+             fontsize=6.5, color="#7f7f7f")
+    fig.tight_layout(rect=(0, 0.02, 1, 1))
+    fig.savefig(path)
+    plt.close(fig)

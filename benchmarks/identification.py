@@ -1,0 +1,111 @@
+"""Identification benchmark on real measured gas-phase IR spectra (benchmarks/data/measured_set.csv).
+
+For every measured spectrum, all molecules of the set are ranked as candidates, and separately
+only its isomers (same molecular formula). Prints top-1 / top-3 rates, mean rank and the margin
+of the right answer per similarity score and broadening, then one line per molecule for the
+default settings. Predictions are cached in the record cache (--cache).
+
+    python benchmarks/identification.py [--cache DIR] [--fwhm 16 30] [--quick]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections import defaultdict
+from pathlib import Path
+
+import numpy as np
+from rdkit import Chem
+from rdkit.Chem import rdMolDescriptors
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import measured_set  # noqa: E402
+
+from vibest.compare import DEFAULT_SCORE, SCORES, compare  # noqa: E402
+from vibest.measured import load_spectrum  # noqa: E402
+from vibest.predict import CalculationOptions, SpectrumOptions  # noqa: E402
+from vibest.ranking import predict_cached  # noqa: E402
+from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
+from vibest.store import RecordCache  # noqa: E402
+
+
+def formula(smiles: str) -> str:
+    return rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(smiles))
+
+
+def evaluate(entries, spectra, preds, score_name: str, fwhm: float, **compare_kw):
+    """Per measured entry: (rank among all, rank among isomers or None, margin, score, comparison)."""
+    unique = sorted({e.smiles for e in entries})
+    out = []
+    for e in entries:
+        scores = {}
+        comps = {}
+        for smi in unique:
+            c = compare(preds[smi], spectra[e.file], score_name=score_name, fwhm_cm1=fwhm, **compare_kw)
+            scores[smi] = c.score
+            comps[smi] = c
+        order = sorted(unique, key=lambda s: -scores[s])
+        rank = order.index(e.smiles) + 1
+        others = [scores[s] for s in unique if s != e.smiles]
+        margin = scores[e.smiles] - max(others)
+        iso = [s for s in unique if formula(s) == formula(e.smiles)]
+        iso_rank = sorted(iso, key=lambda s: -scores[s]).index(e.smiles) + 1 if len(iso) > 1 else None
+        out.append((e, rank, iso_rank, margin, scores[e.smiles], comps[e.smiles], order[0]))
+    return out
+
+
+def summary(rows) -> str:
+    ranks = np.array([r[1] for r in rows])
+    iso = np.array([r[2] for r in rows if r[2] is not None])
+    margins = np.array([r[3] for r in rows])
+    return (f"top-1 {np.mean(ranks == 1):6.1%}  top-3 {np.mean(ranks <= 3):6.1%}  mean rank {ranks.mean():5.2f}  "
+            f"isomers top-1 {np.mean(iso == 1):6.1%} ({len(iso)})  median margin {np.median(margins):+.3f}")
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--cache", default=None, help="record cache directory")
+    ap.add_argument("--fwhm", type=float, nargs="+", default=[DEFAULT_FWHM_CM1, 30.0])
+    ap.add_argument("--quick", action="store_true", help="default score and first FWHM only")
+    args = ap.parse_args()
+    try:
+        folder = measured_set.fetch()
+    except measured_set.FetchError as exc:
+        print(f"skipped: {exc}")
+        return
+    entries = measured_set.entries()
+    spectra = {e.file: load_spectrum(folder / e.file) for e in entries}
+    cache = RecordCache(args.cache) if args.cache else RecordCache()
+    calc = CalculationOptions()
+    preds = {}
+    for smi in sorted({e.smiles for e in entries}):
+        preds[smi], hit = predict_cached(smi, calc, SpectrumOptions(), cache)
+        print(f"  predicted {smi:<16} {'(cached)' if hit else ''}", file=sys.stderr)
+    groups = defaultdict(list)
+    for e in entries:
+        groups[formula(e.smiles)].append(e.name)
+    print(f"{len(entries)} measured spectra, {len(preds)} distinct candidates; isomer groups: "
+          + "; ".join(f"{f}: {', '.join(n)}" for f, n in groups.items() if len({x for x in n}) > 1))
+    scores = [DEFAULT_SCORE] if args.quick else list(SCORES)
+    widths = args.fwhm[:1] if args.quick else args.fwhm
+    default_rows = None
+    for fwhm in widths:
+        for name in scores:
+            rows = evaluate(entries, spectra, preds, name, fwhm)
+            print(f"{name:<9} FWHM {fwhm:4.0f}: {summary(rows)}")
+            if name == DEFAULT_SCORE and fwhm == widths[0]:
+                default_rows = rows
+    print(f"\nper molecule ({DEFAULT_SCORE}, FWHM {widths[0]:g} cm-1):")
+    print(f"{'molecule':<22} {'rank':>4} {'iso':>4} {'score':>6} {'margin':>7}  {'strongest meas.':>15} {'pred.':>7}  best candidate")
+    for e, rank, iso, margin, sc, comp, best in default_rows:
+        g = comp.grid_cm1
+        meas = g[int(np.argmax(comp.measured_curve))]
+        pred = g[int(np.argmax(comp.predicted_curve))]
+        print(f"{e.name:<22} {rank:>4} {iso if iso else '-':>4} {sc:6.3f} {margin:+7.3f}  {meas:15.0f} {pred:7.0f}  "
+              f"{'' if best == e.smiles else best}")
+
+
+if __name__ == "__main__":
+    main()

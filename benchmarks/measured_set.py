@@ -1,0 +1,83 @@
+"""The measured gas-phase IR spectra of benchmarks/data/measured_set.csv, fetched at run time.
+
+The spectra ship inside the source distribution of the PyPI package ``jcamp`` 1.3.2. Their
+headers declare copyright, so they are never copied into this repository: :func:`fetch` downloads
+the sdist with pip into a cache folder, checks its SHA-256 and unpacks only the files listed.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import os
+import subprocess
+import sys
+import tarfile
+from dataclasses import dataclass
+from pathlib import Path
+
+SDIST = "jcamp-1.3.2.tar.gz"
+SHA256 = "27ce753f5bb2601d3138fc2a4787c0049deb0ab51ce052cb62806bcbd12eddb9"
+MEMBER_DIR = "jcamp-1.3.2/data/infrared_spectra/"
+TABLE = Path(__file__).parent / "data" / "measured_set.csv"
+
+
+@dataclass(frozen=True)
+class MeasuredEntry:
+    file: str
+    name: str
+    cas: str
+    smiles: str
+    origin: str
+
+
+def entries() -> list[MeasuredEntry]:
+    lines = [l for l in TABLE.read_text().splitlines() if l and not l.startswith("#")]
+    return [MeasuredEntry(**row) for row in csv.DictReader(lines)]
+
+
+def cache_dir() -> Path:
+    base = os.environ.get("VIBEST_DATA_CACHE") or os.path.join(os.path.expanduser("~"), ".cache", "vibest", "external")
+    return Path(base)
+
+
+class FetchError(RuntimeError):
+    """The sdist could not be fetched or did not verify (callers skip with this reason)."""
+
+
+def _sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def fetch(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
+    """Folder holding the listed .jdx files (downloading and verifying the sdist once)."""
+    root = directory or cache_dir()
+    out = root / "jcamp-1.3.2-infrared"
+    wanted = [e.file for e in entries()]
+    if all((out / f).exists() for f in wanted):
+        return out
+    root.mkdir(parents=True, exist_ok=True)
+    sdist = root / SDIST
+    if not sdist.exists() or _sha256(sdist) != SHA256:
+        cmd = [sys.executable, "-m", "pip", "download", "--no-deps", "--no-binary", ":all:", "--quiet",
+               "jcamp==1.3.2", "-d", str(root)]
+        try:
+            subprocess.run(cmd, check=True, capture_output=True, timeout=timeout_s)
+        except (subprocess.SubprocessError, OSError) as exc:
+            raise FetchError(f"could not download jcamp==1.3.2 sdist: {exc}") from None
+    if not sdist.exists():
+        raise FetchError("pip did not produce jcamp-1.3.2.tar.gz")
+    digest = _sha256(sdist)
+    if digest != SHA256:
+        raise FetchError(f"jcamp-1.3.2.tar.gz has SHA-256 {digest}, expected {SHA256}")
+    out.mkdir(parents=True, exist_ok=True)
+    with tarfile.open(sdist) as tar:
+        for f in wanted:
+            member = tar.getmember(MEMBER_DIR + f)
+            data = tar.extractfile(member).read()
+            (out / f).write_bytes(data)
+    return out

@@ -1,0 +1,67 @@
+"""Command line for comparison and ranking: outputs, errors, exit codes."""
+
+import json
+from pathlib import Path
+
+import numpy as np
+from click.testing import CliRunner
+
+from vibest.cli import main
+from vibest.spectrum import grid, line_shape_values
+
+from .conftest import prediction_of
+
+
+def _measured_csv(path: Path) -> Path:
+    """Synthetic spectrum from facts of the trade for a ketone (common practice, no source)."""
+    x = grid(450, 3900, 2)
+    y = line_shape_values(x, 1715, 16, "lorentzian") + 0.4 * line_shape_values(x, 1365, 16, "lorentzian")
+    path.write_text("wavenumber,absorbance\n" + "\n".join(f"{a:.1f},{b:.6f}" for a, b in zip(x, y)))
+    return path
+
+
+def test_compare_command_writes_overlay_and_json(tmp_path):
+    m = _measured_csv(tmp_path / "m.csv")
+    res = CliRunner().invoke(main, ["compare", str(m), "CC(C)=O", "-q", "--no-cache", "--plot",
+                                    str(tmp_path / "o.png"), "--json", str(tmp_path / "c.json")])
+    assert res.exit_code == 0, res.output
+    assert "pearson" in res.output and "C=O stretch" in res.output and "caution" in res.output
+    data = json.loads((tmp_path / "c.json").read_text())
+    assert data["peak_matches"] and len(data["grid_cm1"]) == len(data["measured_curve"])
+    assert (tmp_path / "o.png").stat().st_size > 10000
+
+
+def test_rank_command_table_csv_and_plots(tmp_path):
+    m = _measured_csv(tmp_path / "m.csv")
+    cands = tmp_path / "c.txt"
+    cands.write_text("CC(C)=O acetone\nCC(N)C#N aminonitrile\n")
+    res = CliRunner().invoke(main, ["rank", str(m), "--candidates-file", str(cands), "-q", "--cache",
+                                    str(tmp_path / "cache"), "--csv", str(tmp_path / "r.csv"),
+                                    "--plot-dir", str(tmp_path / "plots"), "--top", "2"])
+    assert res.exit_code == 0, res.output
+    lines = [l for l in res.output.splitlines() if l.strip().startswith("1 ")]
+    assert lines and "acetone" in lines[0]
+    rows = (tmp_path / "r.csv").read_text().splitlines()
+    assert rows[1].startswith("rank") and ",acetone," in rows[2]
+    assert sorted(p.name for p in (tmp_path / "plots").iterdir()) == ["rank1.png", "rank2.png"]
+
+
+def test_missing_measured_file_and_no_candidates_exit_2(tmp_path):
+    res = CliRunner().invoke(main, ["rank", str(tmp_path / "none.jdx"), "CC", "-q"])
+    assert res.exit_code == 2 and "no such file" in res.output
+    m = _measured_csv(tmp_path / "m.csv")
+    res = CliRunner().invoke(main, ["rank", str(m), "-q"])
+    assert res.exit_code == 2 and "candidate" in res.output
+
+
+def test_predict_writes_jcamp_that_reads_back(tmp_path):
+    from vibest.measured import load_spectrum
+
+    out = tmp_path / "p.jdx"
+    res = CliRunner().invoke(main, ["predict", "O", "-q", "--jcamp", str(out)])
+    assert res.exit_code == 0, res.output
+    spec = load_spectrum(out)
+    pred = prediction_of("O").spectrum
+    assert spec.kind == "absorbance"
+    np.testing.assert_allclose(spec.wavenumbers_cm1, pred.wavenumbers_cm1, atol=1e-6)
+    np.testing.assert_allclose(spec.values, pred.absorbance_normalised, atol=1e-6)

@@ -1,0 +1,129 @@
+"""Scores, scale/shift fit, peak matching and ranking."""
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from vibest.compare import compare, match_peaks, Peak, predicted_curve, score, SCORES
+from vibest.measured import ABSORBANCE, MeasuredSpectrum, load_spectrum
+from vibest.ranking import Candidate, rank_candidates, read_candidates
+from vibest.spectrum import grid, line_shape_values
+from vibest.store import RecordCache
+
+from .conftest import prediction_of
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+
+
+def lorentz(x, c, w=16.0):
+    return line_shape_values(x, c, w, "lorentzian")
+
+
+@pytest.mark.parametrize("name", SCORES)
+def test_identical_spectra_score_one(name):
+    x = grid(500, 3800, 2)
+    a = lorentz(x, 1700) + 0.5 * lorentz(x, 2950)
+    assert score(a, a, name) == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("name", SCORES)
+def test_shifted_lorentzians_order(name):
+    """Two Lorentzians: the smaller the shift, the higher every score (analytic case)."""
+    x = grid(500, 3800, 1)
+    a = lorentz(x, 1700)
+    values = [score(a, lorentz(x, 1700 + d), name) for d in (0, 5, 15, 40, 120)]
+    assert all(v1 > v2 for v1, v2 in zip(values, values[1:]))
+
+
+def _synthetic_measured(pred, factor, shift=0.0):
+    x = grid(450, 3900, 1)
+    y = predicted_curve(pred, x, extra_scale=factor, shift_cm1=shift)
+    return MeasuredSpectrum(x, y, ABSORBANCE, "synthetic")
+
+
+def test_scale_fit_recovers_known_factor():
+    pred = prediction_of("CC(C)=O")
+    comp = compare(pred, _synthetic_measured(pred, 0.975), fit_scale=True)
+    assert comp.extra_scale == pytest.approx(0.975, abs=5e-4)
+    assert comp.score == pytest.approx(1.0, abs=1e-3)
+    plain = compare(pred, _synthetic_measured(pred, 0.975))
+    assert plain.score < comp.score
+
+
+def test_shift_fit_recovers_known_shift():
+    pred = prediction_of("CC(C)=O")
+    comp = compare(pred, _synthetic_measured(pred, 1.0, shift=-12.0), fit_shift=True)
+    assert comp.shift_cm1 == pytest.approx(-12.0, abs=0.3)
+
+
+def test_peak_matching_is_one_to_one_within_tolerance():
+    m = [Peak(1715, 1.0), Peak(1365, 0.4), Peak(1220, 0.5), Peak(800, 0.1)]
+    p = [Peak(1730, 1.0), Peak(1380, 0.3), Peak(1200, 0.6), Peak(2250, 0.2)]
+    pairs = match_peaks(m, p, tolerance_cm1=40)
+    matched = {(a.wavenumber_cm1, b.wavenumber_cm1) for a, b in pairs if a and b}
+    assert matched == {(1715, 1730), (1365, 1380), (1220, 1200)}
+    assert sum(1 for a, b in pairs if a and not b) == 1 and sum(1 for a, b in pairs if b and not a) == 1
+
+
+def test_peak_table_names_the_carbonyl():
+    pred = prediction_of("CC(C)=O")
+    comp = compare(pred, _synthetic_measured(pred, 1.0))
+    strongest = max((r for r in comp.matches if r.matched), key=lambda r: r.measured_height)
+    assert "C=O stretch" in strongest.character and strongest.shift_cm1 == pytest.approx(0, abs=2.5)
+
+
+def test_ranking_from_trade_facts(tmp_path):
+    """A 'measured' spectrum built from facts of the trade (common practice, no source): a strong
+    band at 1715 cm^-1 (ketone C=O), medium 1365 and 1220 (CH3 bend, C-C-C stretch of acetone),
+    weak C-H near 2970, and nothing near 2250 (no nitrile). The ketone must rank first."""
+    x = grid(450, 3900, 1)
+    y = (lorentz(x, 1715) + 0.35 * lorentz(x, 1365) + 0.45 * lorentz(x, 1220) + 0.08 * lorentz(x, 2970, 30))
+    measured = MeasuredSpectrum(x, y, ABSORBANCE, "trade-facts acetone")
+    cands = [Candidate("2-aminopropanenitrile", "CC(N)C#N"), Candidate("acetone", "CC(C)=O"),
+             Candidate("allyl alcohol", "C=CCO")]
+    cache = RecordCache(tmp_path / "cache")
+    ranking = rank_candidates(measured, cands, cache=cache)
+    assert ranking.entries[0].candidate.name == "acetone"
+    assert ranking.entries[0].margin_to_next > 0
+    again = rank_candidates(measured, cands, cache=cache)
+    assert all(e.from_cache for e in again.entries)
+    assert [e.candidate.name for e in again.entries] == [e.candidate.name for e in ranking.entries]
+
+
+def test_failed_candidate_is_listed_not_fatal():
+    x = grid(450, 3900, 1)
+    measured = MeasuredSpectrum(x, lorentz(x, 1715), ABSORBANCE, "one band")
+    ranking = rank_candidates(measured, [Candidate("bad", "C1CC"), Candidate("acetone", "CC(C)=O")])
+    assert ranking.entries[0].candidate.name == "acetone"
+    assert ranking.entries[-1].error and "invalid SMILES" in ranking.entries[-1].error
+
+
+def test_candidates_file_forms(tmp_path):
+    a = tmp_path / "a.txt"
+    a.write_text("# candidates\nCC(C)=O acetone\nCCC=O\n")
+    assert [c.name for c in read_candidates(a)] == ["acetone", "CCC=O"]
+    b = tmp_path / "b.csv"
+    b.write_text("name,smiles\nacetone,CC(C)=O\npropanal,CCC=O\n")
+    assert [c.smiles for c in read_candidates(b)] == ["CC(C)=O", "CCC=O"]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("file,right,others", [
+    # Real gas-phase spectra, ##ORIGIN=DOW CHEMICAL COMPANY, files in data/infrared_spectra/ of the
+    # sdist of the PyPI package jcamp 1.3.2 (fetched at test time, never stored in this repository).
+    ("chlorobenzene.jdx", "Clc1ccccc1", ["c1ccccc1", "Cc1ccccc1", "C=CCl", "ClCCCl"]),
+    ("carbon dioxide.jdx", "O=C=O", ["[C-]#[O+]", "O=S=O", "O", "C"]),
+])
+def test_ranking_against_real_measured_spectra(file, right, others):
+    import measured_set
+
+    try:
+        folder = measured_set.fetch()
+    except measured_set.FetchError as exc:
+        pytest.skip(f"measured spectra not available: {exc}")
+    measured = load_spectrum(folder / file)
+    ranking = rank_candidates(measured, [Candidate(s, s) for s in [right] + others])
+    assert ranking.entries[0].candidate.smiles == right, [(e.candidate.name, e.score) for e in ranking.entries]
+    assert ranking.entries[0].margin_to_next > 0.05

@@ -1,0 +1,242 @@
+"""Comparison of a predicted with a measured spectrum: scores, scale/shift fit, peak matching.
+
+Both spectra are brought to absorbance on one grid (default 500-3800 cm^-1, 2 cm^-1 steps),
+clipped at zero and scaled to a maximum of 1. Scores (all 1 for identical spectra):
+
+* ``pearson``: Pearson correlation coefficient of the two curves (insensitive to offsets and scale).
+* ``spearman``: Spearman rank correlation (Pearson of the ranks; robust to non-linear intensity errors).
+* ``cosine``: a.b / (|a| |b|), the cosine of the angle between the curves as vectors.
+* ``overlap``: sum(min(a, b)) / sum(max(a, b)) after scaling each curve to unit area
+  (weighted Jaccard / Ruzicka similarity): the shared fraction of band area, 0 to 1.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import optimize, signal, stats
+
+from .errors import InputError
+from .measured import MeasuredSpectrum, preprocess
+from .predict import Prediction
+from .spectrum import broaden, grid, line_shape_values
+
+SCORES = ("pearson", "spearman", "cosine", "overlap")
+DEFAULT_SCORE = "pearson"
+DEFAULT_COMPARE_RANGE_CM1 = (500.0, 3800.0)
+DEFAULT_COMPARE_STEP_CM1 = 2.0
+DEFAULT_MATCH_TOLERANCE_CM1 = 40.0
+
+
+def score(a, b, name: str = DEFAULT_SCORE) -> float:
+    """Similarity of two curves on the same grid (see module docstring)."""
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    if a.shape != b.shape:
+        raise ValueError("curves must share one grid")
+    if name == "pearson":
+        if a.std() == 0 or b.std() == 0:
+            return 0.0
+        return float(np.corrcoef(a, b)[0, 1])
+    if name == "spearman":
+        if a.std() == 0 or b.std() == 0:
+            return 0.0
+        return float(stats.spearmanr(a, b).statistic)
+    if name == "cosine":
+        na, nb = np.linalg.norm(a), np.linalg.norm(b)
+        return float(a @ b / (na * nb)) if na > 0 and nb > 0 else 0.0
+    if name == "overlap":
+        sa, sb = a.clip(0).sum(), b.clip(0).sum()
+        if sa <= 0 or sb <= 0:
+            return 0.0
+        pa, pb = a.clip(0) / sa, b.clip(0) / sb
+        return float(np.minimum(pa, pb).sum() / np.maximum(pa, pb).sum())
+    raise InputError(f"unknown score {name!r}; choose one of {', '.join(SCORES)}")
+
+
+def all_scores(a, b) -> dict[str, float]:
+    return {n: score(a, b, n) for n in SCORES}
+
+
+@dataclass(frozen=True)
+class Peak:
+    """A picked peak: position (cm^-1) and height (normalised absorbance)."""
+
+    wavenumber_cm1: float
+    height: float
+
+
+@dataclass(frozen=True)
+class PeakMatch:
+    """A row of the peak-match table; a side is None when unmatched."""
+
+    measured_cm1: float | None
+    measured_height: float | None
+    predicted_cm1: float | None
+    predicted_height: float | None
+    character: str
+
+    @property
+    def shift_cm1(self) -> float | None:
+        if self.measured_cm1 is None or self.predicted_cm1 is None:
+            return None
+        return self.predicted_cm1 - self.measured_cm1
+
+    @property
+    def matched(self) -> bool:
+        return self.measured_cm1 is not None and self.predicted_cm1 is not None
+
+    def to_dict(self) -> dict:
+        return {"measured_cm1": self.measured_cm1, "measured_height": self.measured_height,
+                "predicted_cm1": self.predicted_cm1, "predicted_height": self.predicted_height,
+                "shift_cm1": self.shift_cm1, "matched": self.matched, "character": self.character}
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Result of comparing one prediction with one measured spectrum.
+
+    Attributes:
+        score_name, score: the chosen similarity and its value.
+        scores: every similarity at the final alignment.
+        extra_scale: factor applied on top of the prediction's scaling (1 unless fitted).
+        shift_cm1: shift applied to predicted wavenumbers (0 unless fitted).
+        grid_cm1, measured_curve, predicted_curve: the two processed curves.
+        matches: peak-match table, highest measured wavenumber first.
+    """
+
+    smiles: str
+    score_name: str
+    score: float
+    scores: dict[str, float]
+    extra_scale: float
+    shift_cm1: float
+    grid_cm1: np.ndarray
+    measured_curve: np.ndarray
+    predicted_curve: np.ndarray
+    matches: tuple[PeakMatch, ...]
+    settings: dict = field(default_factory=dict)
+
+    def to_dict(self, include_curves: bool = False) -> dict:
+        d = {"smiles": self.smiles, "score_name": self.score_name, "score": self.score, "scores": self.scores,
+             "extra_scale": self.extra_scale, "shift_cm1": self.shift_cm1, "settings": self.settings,
+             "peak_matches": [m.to_dict() for m in self.matches]}
+        if include_curves:
+            d["grid_cm1"] = self.grid_cm1.tolist()
+            d["measured_curve"] = self.measured_curve.tolist()
+            d["predicted_curve"] = self.predicted_curve.tolist()
+        return d
+
+
+def predicted_curve(pred: Prediction, grid_cm1, extra_scale: float = 1.0, shift_cm1: float = 0.0,
+                    fwhm_cm1: float | None = None, line_shape: str | None = None) -> np.ndarray:
+    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift, max 1."""
+    s = broaden(pred.wavenumbers_cm1 * extra_scale + shift_cm1, pred.intensities_km_mol,
+                fwhm_cm1 or pred.spectrum.fwhm_cm1, line_shape or pred.spectrum.line_shape, grid_cm1)
+    y = s.absorption_km_mol_cm1
+    return y / y.max() if y.max() > 0 else y
+
+
+def pick_peaks(x, y, prominence: float = 0.03, min_separation_cm1: float = 8.0) -> list[Peak]:
+    """Local maxima with at least ``prominence`` (fraction of the curve maximum), scipy.signal.find_peaks."""
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    if len(x) < 3 or y.max() <= 0:
+        return []
+    step = abs(x[1] - x[0])
+    idx, _ = signal.find_peaks(y, prominence=prominence * y.max(), distance=max(1, int(min_separation_cm1 / step)))
+    return [Peak(float(x[i]), float(y[i])) for i in idx]
+
+
+def _band_character(pred: Prediction, position: float, extra_scale: float, shift: float, fwhm: float,
+                    shape: str) -> str:
+    nu = pred.wavenumbers_cm1 * extra_scale + shift
+    contrib = pred.intensities_km_mol * line_shape_values(nu, position, fwhm, shape)
+    if contrib.max() <= 0:
+        return ""
+    return pred.bands[int(np.argmax(contrib))].character
+
+
+def match_peaks(measured: list[Peak], predicted: list[Peak], tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1
+                ) -> list[tuple[Peak | None, Peak | None]]:
+    """One-to-one assignment minimising total |shift| (Hungarian method, scipy linear_sum_assignment);
+    pairs farther apart than ``tolerance_cm1`` stay unmatched."""
+    pairs: list[tuple[Peak | None, Peak | None]] = []
+    used_m, used_p = set(), set()
+    if measured and predicted:
+        cost = np.abs(np.subtract.outer([m.wavenumber_cm1 for m in measured], [p.wavenumber_cm1 for p in predicted]))
+        big = 1e6
+        rows, cols = optimize.linear_sum_assignment(np.where(cost <= tolerance_cm1, cost, big))
+        for r, c in zip(rows, cols):
+            if cost[r, c] <= tolerance_cm1:
+                pairs.append((measured[r], predicted[c]))
+                used_m.add(r)
+                used_p.add(c)
+    pairs += [(m, None) for k, m in enumerate(measured) if k not in used_m]
+    pairs += [(None, p) for k, p in enumerate(predicted) if k not in used_p]
+    return sorted(pairs, key=lambda mp: -(mp[0] or mp[1]).wavenumber_cm1)
+
+
+def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = DEFAULT_SCORE,
+            range_cm1: tuple[float, float] = DEFAULT_COMPARE_RANGE_CM1, step_cm1: float = DEFAULT_COMPARE_STEP_CM1,
+            fit_scale: bool = False, scale_bounds: tuple[float, float] = (0.95, 1.05),
+            fit_shift: bool = False, shift_bounds_cm1: tuple[float, float] = (-40.0, 40.0),
+            fwhm_cm1: float | None = None, line_shape: str | None = None, baseline: bool = False,
+            tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1, prominence: float = 0.03) -> Comparison:
+    """Score a prediction against a measured spectrum, optionally fitting a scale factor and/or shift.
+
+    The fit maximises the chosen score within the bounds: a coarse grid, then a bounded
+    refinement (scipy.optimize.minimize_scalar or Powell for both). The fitted values are
+    reported in the result; the prediction itself is not changed.
+    """
+    if score_name not in SCORES:
+        raise InputError(f"unknown score {score_name!r}; choose one of {', '.join(SCORES)}")
+    lo, hi = range_cm1
+    mlo, mhi = measured.range_cm1
+    lo, hi = max(lo, mlo), min(hi, mhi)
+    if hi - lo < 50:
+        raise InputError(f"{measured.source}: the measured range {mlo:.0f}-{mhi:.0f} cm^-1 does not overlap "
+                         f"the comparison range {range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1")
+    g = grid(lo, hi, step_cm1)
+    m_curve = preprocess(measured, g, baseline=baseline)
+    fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
+    shape = line_shape or pred.spectrum.line_shape
+
+    def value(f, s):
+        return score(m_curve, predicted_curve(pred, g, f, s, fwhm, shape), score_name)
+
+    f_best, s_best = 1.0, 0.0
+    if fit_scale and fit_shift:
+        fs = np.linspace(*scale_bounds, 11)
+        ss = np.linspace(*shift_bounds_cm1, 9)
+        vals = np.array([[value(f, s) for s in ss] for f in fs])
+        i, j = np.unravel_index(np.argmax(vals), vals.shape)
+        res = optimize.minimize(lambda p: -value(p[0], p[1]), x0=[fs[i], ss[j]], method="Powell",
+                                bounds=[scale_bounds, shift_bounds_cm1], options={"xtol": 1e-4, "ftol": 1e-6})
+        f_best, s_best = (float(res.x[0]), float(res.x[1])) if -res.fun >= vals[i, j] else (fs[i], ss[j])
+    elif fit_scale or fit_shift:
+        bounds = scale_bounds if fit_scale else shift_bounds_cm1
+        pts = np.linspace(*bounds, 41)
+        fun = (lambda v: value(v, 0.0)) if fit_scale else (lambda v: value(1.0, v))
+        vals = [fun(v) for v in pts]
+        k = int(np.argmax(vals))
+        a, b = pts[max(k - 1, 0)], pts[min(k + 1, len(pts) - 1)]
+        res = optimize.minimize_scalar(lambda v: -fun(v), bounds=(a, b), method="bounded",
+                                       options={"xatol": 1e-5 if fit_scale else 1e-2})
+        best = float(res.x) if -res.fun >= vals[k] else float(pts[k])
+        f_best, s_best = (best, 0.0) if fit_scale else (1.0, best)
+    p_curve = predicted_curve(pred, g, f_best, s_best, fwhm, shape)
+    m_peaks = pick_peaks(g, m_curve, prominence)
+    p_peaks = pick_peaks(g, p_curve, prominence)
+    rows = []
+    for m, p in match_peaks(m_peaks, p_peaks, tolerance_cm1):
+        char = _band_character(pred, p.wavenumber_cm1, f_best, s_best, fwhm, shape) if p else ""
+        rows.append(PeakMatch(m.wavenumber_cm1 if m else None, m.height if m else None,
+                              p.wavenumber_cm1 if p else None, p.height if p else None, char))
+    scores = all_scores(m_curve, p_curve)
+    settings = {"range_cm1": [lo, hi], "step_cm1": step_cm1, "fwhm_cm1": fwhm, "line_shape": shape,
+                "baseline": baseline, "fit_scale": fit_scale, "fit_shift": fit_shift,
+                "tolerance_cm1": tolerance_cm1, "prominence": prominence}
+    return Comparison(pred.smiles, score_name, scores[score_name], scores, f_best, s_best, g, m_curve, p_curve,
+                      tuple(rows), settings)

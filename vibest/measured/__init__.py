@@ -1,0 +1,190 @@
+"""Measured spectra: reading (JCAMP-DX, CSV/TSV), units, conversions and preprocessing.
+
+Every reader returns a :class:`MeasuredSpectrum` on an ascending wavenumber axis (cm^-1) whose
+values are absorbance (decadic, A = -log10 T) or transmittance (fraction 0-1), with notes that
+say what was converted or guessed.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError
+from .delimited import read_delimited
+from .jcamp import read_jcamp
+
+ABSORBANCE, TRANSMITTANCE = "absorbance", "transmittance"
+#: Transmittance below this is clipped before taking -log10 (A at most 4).
+MIN_TRANSMITTANCE = 1e-4
+
+
+@dataclass(frozen=True)
+class MeasuredSpectrum:
+    """A measured spectrum.
+
+    Attributes:
+        wavenumbers_cm1: ascending axis, cm^-1.
+        values: absorbance (decadic) or transmittance (fraction 0-1), per ``kind``.
+        kind: "absorbance" or "transmittance".
+        source: file name or description.
+        title: the file's title, if any.
+        notes: conversions and guesses made while reading.
+    """
+
+    wavenumbers_cm1: np.ndarray
+    values: np.ndarray
+    kind: str
+    source: str = ""
+    title: str = ""
+    notes: tuple[str, ...] = ()
+
+    def with_note(self, note: str) -> "MeasuredSpectrum":
+        return dataclasses.replace(self, notes=self.notes + (note,))
+
+    def absorbance(self) -> "MeasuredSpectrum":
+        """As absorbance: A = -log10(T), T clipped to at least 1e-4 (A <= 4)."""
+        if self.kind == ABSORBANCE:
+            return self
+        t = np.clip(self.values, MIN_TRANSMITTANCE, None)
+        return dataclasses.replace(self, values=-np.log10(t), kind=ABSORBANCE,
+                                   notes=self.notes + ("converted transmittance to absorbance, A = -log10 T",))
+
+    def resampled(self, grid_cm1) -> np.ndarray:
+        """Values linearly interpolated on ``grid_cm1`` (zero outside the measured range)."""
+        return np.interp(np.asarray(grid_cm1, float), self.wavenumbers_cm1, self.values, left=0.0, right=0.0)
+
+    @property
+    def range_cm1(self) -> tuple[float, float]:
+        return float(self.wavenumbers_cm1[0]), float(self.wavenumbers_cm1[-1])
+
+
+def rubber_band_baseline(x, y) -> np.ndarray:
+    """Lower convex hull of the points (x, y) ("rubber band"), interpolated at x.
+
+    A robust, parameter-free baseline for absorbance: it touches the spectrum only at points where
+    a band-free stretch reaches down, and never rises above the data.
+    """
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    hull: list[int] = []
+    for k in range(len(x)):  # Andrew's monotone chain, lower part
+        while len(hull) >= 2:
+            i, j = hull[-2], hull[-1]
+            if (x[j] - x[i]) * (y[k] - y[i]) - (y[j] - y[i]) * (x[k] - x[i]) <= 0:
+                hull.pop()
+            else:
+                break
+        hull.append(k)
+    return np.interp(x, x[hull], y[hull])
+
+
+def preprocess(spec: MeasuredSpectrum, grid_cm1, baseline: bool = False, normalise: bool = True) -> np.ndarray:
+    """Absorbance on ``grid_cm1``: converted, optionally baseline-corrected, scaled to max 1."""
+    a = spec.absorbance()
+    x, y = a.wavenumbers_cm1, a.values.copy()
+    if baseline:
+        y = y - rubber_band_baseline(x, y)
+    out = np.interp(np.asarray(grid_cm1, float), x, y, left=0.0, right=0.0)
+    out = np.clip(out, 0.0, None)
+    if normalise and out.max() > 0:
+        out = out / out.max()
+    return out
+
+
+def _classify_yunits(units: str, values: np.ndarray, path: str) -> tuple[np.ndarray, str, list[str]]:
+    u = units.strip().upper()
+    notes: list[str] = []
+    if "TRANSMIT" in u or u in ("%T", "T"):
+        if "%" in u or "PERCENT" in u or np.nanmax(values) > 1.5:
+            values = values / 100.0
+            notes.append("transmittance given in percent: divided by 100")
+        return values, TRANSMITTANCE, notes
+    if "ABSORBANCE" in u or u == "A":
+        return values, ABSORBANCE, notes
+    if ("ABSORPTION" in u or "ABSORPTIVITY" in u or "COEFFICIENT" in u or "EXTINCTION" in u
+            or "BASE 10" in u or re.search(r"\)\s*-1", u)):
+        notes.append(f"Y units {units.strip()!r} read as absorbance (absorbance-like, base 10)")
+        return values, ABSORBANCE, notes
+    raise InputError(f"{path}: Y units {units.strip()!r} are not transmittance or absorbance")
+
+
+def _x_to_cm1(x: np.ndarray, units: str, path: str) -> tuple[np.ndarray, list[str]]:
+    u = units.strip().upper()
+    if u in ("1/CM", "CM-1", "CM^-1", "1/CM-1", "WAVENUMBERS", "WAVENUMBER"):
+        return x, []
+    if u in ("MICROMETERS", "MICRONS", "UM", "MICROMETER"):
+        if np.any(x <= 0):
+            raise InputError(f"{path}: micrometre X values must be positive")
+        return 1e4 / x, ["X converted from micrometres to cm^-1 (1e4 / x)"]
+    if u in ("NANOMETERS", "NM"):
+        if np.any(x <= 0):
+            raise InputError(f"{path}: nanometre X values must be positive")
+        return 1e7 / x, ["X converted from nanometres to cm^-1 (1e7 / x)"]
+    raise InputError(f"{path}: X units {units.strip()!r} are not 1/CM or MICROMETERS")
+
+
+def finish(x, y, kind: str, source: str, title: str = "", notes=()) -> MeasuredSpectrum:
+    """Check values, sort ascending, drop exact duplicates; raise InputError naming the file."""
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    if len(x) < 3:
+        raise InputError(f"{source}: fewer than 3 data points")
+    bad = ~np.isfinite(x) | ~np.isfinite(y)
+    if bad.any():
+        raise InputError(f"{source}: {int(bad.sum())} value(s) are missing or not numbers (first at point {int(np.argmax(bad)) + 1})")
+    d = np.diff(x)
+    if not (np.all(d > 0) or np.all(d < 0)):
+        raise InputError(f"{source}: X values are not monotonic (first break at point {int(np.argmax(d * np.sign(d[0]) <= 0)) + 2})")
+    order = np.argsort(x)
+    return MeasuredSpectrum(x[order], y[order], kind, source, title, tuple(notes))
+
+
+def load_spectrum(path: str | Path, kind: str | None = None, block: int | None = None) -> MeasuredSpectrum:
+    """Read a measured spectrum from JCAMP-DX (.jdx, .dx, .jcamp) or CSV/TSV/TXT.
+
+    Args:
+        kind: "absorbance" or "transmittance" to state what Y is (CSV); None to use the file's
+            units (JCAMP-DX) or to guess (CSV, with a note saying so).
+        block: which spectrum of a multi-block JCAMP-DX file (1-based).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"{path}: no such file")
+    if kind not in (None, ABSORBANCE, TRANSMITTANCE):
+        raise InputError(f"kind must be {ABSORBANCE!r} or {TRANSMITTANCE!r}, not {kind!r}")
+    suffix = p.suffix.lower()
+    if suffix in (".jdx", ".dx", ".jcamp", ".jcm"):
+        blk = read_jcamp(p, block=block)
+        x, xnotes = _x_to_cm1(blk.x, blk.labels.get("XUNITS", "1/CM"), str(path))
+        y = blk.y
+        if kind is None:
+            y, kind, ynotes = _classify_yunits(blk.labels.get("YUNITS", ""), y, str(path))
+        else:
+            ynotes = [f"Y taken as {kind} as requested"]
+        return finish(x, y, kind, str(path), blk.title(), xnotes + ynotes)
+    x, y, notes = read_delimited(p)
+    if kind is None:
+        kind, guess = guess_kind(y)
+        notes.append(guess)
+    if kind == TRANSMITTANCE and np.nanmax(y) > 1.5:
+        y = y / 100.0
+        notes.append("transmittance given in percent: divided by 100")
+    return finish(x, y, kind, str(path), p.stem, notes)
+
+
+def guess_kind(y) -> tuple[str, str]:
+    """Guess absorbance or transmittance from the values; the note says it was a guess.
+
+    Transmittance spectra sit near their maximum (100 % or 1) most of the time, with bands
+    dipping down; absorbance spectra sit near zero with bands rising (common practice, no source).
+    """
+    y = np.asarray(y, float)
+    lo, hi, med = np.nanmin(y), np.nanmax(y), np.nanmedian(y)
+    if hi > 0 and (med - lo) > 0.5 * (hi - lo) and lo >= -0.05 * hi:
+        return TRANSMITTANCE, "Y not stated: guessed transmittance (values sit near their maximum); say --y-kind to be sure"
+    return ABSORBANCE, "Y not stated: guessed absorbance (values sit near zero); say --y-kind to be sure"

@@ -1,0 +1,143 @@
+"""Ranking candidate structures against one measured spectrum."""
+
+from __future__ import annotations
+
+import csv
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable
+
+from .compare import DEFAULT_SCORE, Comparison, compare
+from .errors import InputError, VibestError
+from .measured import MeasuredSpectrum
+from .predict import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record
+from .store import RecordCache
+from .structure import build_molecule
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A candidate structure: display name and SMILES."""
+
+    name: str
+    smiles: str
+
+
+@dataclass(frozen=True)
+class RankedCandidate:
+    """One row of a ranking. ``error`` is set (and score None) when the candidate could not be predicted."""
+
+    rank: int | None
+    candidate: Candidate
+    score: float | None
+    margin_to_next: float | None
+    comparison: Comparison | None
+    prediction: Prediction | None
+    error: str | None = None
+    from_cache: bool = False
+
+    def to_dict(self) -> dict:
+        d = {"rank": self.rank, "name": self.candidate.name, "smiles": self.candidate.smiles, "score": self.score,
+             "margin_to_next": self.margin_to_next, "error": self.error, "from_cache": self.from_cache}
+        if self.comparison is not None:
+            d["comparison"] = self.comparison.to_dict()
+        return d
+
+
+@dataclass(frozen=True)
+class Ranking:
+    measured: MeasuredSpectrum
+    score_name: str
+    entries: tuple[RankedCandidate, ...]
+
+    def to_dict(self) -> dict:
+        return {"caution": CAUTION, "measured": self.measured.source, "measured_notes": list(self.measured.notes),
+                "score": self.score_name, "candidates": [e.to_dict() for e in self.entries]}
+
+    def write_csv(self, path: str | Path) -> None:
+        with open(path, "w", newline="") as fh:
+            fh.write(f"# {CAUTION}\n")
+            w = csv.writer(fh)
+            w.writerow(["rank", "name", "smiles", "score", "margin_to_next", "pearson", "spearman", "cosine",
+                        "overlap", "matched_peaks", "measured_peaks", "error"])
+            for e in self.entries:
+                c = e.comparison
+                s = c.scores if c else {}
+                n_match = sum(m.matched for m in c.matches) if c else ""
+                n_meas = sum(m.measured_cm1 is not None for m in c.matches) if c else ""
+                w.writerow([e.rank or "", e.candidate.name, e.candidate.smiles,
+                            "" if e.score is None else f"{e.score:.4f}",
+                            "" if e.margin_to_next is None else f"{e.margin_to_next:.4f}",
+                            *(f"{s[k]:.4f}" if k in s else "" for k in ("pearson", "spearman", "cosine", "overlap")),
+                            n_match, n_meas, e.error or ""])
+
+
+def read_candidates(path: str | Path) -> list[Candidate]:
+    """Candidates from a file: one per line as ``SMILES [name]``, or CSV with 'smiles' (and 'name') columns."""
+    p = Path(path)
+    try:
+        text = p.read_text()
+    except OSError as exc:
+        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
+    lines = [l for l in text.splitlines() if l.strip() and not l.lstrip().startswith("#")]
+    if not lines:
+        raise InputError(f"{path}: no candidates in the file")
+    out: list[Candidate] = []
+    header = [h.strip().lower() for h in lines[0].split(",")]
+    if "smiles" in header:
+        for k, row in enumerate(csv.DictReader(lines), start=2):
+            row = {(key or "").strip().lower(): (v or "").strip() for key, v in row.items()}
+            if not row.get("smiles"):
+                raise InputError(f"{path}:{k}: empty smiles")
+            out.append(Candidate(row.get("name") or row["smiles"], row["smiles"]))
+        return out
+    for line in lines:
+        parts = line.split(None, 1)
+        out.append(Candidate(parts[1].strip() if len(parts) > 1 else parts[0], parts[0]))
+    return out
+
+
+def predict_cached(smiles: str, calc: CalculationOptions, spec: SpectrumOptions, cache: RecordCache | None,
+                   progress=None) -> tuple[Prediction, bool]:
+    """Prediction of ``smiles``, computing the record only when the cache has none."""
+    record = cache.get(smiles, calc) if cache else None
+    hit = record is not None
+    notes: tuple[str, ...] = ()
+    if record is None:
+        mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
+        record, _, n = compute_record(mol, calc, progress)
+        notes = tuple(mol.notes) + tuple(n)
+        if cache:
+            cache.put(smiles, calc, record)
+    return analyse(record, spec, notes=notes), hit
+
+
+def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
+                    calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
+                    cache: RecordCache | None = None, score_name: str = DEFAULT_SCORE,
+                    progress: Callable[[int, int, str], None] | None = None, **compare_options) -> Ranking:
+    """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
+
+    A candidate that cannot be predicted is listed last with its error; it never stops the ranking.
+    ``compare_options`` go to :func:`vibest.compare.compare` (range_cm1, fit_scale, baseline, ...).
+    """
+    if not candidates:
+        raise InputError("no candidate structures given")
+    scored, failed = [], []
+    for k, cand in enumerate(candidates):
+        if progress:
+            progress(k, len(candidates), cand.name)
+        try:
+            pred, hit = predict_cached(cand.smiles, calc, spec, cache)
+            comp = compare(pred, measured, score_name=score_name, **compare_options)
+            scored.append((cand, pred, comp, hit))
+        except VibestError as exc:
+            failed.append(RankedCandidate(None, cand, None, None, None, None, str(exc)))
+    if progress:
+        progress(len(candidates), len(candidates), "")
+    scored.sort(key=lambda t: -t[2].score)
+    entries = []
+    for i, (cand, pred, comp, hit) in enumerate(scored):
+        margin = comp.score - scored[i + 1][2].score if i + 1 < len(scored) else None
+        entries.append(RankedCandidate(i + 1, cand, comp.score, margin, comp, pred, None, hit))
+    return Ranking(measured, score_name, tuple(entries + failed))
