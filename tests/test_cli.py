@@ -43,3 +43,10 @@ def test_predict_writes_outputs(tmp_path):
     assert files["png"].stat().st_size > 10000
     assert run("predict", "O", "-q", "--plot", str(files["svg"]), "--transmittance").exit_code == 0
     assert files["svg"].read_text().lstrip().startswith("<?xml")
+
+
+def test_predict_isotope_and_thermo_output():
+    res = run("predict", "Cl", "-q", "--isotope", "D-all", "--thermo", "--quasi-harmonic")
+    assert res.exit_code == 0, res.output
+    assert "isotopologue D-all" in res.output and "Gibbs energy" in res.output
+    assert run("predict", "Cl", "-q", "--isotope", "13C").exit_code == 2  # no carbon in HCl

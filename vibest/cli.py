@@ -184,14 +184,23 @@ def main() -> None:
 @calculation_options
 @spectrum_options
 @click.option("--min-intensity", type=float, default=0.0, help="Hide bands weaker than this (km/mol) in the table.")
+@click.option("--isotope", "isotopes", multiple=True, metavar="SPEC",
+              help="Also show band shifts of an isotopologue: D (exchangeable H), D-all, 13C@3, 18O ... (repeatable).")
+@click.option("--thermo", is_flag=True, help="Print ZPE, enthalpy, entropy and Gibbs energy.")
+@click.option("--temperature", type=float, default=298.15, show_default=True, help="Temperature for --thermo, K.")
+@click.option("--pressure", type=float, default=101325.0, show_default=True, help="Pressure for --thermo, Pa.")
+@click.option("--quasi-harmonic", is_flag=True, help="Grimme's quasi-RRHO entropy for low modes (--thermo).")
+@click.option("--symmetry-number", type=click.IntRange(min=1), default=None,
+              help="Rotational symmetry number for --thermo [from the structure].")
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
                     range_cm1, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model, fwhm,
-                    line_shape, min_intensity, verbose, quiet) -> None:
+                    line_shape, min_intensity, isotopes, thermo, temperature, pressure, quasi_harmonic,
+                    symmetry_number, verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
-    from .predict import predict
+    from .predict import isotopologue, predict, prediction_thermochemistry
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
@@ -203,6 +212,12 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                        workers=workers, backend=backend, solvent=solvent, progress=progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
+        for spec in isotopes:
+            _, shifts = isotopologue(pred, spec)
+            click.echo(output.isotope_table(spec, shifts))
+        if thermo:
+            click.echo(output.thermo_summary(prediction_thermochemistry(
+                pred, temperature, pressure, symmetry_number, quasi_harmonic)))
         writers = [(csv_path, output.write_spectrum_csv), (jcamp_path, output.write_spectrum_jcamp),
                    (bands_csv, output.write_bands_csv), (json_path, output.write_json),
                    (record_path, lambda pr, p: pr.record.save(p)),

@@ -27,14 +27,15 @@ def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bo
              f"optimisation {'converged' if pred.converged else 'NOT converged'}"]
     for note in pred.notes:
         lines.append(f"# note: {note}")
-    header = f"{'mode':>4}  {'cm-1':>7}  {'harm.':>7}  {'km/mol':>8}  {'region':<11}  character"
+    header = f"{'mode':>4}  {'cm-1':>7}  {'harm.':>7}  {'km/mol':>8}  {'region':<11}  {'band':<44}  composition"
     lines += [header, "-" * len(header)]
     for b in sorted(pred.bands, key=lambda b: -b.wavenumber_cm1):
         if b.intensity_km_mol < min_intensity_km_mol:
             continue
         wn = f"{b.wavenumber_cm1:7.1f}" if b.wavenumber_cm1 >= 0 else f"{abs(b.wavenumber_cm1):6.1f}i"
         lines.append(f"{b.index:>4}  {wn}  {b.harmonic_cm1:7.1f}  {b.intensity_km_mol:8.2f}  "
-                     f"{region_of(b.wavenumber_cm1):<11}  {b.character}")
+                     f"{region_of(b.wavenumber_cm1):<11}  {b.label:<44}  {b.character}")
+    lines.append("# region: 'stretch' >= 1500 cm-1 (group frequencies), 'fingerprint' below")
     if verbose:
         t = pred.record.timings
         lines.append(f"# optimisation: {t.get('optimization_gradients')} gradients, "
@@ -97,7 +98,7 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
         if lo <= b.wavenumber_cm1 <= hi and all(abs(b.wavenumber_cm1 - c) > 0.025 * (hi - lo) for c in chosen):
             chosen.append(b.wavenumber_cm1)
             yk = np.interp(b.wavenumber_cm1, s.wavenumbers_cm1, y)
-            text = f"{b.wavenumber_cm1:.0f}\n{b.character.split(',')[0].rsplit(' ', 1)[0]}"
+            text = f"{b.wavenumber_cm1:.0f}\n{b.label or b.character.split(',')[0].rsplit(' ', 1)[0]}"
             ax.annotate(text, (b.wavenumber_cm1, yk), xytext=(0, -28 if transmittance else 6),
                         textcoords="offset points", ha="center", fontsize=6.5, color="#333333")
     ax.set_xlim(hi, lo)
@@ -201,3 +202,25 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     fig.savefig(path)
     plt.close(fig)
+
+
+def isotope_table(spec: str, shifts) -> str:
+    lines = [f"# isotopologue {spec}: band shifts from the same Hessian (no new gradients)",
+             f"{'mode':>4}  {'parent':>8}  {'isotop.':>8}  {'shift':>7}  {'km/mol':>8} -> {'km/mol':>8}"]
+    for s in sorted(shifts, key=lambda s: -s.parent_cm1):
+        lines.append(f"{s.parent_index:>4}  {s.parent_cm1:8.1f}  {s.isotopologue_cm1:8.1f}  {s.shift_cm1:+7.1f}  "
+                     f"{s.parent_intensity_km_mol:8.2f} -> {s.isotopologue_intensity_km_mol:8.2f}")
+    return "\n".join(lines)
+
+
+def thermo_summary(t) -> str:
+    lines = [f"# thermochemistry at {t.temperature_K:g} K, {t.pressure_Pa:g} Pa (ideal gas, rigid rotor, "
+             f"{'quasi-RRHO entropy (Grimme 2012)' if t.quasi_harmonic else 'harmonic oscillator'}), "
+             f"symmetry number {t.symmetry_number}",
+             f"zero-point energy  {t.zero_point_energy_kj_mol:12.3f} kJ/mol",
+             f"enthalpy H         {t.enthalpy_kj_mol:12.3f} kJ/mol (incl. electronic energy and ZPE)",
+             f"entropy S          {t.entropy_j_mol_k:12.3f} J/(mol K)",
+             f"Gibbs energy G     {t.gibbs_energy_kj_mol:12.3f} kJ/mol"]
+    if t.skipped_imaginary_cm1:
+        lines.append(f"# left out imaginary modes: {', '.join(f'{v:.0f}' for v in t.skipped_imaginary_cm1)} cm-1")
+    return "\n".join(lines)

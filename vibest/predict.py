@@ -24,7 +24,8 @@ from .analysis.scaling import ScaleModel, default_scale_model, named_scale_model
 from .calculation.engine import EngineSettings, make_engine
 from .calculation.hessian import default_workers, finite_difference_hessian
 from .calculation.optimizer import OptimizerSettings, optimize
-from .calculation.record import HessianRecord
+from .analysis.groups import band_label, find_groups
+from .calculation.record import HessianRecord, record_molecule
 from .errors import InputError
 from .spectrum import DEFAULT_FWHM_CM1, DEFAULT_RANGE_CM1, DEFAULT_STEP_CM1, LINE_SHAPES, Spectrum, broaden, grid
 from .structure import Molecule, build_molecule
@@ -105,7 +106,9 @@ class SpectrumOptions:
 
 @dataclass(frozen=True)
 class Band:
-    """One vibrational band: scaled and harmonic wavenumber (cm^-1), intensity (km/mol), character."""
+    """One vibrational band: scaled and harmonic wavenumber (cm^-1), intensity (km/mol),
+    ``character`` (dominant internal-coordinate types with percentages) and ``label`` (plain words
+    with the functional group, e.g. "C=O stretch (ketone)")."""
 
     index: int
     wavenumber_cm1: float
@@ -114,6 +117,7 @@ class Band:
     reduced_mass_amu: float
     force_constant_mdyn_angstrom: float
     character: str
+    label: str = ""
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -271,6 +275,7 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
         hessian_hartree_bohr2=hes.hessian_hartree_bohr2, dipole_e_bohr=ev.dipole_e_bohr,
         dipole_derivatives_e=hes.dipole_derivatives_e,
         settings=options.to_dict() | {"converged": bool(opt.converged)}, timings=timings,
+        molblock=molecule.molblock,
     )
     return record, bool(opt.converged), notes
 
@@ -289,6 +294,8 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
                               record.dipole_derivatives_e, masses_amu=masses_amu, charge=record.charge)
     comp = mode_composition(record.numbers, record.positions_angstrom, record.bonds, hessian,
                             modes.displacements, space=space)
+    mol = record_molecule(record)
+    groups = find_groups(mol)
     if scale.per_coordinate:
         scaled = modes.wavenumbers_cm1
         harmonic = rayleigh_wavenumbers(record.hessian_hartree_bohr2, modes)
@@ -300,7 +307,9 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
              intensity_km_mol=float(modes.intensities_km_mol[k]),
              reduced_mass_amu=float(modes.reduced_masses_amu[k]),
              force_constant_mdyn_angstrom=float(modes.force_constants_mdyn_angstrom[k]),
-             character=comp.rough_character(k))
+             character=comp.rough_character(k),
+             label=band_label(record.numbers, record.bonds, comp.primitives, comp.shares[k],
+                              comp.internal_displacements[k], groups, mol) if len(comp.primitives) else "")
         for k in range(modes.count)
     )
     spec = broaden(scaled, modes.intensities_km_mol, options.fwhm_cm1, options.line_shape,
@@ -360,3 +369,30 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
     record.timings["analysis_seconds"] = time.perf_counter() - t1
     record.timings["total_seconds"] = time.perf_counter() - t0
     return pred
+
+
+def isotopologue(parent: Prediction, spec: str, options: SpectrumOptions | None = None):
+    """The prediction for the isotopologue ``spec`` (see :mod:`vibest.analysis.isotopes`) from the
+    parent's record (no new gradients), and the shift of every parent band."""
+    from .analysis.isotopes import band_shifts, isotopologue_masses
+
+    rec = parent.record
+    masses = isotopologue_masses(rec.numbers, rec.bonds, spec)
+    opts = options or SpectrumOptions(fwhm_cm1=parent.spectrum.fwhm_cm1, line_shape=parent.spectrum.line_shape,
+                                      scale_factor=parent.scale.factor if parent.scale.name == "user" else None,
+                                      scale_model=None if parent.scale.name == "user" else parent.scale.name)
+    iso = analyse(rec, opts, masses_amu=masses, notes=(f"isotopologue {spec}",))
+    shifts = band_shifts(parent.wavenumbers_cm1, parent.modes, iso.wavenumbers_cm1, iso.modes)
+    return iso, shifts
+
+
+def prediction_thermochemistry(pred: Prediction, temperature_K: float = 298.15, pressure_Pa: float = 101325.0,
+                               symmetry_number: int | None = None, quasi_harmonic: bool = False):
+    """Thermochemistry of a prediction from its scaled wavenumbers; the symmetry number is found
+    from the structure unless given."""
+    from .analysis.thermo import rotational_symmetry_number, thermochemistry
+
+    rec = pred.record
+    sigma = symmetry_number or rotational_symmetry_number(record_molecule(rec), rec.positions_angstrom)
+    return thermochemistry(pred.wavenumbers_cm1, rec.positions_angstrom, pred.modes.masses_amu, rec.energy_hartree,
+                           temperature_K, pressure_Pa, sigma, rec.uhf + 1, quasi_harmonic)

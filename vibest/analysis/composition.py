@@ -47,6 +47,7 @@ class ModeComposition:
     primitives: tuple[Primitive, ...]
     shares: np.ndarray  # (modes, primitives), fractions summing to 1 per mode
     contributions: tuple[tuple[Contribution, ...], ...]
+    internal_displacements: np.ndarray | None = None  # (modes, primitives): dq = B l
 
     def type_shares(self, mode: int) -> dict[str, float]:
         """Percent per coordinate type (e.g. "C-H stretch") for one mode, largest first."""
@@ -145,4 +146,4 @@ def mode_composition(numbers, positions_angstrom, bonds, hessian_hartree_bohr2, 
             label, tlabel = described[k]
             row.append(Contribution(label, tlabel, prims[k].kind, prims[k].atoms, float(pct)))
         contribs.append(tuple(row))
-    return ModeComposition(tuple(prims), shares, tuple(contribs))
+    return ModeComposition(tuple(prims), shares, tuple(contribs), dq)

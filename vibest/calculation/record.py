@@ -30,6 +30,7 @@ class HessianRecord:
         dipole_derivatives_e: d mu / d x (3N, 3), e (e*Bohr per Bohr).
         settings: level of theory and numerical settings (JSON-able).
         timings: counts and seconds per stage (JSON-able).
+        molblock: MDL molblock with H in the record's atom order (bond types, formal charges), or "".
     """
 
     smiles: str
@@ -44,6 +45,7 @@ class HessianRecord:
     dipole_derivatives_e: np.ndarray
     settings: dict = field(default_factory=dict)
     timings: dict = field(default_factory=dict)
+    molblock: str = ""
 
     @property
     def natoms(self) -> int:
@@ -65,6 +67,7 @@ class HessianRecord:
             "dipole_derivatives_e": self.dipole_derivatives_e.tolist(),
             "settings": self.settings,
             "timings": self.timings,
+            "molblock": self.molblock,
         }
 
     @classmethod
@@ -86,6 +89,7 @@ class HessianRecord:
             dipole_derivatives_e=np.array(d["dipole_derivatives_e"], dtype=float),
             settings=dict(d.get("settings", {})),
             timings=dict(d.get("timings", {})),
+            molblock=str(d.get("molblock", "")),
         )
 
     def save(self, path: str | Path) -> None:
@@ -98,3 +102,28 @@ class HessianRecord:
             return cls.from_dict(json.loads(Path(path).read_text()))
         except (OSError, ValueError, KeyError, TypeError) as exc:
             raise InputError(f"cannot read Hessian record {path}: {exc}") from None
+
+
+def record_molecule(record: HessianRecord):
+    """RDKit molecule (with H, the record's atom order) for pattern matching; from the stored
+    molblock, else rebuilt from atomic numbers and bonds."""
+    from rdkit import Chem
+
+    if record.molblock:
+        mol = Chem.MolFromMolBlock(record.molblock, removeHs=False)
+        if mol is not None and mol.GetNumAtoms() == record.natoms:
+            return mol
+    rw = Chem.RWMol()
+    for z in record.numbers:
+        rw.AddAtom(Chem.Atom(int(z)))
+    types = {1.0: Chem.BondType.SINGLE, 1.5: Chem.BondType.AROMATIC, 2.0: Chem.BondType.DOUBLE,
+             3.0: Chem.BondType.TRIPLE}
+    for i, j, o in record.bonds:
+        rw.AddBond(int(i), int(j), types.get(float(o), Chem.BondType.SINGLE))
+        if float(o) == 1.5:
+            rw.GetAtomWithIdx(int(i)).SetIsAromatic(True)
+            rw.GetAtomWithIdx(int(j)).SetIsAromatic(True)
+    mol = rw.GetMol()
+    mol.UpdatePropertyCache(strict=False)
+    Chem.FastFindRings(mol)
+    return mol
