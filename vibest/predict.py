@@ -247,8 +247,11 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
             notes.append(f"geometry optimisation did not converge in {opt.gradient_calls} gradients "
                          f"(max force {opt.max_force_hartree_bohr:.1e} Eh/Bohr); frequencies may be unreliable")
         x = opt.positions_bohr
-        engine.evaluate(x)  # wavefunction at the final geometry is the guess for all displacements
-        timings["optimization_gradients"] += 1
+        # The wavefunction at the final geometry is the SCF guess of every displacement.
+        ev = opt.final_evaluation
+        if ev is None:
+            ev = engine.evaluate(x)
+            timings["optimization_gradients"] += 1
         per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
         use = workers if options.workers or 6 * len(numbers) * per_gradient > SERIAL_HESSIAN_SECONDS else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
@@ -268,7 +271,6 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
         for k in bad:
             d = modes.displacements[k]
             x = x + (0.2 / Bohr) * d / np.abs(d).max() * 0.5
-    ev = engine.evaluate(x)
     record = HessianRecord(
         smiles=molecule.smiles, numbers=numbers, positions_angstrom=x * Bohr, bonds=molecule.bonds,
         charge=molecule.charge, uhf=molecule.uhf, energy_hartree=ev.energy_hartree,

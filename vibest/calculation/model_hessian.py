@@ -5,13 +5,12 @@ force constants k_r rho_ij (stretch), k_phi rho_ij rho_jk (bend), k_tau rho_ij r
 (torsion) over all atom pairs/triples/quadruples, with rho_ij = exp(alpha_ij (r_ref,ij^2 - r_ij^2)),
 projected to Cartesians with Wilson B vectors: H = sum_k f_k b_k b_k^T (Eh/Bohr^2).
 The parameters below are the paper's table (rows 1-3 of the periodic table; heavier atoms use row 3).
+Vectorised over terms with numpy; the B vectors are those of :mod:`vibest.internal_coordinates`.
 """
 
 from __future__ import annotations
 
 import numpy as np
-
-from ..internal_coordinates import bend_b, stretch_b, torsion_b
 
 K_STRETCH, K_BEND, K_TORSION = 0.45, 0.15, 0.005
 #: alpha_ij (Bohr^-2) and r_ref,ij (Bohr) by periodic-table rows (1, 2, 3).
@@ -19,10 +18,51 @@ ALPHA = np.array([[1.0000, 0.3949, 0.3949], [0.3949, 0.2800, 0.2800], [0.3949, 0
 R_REF = np.array([[1.35, 2.10, 2.53], [2.10, 2.87, 3.40], [2.53, 3.40, 3.40]])
 #: Terms whose rho product is below this are dropped (they add < 0.1% of the nearest terms).
 RHO_CUTOFF = 1e-3
+#: Bends (and torsions through them) closer to linear than this are left out (degrees).
+LINEAR_DEG = 175.0
 
 
 def _row(z: int) -> int:
     return 0 if z <= 2 else (1 if z <= 10 else 2)
+
+
+def _norm(v):
+    return np.linalg.norm(v, axis=-1, keepdims=True)
+
+
+def _bend_vectors(x, i, j, k):
+    u, v = x[i] - x[j], x[k] - x[j]
+    lu, lv = _norm(u), _norm(v)
+    u, v = u / lu, v / lv
+    cos = np.clip((u * v).sum(-1, keepdims=True), -1.0, 1.0)
+    sin = np.maximum(np.sqrt(1.0 - cos ** 2), 1e-8)
+    bi = (cos * u - v) / (lu * sin)
+    bk = (cos * v - u) / (lv * sin)
+    return np.stack([bi, -(bi + bk), bk], axis=1), np.degrees(np.arccos(cos[:, 0]))
+
+
+def _torsion_vectors(x, i, j, k, l):
+    f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
+    a, b = np.cross(f, g), np.cross(h, g)
+    aa = np.maximum((a * a).sum(-1, keepdims=True), 1e-16)
+    bb = np.maximum((b * b).sum(-1, keepdims=True), 1e-16)
+    lg = _norm(g)
+    fg = (f * g).sum(-1, keepdims=True) / (aa * lg)
+    hg = (h * g).sum(-1, keepdims=True) / (bb * lg)
+    di = -lg / aa * a
+    dl = lg / bb * b
+    dj = lg / aa * a + fg * a - hg * b
+    dk = -lg / bb * b - fg * a + hg * b
+    return np.stack([di, dj, dk, dl], axis=1)
+
+
+def _accumulate(h4, atoms: np.ndarray, vecs: np.ndarray, k: np.ndarray) -> None:
+    """h4[a_p, a_q] += k b_p b_q^T for every term (atoms: (T, m), vecs: (T, m, 3))."""
+    m = atoms.shape[1]
+    for p in range(m):
+        for q in range(m):
+            blocks = k[:, None, None] * vecs[:, p, :, None] * vecs[:, q, None, :]
+            np.add.at(h4, (atoms[:, p], atoms[:, q]), blocks)
 
 
 def lindh_hessian(numbers, positions_bohr) -> np.ndarray:
@@ -33,43 +73,34 @@ def lindh_hessian(numbers, positions_bohr) -> np.ndarray:
     d2 = ((x[:, None, :] - x[None, :, :]) ** 2).sum(-1)
     rho = np.exp(ALPHA[rows[:, None], rows[None, :]] * (R_REF[rows[:, None], rows[None, :]] ** 2 - d2))
     np.fill_diagonal(rho, 0.0)
-    h = np.zeros((3 * n, 3 * n))
-
-    def add(k: float, parts: dict[int, np.ndarray]) -> None:
-        idx = np.concatenate([np.arange(3 * a, 3 * a + 3) for a in parts])
-        vec = np.concatenate(list(parts.values()))
-        h[np.ix_(idx, idx)] += k * np.outer(vec, vec)
-
+    h4 = np.zeros((n, n, 3, 3))
     near = [np.nonzero(rho[i] > RHO_CUTOFF)[0] for i in range(n)]
-    for i in range(n):
-        for j in near[i]:
-            if j > i:
-                add(K_STRETCH * rho[i, j], stretch_b(x, i, j)[1])
-    for j in range(n):
-        for a, i in enumerate(near[j]):
-            for k in near[j][a + 1:]:
-                r = rho[i, j] * rho[j, k]
-                if r < RHO_CUTOFF:
-                    continue
-                ang = bend_b(x, i, j, k)
-                if np.degrees(ang[0]) > 175.0:
-                    continue
-                add(K_BEND * r, ang[1])
-    for j in range(n):
-        for k in near[j]:
-            if k <= j:
-                continue
-            for i in near[j]:
-                if i == k or rho[i, j] * rho[j, k] < RHO_CUTOFF:
-                    continue
-                for l in near[k]:
-                    if l in (i, j):
-                        continue
-                    r = rho[i, j] * rho[j, k] * rho[k, l]
-                    if r < RHO_CUTOFF:
-                        continue
-                    if (np.degrees(bend_b(x, i, j, k)[0]) > 175.0
-                            or np.degrees(bend_b(x, j, k, l)[0]) > 175.0):
-                        continue
-                    add(K_TORSION * r, torsion_b(x, i, j, k, l)[1])
+    # stretches
+    ii, jj = np.nonzero(np.triu(rho > RHO_CUTOFF, 1))
+    if len(ii):
+        u = x[ii] - x[jj]
+        u /= _norm(u)
+        _accumulate(h4, np.stack([ii, jj], 1), np.stack([u, -u], 1), K_STRETCH * rho[ii, jj])
+    # bends
+    tri = [(i, j, k) for j in range(n) for a, i in enumerate(near[j]) for k in near[j][a + 1:]
+           if rho[i, j] * rho[j, k] >= RHO_CUTOFF]
+    if tri:
+        t = np.array(tri)
+        vecs, ang = _bend_vectors(x, t[:, 0], t[:, 1], t[:, 2])
+        keep = ang <= LINEAR_DEG
+        _accumulate(h4, t[keep], vecs[keep], K_BEND * rho[t[keep, 0], t[keep, 1]] * rho[t[keep, 1], t[keep, 2]])
+    # torsions
+    quads = [(i, j, k, l) for j in range(n) for k in near[j] if k > j
+             for i in near[j] if i != k and rho[i, j] * rho[j, k] >= RHO_CUTOFF
+             for l in near[k] if l != i and l != j and rho[i, j] * rho[j, k] * rho[k, l] >= RHO_CUTOFF]
+    if quads:
+        q = np.array(quads)
+        _, a1 = _bend_vectors(x, q[:, 0], q[:, 1], q[:, 2])
+        _, a2 = _bend_vectors(x, q[:, 1], q[:, 2], q[:, 3])
+        keep = (a1 <= LINEAR_DEG) & (a2 <= LINEAR_DEG)
+        q = q[keep]
+        if len(q):
+            kt = K_TORSION * rho[q[:, 0], q[:, 1]] * rho[q[:, 1], q[:, 2]] * rho[q[:, 2], q[:, 3]]
+            _accumulate(h4, q, _torsion_vectors(x, q[:, 0], q[:, 1], q[:, 2], q[:, 3]), kt)
+    h = h4.transpose(0, 2, 1, 3).reshape(3 * n, 3 * n)
     return 0.5 * (h + h.T)

@@ -63,6 +63,9 @@ class OptimizationResult:
     seconds: float
     gradient_seconds: float
     energies_hartree: list[float] = field(default_factory=list)
+    #: The engine's evaluation at ``positions_bohr`` when it was the engine's last one (its
+    #: wavefunction is then loaded), else None.
+    final_evaluation: Evaluation | None = None
 
     def to_dict(self) -> dict:
         return {
@@ -79,25 +82,32 @@ def _max_atom_force(grad: np.ndarray) -> float:
     return float(np.linalg.norm(grad.reshape(-1, 3), axis=1).max())
 
 
-def _rfo_step(hess: np.ndarray, grad: np.ndarray, basis: np.ndarray) -> np.ndarray:
-    """RFO step in the internal subspace spanned by the columns of ``basis``."""
-    h = basis.T @ hess @ basis
-    g = basis.T @ grad
+#: Curvature given to translations/rotations so that RFO never steps along them (Eh/Bohr^2).
+_RIGID_SHIFT = 1e3
+
+
+def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray) -> np.ndarray:
+    """RFO step (Banerjee et al. 1985) in the space orthogonal to the rigid-body vectors ``rigid``.
+
+    The projected Hessian P H P gets a large curvature along the rigid-body directions; one
+    eigendecomposition then serves both the projection and the augmented-Hessian root.
+    """
+    proj = np.eye(len(grad)) - rigid @ rigid.T
+    h = proj @ hess @ proj + _RIGID_SHIFT * (rigid @ rigid.T)
     w, v = np.linalg.eigh(0.5 * (h + h.T))
-    w = np.maximum(w, 1e-4) if np.all(w > 0) else w
-    gq = v.T @ g
-    # Lowest root of the augmented Hessian [[H, g], [g, 0]] (Banerjee et al. 1985).
+    internal = w < 0.5 * _RIGID_SHIFT
+    w, v = w[internal], v[:, internal]
+    if np.all(w > 0):
+        w = np.maximum(w, 1e-4)
+    gq = v.T @ grad
     aug = np.zeros((len(w) + 1, len(w) + 1))
     aug[:-1, :-1] = np.diag(w)
     aug[:-1, -1] = gq
     aug[-1, :-1] = gq
-    ew, ev = np.linalg.eigh(aug)
+    _, ev = np.linalg.eigh(aug)
     vec = ev[:, 0]
-    if abs(vec[-1]) < 1e-12:
-        step_q = -gq / np.maximum(np.abs(w), 1e-4)
-    else:
-        step_q = vec[:-1] / vec[-1]
-    return basis @ (v @ step_q)
+    step_q = -gq / np.maximum(np.abs(w), 1e-4) if abs(vec[-1]) < 1e-12 else vec[:-1] / vec[-1]
+    return v @ step_q
 
 
 def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSettings = OptimizerSettings(),
@@ -123,6 +133,7 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         return ev
 
     ev = first if first is not None else evaluate(x)
+    last, last_is_final = ev, first is None
     e, g = ev.energy_hartree, ev.gradient_hartree_bohr.ravel()
     energies = [e]
     hess = lindh_hessian(numbers, x)
@@ -133,11 +144,8 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
     while not converged and calls < settings.max_steps:
         rb = rigid_body_basis(x)
         proj = np.eye(3 * n) - rb @ rb.T
-        # Orthonormal basis of the internal (non rigid-body) space.
-        u, s, _ = np.linalg.svd(proj)
-        basis = u[:, s > 0.5]
         gp = proj @ g
-        step = _rfo_step(hess, gp, basis)
+        step = _rfo_step(hess, gp, rb)
         length = np.linalg.norm(step)
         if length > trust:
             step *= trust / length
@@ -160,10 +168,13 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
             trust = min(2.0 * trust, settings.max_trust_radius_bohr)
         if actual > 1e-6 and trust > settings.min_trust_radius_bohr:
             # Reject an uphill step: stay, with the updated Hessian and a smaller trust radius.
+            last_is_final = False
             if progress:
                 progress(calls, e, _max_atom_force(g))
             continue
         x, e, g = x_new, e_new, g_new
+        last = ev
+        last_is_final = True
         energies.append(e)
         converged = _max_atom_force(g) < settings.max_force_hartree_bohr
         if progress:
@@ -172,4 +183,5 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         positions_bohr=x, energy_hartree=e, max_force_hartree_bohr=_max_atom_force(g),
         converged=bool(converged), gradient_calls=calls, seconds=time.perf_counter() - t0,
         gradient_seconds=tg, energies_hartree=energies,
+        final_evaluation=last if last_is_final else None,
     )

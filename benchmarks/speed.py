@@ -1,0 +1,149 @@
+"""Speed benchmark: vibest against the path a user would script with general-purpose tools.
+
+Side by side, in one process, from the same MMFF-pre-relaxed start and with the same tblite
+settings (GFN2-xTB, accuracy 0.01, electronic temperature 300 K):
+  1. reference: ASE BFGS to the same convergence (largest atomic force below vibest's default,
+     5e-5 Eh/Bohr = 2.57e-3 eV/Angstrom) + ase.vibrations.Infrared (central differences,
+     step 0.005 Bohr, serial);
+  2. vibest: compute_record (RFO/BFGS optimiser with Lindh model Hessian, parallel Hessian).
+Prints per molecule: atoms, optimisation gradients and seconds, Hessian seconds, totals, ratio,
+energy difference, largest harmonic frequency difference; then medians, Hessian parallel
+efficiency and the "limit" figure (optimisation gradients + 6N) x median restarted gradient time
+/ cores. Not a test: figures only.
+
+    python benchmarks/speed.py [--quick]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import sys
+import tempfile
+import time
+
+import numpy as np
+from ase import Atoms
+from ase.optimize import BFGS
+from ase.units import Bohr, Hartree
+from ase.vibrations import Infrared
+from tblite.ase import TBLite
+
+from vibest.analysis.harmonic import harmonic_analysis
+from vibest.calculation.engine import make_engine
+from vibest.calculation.hessian import default_workers, finite_difference_hessian
+from vibest.predict import CalculationOptions, compute_record
+from vibest.structure import build_molecule
+
+MOLECULES = [
+    ("water", "O"),
+    ("benzene (rigid aromatic)", "c1ccccc1"),
+    ("N-methylacetamide (amide)", "CNC(C)=O"),
+    ("ethyl acetate (ester)", "CCOC(C)=O"),
+    ("1-butanol (alcohol)", "CCCCO"),
+    ("acetophenone", "CC(=O)c1ccccc1"),
+    ("paracetamol", "CC(=O)Nc1ccc(O)cc1"),
+    ("caffeine", "Cn1cnc2c1c(=O)n(C)c(=O)n2C"),
+    ("n-octane (flexible chain)", "CCCCCCCC"),
+    ("ibuprofen", "CC(C)Cc1ccc(cc1)C(C)C(=O)O"),
+    ("propranolol", "CC(C)NCC(O)COc1cccc2ccccc12"),
+    ("piperazine amide (53 atoms)", "CN1CCN(CC1)c1ccc(cc1)C(=O)NC(C)c1ccccc1OC"),
+]
+FMAX_HARTREE_BOHR = 5e-5
+
+
+class CountingTBLite(TBLite):
+    calls = 0
+
+    def calculate(self, *args, **kwargs):
+        CountingTBLite.calls += 1
+        return super().calculate(*args, **kwargs)
+
+
+def reference_path(mol, step_bohr: float):
+    atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
+    atoms.calc = CountingTBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    CountingTBLite.calls = 0
+    t0 = time.perf_counter()
+    BFGS(atoms, logfile=None).run(fmax=FMAX_HARTREE_BOHR * Hartree / Bohr, steps=3000)
+    t_opt = time.perf_counter() - t0
+    n_opt = CountingTBLite.calls
+    energy = atoms.get_potential_energy() / Hartree
+    tmp = tempfile.mkdtemp(prefix="vibest-bench-")
+    try:
+        t1 = time.perf_counter()
+        ir = Infrared(atoms, delta=step_bohr * Bohr, nfree=2, name=os.path.join(tmp, "ir"))
+        ir.run()
+        freqs = np.sort(np.real(ir.get_frequencies()))
+        t_hess = time.perf_counter() - t1
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+    return n_opt, t_opt, t_hess, energy, freqs
+
+
+def restarted_gradient_seconds(mol, record) -> tuple[float, float]:
+    """Serial Hessian of the final geometry: seconds per restarted gradient, and total seconds."""
+    x = record.positions_angstrom / Bohr
+    eng = make_engine(mol.numbers, x, mol.charge, mol.uhf)
+    eng.evaluate(x)
+    t = time.perf_counter()
+    res = finite_difference_hessian(eng, mol.numbers, x, step_bohr=0.005, workers=1)
+    total = time.perf_counter() - t
+    return total / res.gradient_calls, total
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="first six molecules only")
+    args = ap.parse_args()
+    cores = default_workers()
+    mols = MOLECULES[:6] if args.quick else MOLECULES
+    print(f"cores {cores}; convergence {FMAX_HARTREE_BOHR:g} Eh/Bohr; Hessian step 0.005 Bohr\n")
+    head = (f"{'molecule':<28} {'N':>3} | {'ref grads':>9} {'opt s':>6} {'hess s':>6} {'total':>7} | "
+            f"{'vb grads':>8} {'opt s':>6} {'ovh%':>5} {'hess s':>6} {'total':>6} | {'ratio':>5} {'dE Eh':>8} {'dnu':>5}")
+    print(head)
+    print("-" * len(head))
+    rows = []
+    for name, smi in mols:
+        mol = build_molecule(smi)
+        n_ref, t_ref_opt, t_ref_hess, e_ref, f_ref = reference_path(mol, 0.005)
+        t0 = time.perf_counter()
+        record, converged, _ = compute_record(mol, CalculationOptions())
+        t_vb = time.perf_counter() - t0
+        tm = record.timings
+        modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2)
+        f_ref_vib = f_ref[-modes.count:]
+        dnu = float(np.abs(np.sort(modes.wavenumbers_cm1) - f_ref_vib).max())
+        d_e = record.energy_hartree - e_ref
+        overhead = (tm["optimization_seconds"] - tm["optimization_gradient_seconds"]) / max(tm["optimization_gradient_seconds"], 1e-9)
+        t_grad, t_serial = restarted_gradient_seconds(mol, record)
+        n_opt = tm["optimization_gradients"]
+        limit = (n_opt + 6 * mol.natoms) * t_grad / cores
+        eff = t_serial / (tm["hessian_workers"] * tm["hessian_seconds"]) if tm["hessian_workers"] > 1 else float("nan")
+        t_ref = t_ref_opt + t_ref_hess
+        rows.append(dict(n=mol.natoms, n_ref=n_ref, n_opt=n_opt, ratio=t_ref / t_vb, overhead=overhead,
+                         limit=limit, total=t_vb, eff=eff, t_grad=t_grad, d_e=d_e, dnu=dnu,
+                         workers=tm["hessian_workers"]))
+        flag = "" if abs(d_e) < 1e-6 else "  <- different minimum"
+        print(f"{name:<28} {mol.natoms:>3} | {n_ref:>9} {t_ref_opt:6.2f} {t_ref_hess:6.2f} {t_ref:7.2f} | "
+              f"{n_opt:>8} {tm['optimization_seconds']:6.2f} {100 * overhead:5.1f} {tm['hessian_seconds']:6.2f} "
+              f"{t_vb:6.2f} | {t_ref / t_vb:5.1f} {d_e:+8.1e} {dnu:5.2f}{flag}", flush=True)
+    med = lambda k: float(np.median([r[k] for r in rows]))  # noqa: E731
+    big = [r for r in rows if r["workers"] > 1]
+    print(f"\nmedian optimisation gradients: vibest {med('n_opt'):.0f}, reference {med('n_ref'):.0f}")
+    print(f"median optimiser overhead (time outside gradient calls / gradient time): {100 * med('overhead'):.1f} %")
+    print(f"median speed-up over the reference path: {med('ratio'):.2f}x")
+    if big:
+        print(f"Hessian parallel efficiency on {big[0]['workers']} workers (molecules run in parallel): "
+              f"median {100 * np.median([r['eff'] for r in big]):.0f} %, "
+              f"for the largest {100 * big[-1]['eff']:.0f} %")
+    ratio_limit = [r["total"] / r["limit"] for r in rows]
+    print(f"vibest total / limit: median {np.median(ratio_limit):.2f}, largest molecule {ratio_limit[-1]:.2f} "
+          f"(limit = (opt gradients + 6N) x restarted gradient time / {cores} cores)")
+    print(f"largest |dE| {max(abs(r['d_e']) for r in rows):.1e} Eh; largest frequency difference "
+          f"{max(r['dnu'] for r in rows):.2f} cm-1")
+
+
+if __name__ == "__main__":
+    main()
