@@ -102,7 +102,8 @@ def calculation_options(f):
         click.option("--workers", type=click.IntRange(min=1), default=None, help="Processes for the Hessian [all cores]."),
         click.option("--largest-fragment", is_flag=True, help="For salts/mixtures, keep only the largest fragment."),
         click.option("--backend", type=click.Choice(["tblite", "xtb"]), default="tblite", show_default=True),
-        click.option("--solvent", default=None, help="ALPB implicit solvent name (e.g. water); default gas phase."),
+        click.option("--solvent", default=None, help="Implicit solvent (e.g. water; list: vibest solvents); default gas phase."),
+        click.option("--solvent-model", type=click.Choice(["alpb", "cpcm"]), default="alpb", show_default=True),
     ]):
         f = opt(f)
     return f
@@ -141,12 +142,13 @@ def comparison_options(f):
     return f
 
 
-def _calc_options(seed, workers, largest_fragment, backend, solvent):
+def _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model="alpb"):
     from .calculation.engine import EngineSettings
     from .predict import CalculationOptions
 
     return CalculationOptions(seed=seed, largest_fragment=largest_fragment,
-                              engine=EngineSettings(backend=backend, solvent=solvent), workers=workers)
+                              engine=EngineSettings(backend=backend, solvent=solvent, solvent_model=solvent_model),
+                              workers=workers)
 
 
 def _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1=(400.0, 4000.0)):
@@ -192,12 +194,19 @@ def main() -> None:
 @click.option("--quasi-harmonic", is_flag=True, help="Grimme's quasi-RRHO entropy for low modes (--thermo).")
 @click.option("--symmetry-number", type=click.IntRange(min=1), default=None,
               help="Rotational symmetry number for --thermo [from the structure].")
+@click.option("--conformers", is_flag=True, help="Search conformers and print the Boltzmann-weighted spectrum.")
+@click.option("--max-conformers", type=click.IntRange(min=1), default=50, show_default=True,
+              help="Cap on embedded conformers (--conformers).")
+@click.option("--energy-window", type=float, default=3.0, show_default=True,
+              help="Hessians for conformers within this many kcal/mol of the lowest (--conformers).")
+@click.option("--weights", "weighting", type=click.Choice(["energy", "free-energy"]), default="energy",
+              show_default=True, help="Boltzmann weights from electronic or harmonic free energies (--conformers).")
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
-                    range_cm1, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model, fwhm,
+                    range_cm1, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
                     line_shape, min_intensity, isotopes, thermo, temperature, pressure, quasi_harmonic,
-                    symmetry_number, verbose, quiet) -> None:
+                    symmetry_number, conformers, max_conformers, energy_window, weighting, verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
     from .predict import isotopologue, predict, prediction_thermochemistry
@@ -207,9 +216,17 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
         _check_output_path(plot_path, output.PLOT_FORMATS)
         for p in (csv_path, jcamp_path, bands_csv, json_path, record_path):
             _check_output_path(p)
+        if conformers:
+            _predict_ensemble(smiles, progress, temperature=temperature, csv_path=csv_path, jcamp_path=jcamp_path,
+                              json_path=json_path, plot_path=plot_path, transmittance=transmittance,
+                              calc=_calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model),
+                              spec=_spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
+                              max_conformers=max_conformers, energy_window=energy_window, weighting=weighting)
+            return
         pred = predict(smiles, seed=seed, largest_fragment=largest_fragment, scale_factor=scale_factor,
                        scale_model=scale_model, fwhm_cm1=fwhm, line_shape=line_shape, range_cm1=range_cm1,
-                       workers=workers, backend=backend, solvent=solvent, progress=progress)
+                       workers=workers, backend=backend, solvent=solvent, solvent_model=solvent_model,
+                       progress=progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
         for spec in isotopes:
@@ -228,6 +245,38 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                 click.echo(f"wrote {path}", err=True)
 
 
+def _predict_ensemble(smiles, progress, *, temperature, csv_path, jcamp_path, json_path, plot_path, transmittance,
+                      calc, spec, max_conformers, energy_window, weighting) -> None:
+    from . import output
+    from .ensemble import EnsembleOptions, predict_ensemble
+
+    ens = predict_ensemble(smiles, calc=calc, spec=spec, progress=progress,
+                           ens=EnsembleOptions(max_conformers=max_conformers, energy_window_kcal=energy_window,
+                                               temperature_K=temperature, weighting=weighting))
+    progress.finish()
+    click.echo(output.ensemble_table(ens))
+    if csv_path:
+        output.write_spectrum_csv(ens, csv_path)
+    if jcamp_path:
+        output.write_spectrum_jcamp(ens, jcamp_path)
+    if json_path:
+        Path(json_path).write_text(json.dumps(ens.to_dict() | {"caution": output.CAUTION}, indent=1))
+    if plot_path:
+        output.plot_prediction(ens, plot_path, transmittance=transmittance)
+    for p in (csv_path, jcamp_path, json_path, plot_path):
+        if p:
+            click.echo(f"wrote {p}", err=True)
+
+
+@main.command("solvents")
+def solvents_command() -> None:
+    """List the implicit solvents (--solvent) and models (--solvent-model)."""
+    from .calculation.engine import SOLVENT_MODELS, SOLVENTS
+
+    click.echo("solvents: " + ", ".join(SOLVENTS))
+    click.echo("models: " + ", ".join(SOLVENT_MODELS) + " (default alpb)")
+
+
 @main.command("compare")
 @click.argument("measured", type=click.Path(dir_okay=False))
 @click.argument("smiles")
@@ -240,7 +289,7 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
 @click.option("--no-cache", is_flag=True, help="Neither read nor write the record cache.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, baseline,
-                    tolerance, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model, fwhm,
+                    tolerance, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
                     line_shape, plot_path, json_path, cache_dir, no_cache, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
@@ -254,7 +303,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         _check_output_path(plot_path, output.PLOT_FORMATS)
         _check_output_path(json_path)
         spec = load_spectrum(measured, kind=y_kind, block=block)
-        calc = _calc_options(seed, workers, largest_fragment, backend, solvent)
+        calc = _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
         pred, _ = predict_cached(smiles, calc, sopts, None if no_cache else RecordCache(cache_dir), progress)
         progress.finish()
@@ -290,7 +339,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @click.option("--no-cache", is_flag=True, help="Neither read nor write the record cache.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
-                 baseline, tolerance, seed, workers, largest_fragment, backend, solvent, scale_factor, scale_model,
+                 baseline, tolerance, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
                  fwhm, line_shape, csv_path, json_path, plot_dir, top, cache_dir, no_cache, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
@@ -308,7 +357,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         if not cands:
             raise InputError("give candidate SMILES as arguments or with --candidates-file")
         spec = load_spectrum(measured, kind=y_kind, block=block)
-        calc = _calc_options(seed, workers, largest_fragment, backend, solvent)
+        calc = _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
 
         def report(done, total, name):

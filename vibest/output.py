@@ -224,3 +224,16 @@ def thermo_summary(t) -> str:
     if t.skipped_imaginary_cm1:
         lines.append(f"# left out imaginary modes: {', '.join(f'{v:.0f}' for v in t.skipped_imaginary_cm1)} cm-1")
     return "\n".join(lines)
+
+
+def ensemble_table(ens) -> str:
+    lines = [f"# conformer ensemble of {ens.smiles} at {ens.temperature_K:g} K, weights from "
+             f"{'electronic energies' if ens.weighting == 'energy' else 'harmonic free energies'}"]
+    lines += [f"# note: {n}" for n in ens.notes]
+    lines.append(f"{'conf':>4}  {'dE kcal/mol':>11}  {'weight':>7}  {'gradients':>9}  {'seconds':>7}  strongest band")
+    for k, m in enumerate(ens.members, start=1):
+        b = m.prediction.strongest(1)[0]
+        lines.append(f"{k:>4}  {m.relative_energy_kcal_mol:11.3f}  {m.weight:7.3f}  {m.gradient_calls:>9}  "
+                     f"{m.seconds:7.2f}  {b.wavenumber_cm1:.0f} cm-1 {b.label}")
+    lines.append(f"# caution: {CAUTION}")
+    return "\n".join(lines)

@@ -329,6 +329,7 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
             fwhm_cm1: float = DEFAULT_FWHM_CM1, line_shape: str = "lorentzian",
             range_cm1: tuple[float, float] = DEFAULT_RANGE_CM1, step_cm1: float = DEFAULT_STEP_CM1,
             workers: int | None = None, backend: str = "tblite", solvent: str | None = None,
+            solvent_model: str = "alpb",
             max_force_hartree_bohr: float = OptimizerSettings.max_force_hartree_bohr,
             hessian_step_bohr: float = 0.005, progress: Progress | None = None) -> Prediction:
     """Predict the IR spectrum of one molecule given as SMILES.
@@ -342,7 +343,7 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
         fwhm_cm1, line_shape, range_cm1, step_cm1: broadening and grid (cm^-1).
         workers: processes for the Hessian (default all cores).
         backend: "tblite" (default) or "xtb".
-        solvent: ALPB solvent name or None (gas phase).
+        solvent: implicit solvent name or None (gas phase); solvent_model: "alpb" or "cpcm".
         max_force_hartree_bohr: optimisation convergence, Eh/Bohr.
         hessian_step_bohr: finite-difference step, Bohr.
         progress: optional callback progress(stage, done, total, message).
@@ -356,9 +357,10 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
     spec_opts.resolve_scale()
     if workers is not None and workers < 1:
         raise InputError("workers must be at least 1")
+    EngineSettings(backend=backend, solvent=solvent, solvent_model=solvent_model).validate()
     calc_opts = CalculationOptions(
         seed=seed, largest_fragment=largest_fragment,
-        engine=EngineSettings(backend=backend, solvent=solvent),
+        engine=EngineSettings(backend=backend, solvent=solvent, solvent_model=solvent_model),
         optimizer=OptimizerSettings(max_force_hartree_bohr=max_force_hartree_bohr),
         hessian_step_bohr=hessian_step_bohr, workers=workers,
     )

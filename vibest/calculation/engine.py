@@ -17,6 +17,12 @@ import numpy as np
 from ..errors import CalculationError, InputError
 
 BACKENDS = ("tblite", "xtb")
+#: Solvent names with parametrised GFN2-xTB ALPB models (Ehlert, Stahn, Spicher, Grimme,
+#: J. Chem. Theory Comput. 17, 4250 (2021)); tblite also accepts them for CPCM (ddX).
+SOLVENTS = ("acetone", "acetonitrile", "aniline", "benzaldehyde", "benzene", "ch2cl2", "chcl3", "cs2", "dioxane",
+            "dmf", "dmso", "ether", "ethylacetate", "furane", "hexadecane", "hexane", "methanol", "nitromethane",
+            "octanol", "woctanol", "phenol", "toluene", "thf", "water")
+SOLVENT_MODELS = ("alpb", "cpcm")
 
 
 @dataclass(frozen=True)
@@ -29,7 +35,8 @@ class EngineSettings:
         accuracy: tblite/xtb numerical accuracy multiplier (smaller is tighter; 1.0 is the codes' default).
         electronic_temperature_K: Fermi smearing temperature in kelvin.
         max_scf_iterations: SCF cycle limit.
-        solvent: ALPB solvent name, or None for gas phase.
+        solvent: implicit solvent name (one of :data:`SOLVENTS`), or None for gas phase.
+        solvent_model: "alpb" (analytical linearised Poisson-Boltzmann, default) or "cpcm" (tblite's ddX).
     """
 
     method: str = "GFN2-xTB"
@@ -38,9 +45,16 @@ class EngineSettings:
     electronic_temperature_K: float = 300.0
     max_scf_iterations: int = 250
     solvent: str | None = None
+    solvent_model: str = "alpb"
 
     def to_dict(self) -> dict:
         return asdict(self)
+
+    def validate(self) -> None:
+        if self.solvent is not None and self.solvent.lower() not in SOLVENTS:
+            raise InputError(f"unknown solvent {self.solvent!r}; choose one of {', '.join(SOLVENTS)}")
+        if self.solvent_model not in SOLVENT_MODELS:
+            raise InputError(f"unknown solvent model {self.solvent_model!r}; choose one of {', '.join(SOLVENT_MODELS)}")
 
 
 @dataclass(frozen=True)
@@ -89,10 +103,14 @@ class TBLiteEngine(Engine):
         self._calc.set("temperature", float(settings.electronic_temperature_K) * _KELVIN_TO_HARTREE)
         self._calc.set("max-iter", int(settings.max_scf_iterations))
         if settings.solvent:
+            settings.validate()
             try:
-                self._calc.add("alpb-solvation", settings.solvent)
+                if settings.solvent_model == "cpcm":
+                    self._calc.add("ddX-solvation", settings.solvent.lower(), "cpcm")
+                else:
+                    self._calc.add("alpb-solvation", settings.solvent.lower())
             except Exception as exc:
-                raise InputError(f"solvent {settings.solvent!r} is not known to tblite's ALPB model: {exc}") from None
+                raise InputError(f"solvent {settings.solvent!r} is not available in tblite: {exc}") from None
         self._result = None
 
     def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:

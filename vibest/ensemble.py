@@ -1,0 +1,256 @@
+"""Conformer ensembles: search, GFN2-xTB refinement, Boltzmann-weighted spectrum.
+
+Steps (each documented in README "Flexible molecules"):
+1. RDKit ETKDGv3 ensemble, 5 + 10 x (rotatable bonds) conformers, capped by ``max_conformers``;
+   MMFF94 (else UFF) relaxation; molecules without rotatable bonds use the single-conformer path.
+2. De-duplication: same force-field energy (0.05 kcal/mol) and all-atom RMSD below
+   ``rmsd_angstrom`` after symmetry-aware alignment count once; the ``max_refined`` lowest within
+   ``mmff_window_kcal`` go on.
+3. GFN2-xTB optimisation of each; de-duplication again (same energy within 0.01 kcal/mol and RMSD
+   below 0.1 Angstrom: the same minimum reached twice counts once).
+4. Hessians only for conformers within ``energy_window_kcal`` of the lowest.
+5. Boltzmann weights w_i = exp(-dE_i / RT) / sum_j exp(-dE_j / RT) at ``temperature_K`` from the
+   GFN2-xTB electronic energies, or from harmonic free energies (``weighting="free-energy"``);
+   the ensemble spectrum is sum_i w_i S_i.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import time
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+from ase.units import Bohr
+from rdkit import Chem
+from rdkit.Chem import rdMolAlign, rdMolDescriptors
+from scipy import constants as sc
+
+from .calculation.engine import make_engine
+from .calculation.optimizer import optimize
+from .errors import InputError
+from .predict import (CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record,
+                      prediction_thermochemistry)
+from .spectrum import Spectrum
+from .structure import Molecule, build_molecule, charge_and_uhf, embed, parse_smiles
+
+_HARTREE_KCAL = sc.physical_constants["Hartree energy"][0] * sc.N_A / (1000 * sc.calorie)
+WEIGHTINGS = ("energy", "free-energy")
+
+
+@dataclass(frozen=True)
+class EnsembleOptions:
+    """Conformer search settings (energies in kcal/mol, RMSD in Angstrom, temperature in K)."""
+
+    max_conformers: int = 50
+    max_refined: int = 10
+    mmff_window_kcal: float = 10.0
+    energy_window_kcal: float = 3.0
+    rmsd_angstrom: float = 0.2
+    temperature_K: float = 298.15
+    weighting: str = "energy"
+
+    def validate(self) -> None:
+        if self.weighting not in WEIGHTINGS:
+            raise InputError(f"weighting must be one of {', '.join(WEIGHTINGS)}")
+        if self.max_conformers < 1 or self.max_refined < 1:
+            raise InputError("conformer counts must be at least 1")
+        if self.temperature_K <= 0 or self.energy_window_kcal < 0:
+            raise InputError("temperature must be positive and the energy window not negative")
+
+
+@dataclass(frozen=True)
+class Member:
+    """One conformer of the ensemble: its prediction, energy relative to the lowest (kcal/mol),
+    Boltzmann weight, and the cost of its calculation."""
+
+    prediction: Prediction
+    relative_energy_kcal_mol: float
+    weight: float
+    gradient_calls: int
+    seconds: float
+
+    def to_dict(self) -> dict:
+        return {"relative_energy_kcal_mol": self.relative_energy_kcal_mol, "weight": self.weight,
+                "gradient_calls": self.gradient_calls, "seconds": self.seconds,
+                "energy_hartree": self.prediction.record.energy_hartree,
+                "bands": [b.to_dict() for b in self.prediction.bands]}
+
+
+@dataclass(frozen=True)
+class EnsemblePrediction:
+    """A Boltzmann-weighted prediction. Offers the attributes comparison needs (``smiles``,
+    ``bands``, ``wavenumbers_cm1``, ``intensities_km_mol`` weighted, ``spectrum``)."""
+
+    smiles: str
+    members: tuple[Member, ...]
+    spectrum: Spectrum
+    temperature_K: float
+    weighting: str
+    found: int
+    refined: int
+    notes: tuple[str, ...]
+
+    @property
+    def scale(self):
+        return self.members[0].prediction.scale
+
+    def strongest(self, count: int = 5):
+        """The strongest bands after weighting (band intensities times their conformer's weight)."""
+        weighted = [(m.weight * b.intensity_km_mol, b) for m in self.members for b in m.prediction.bands]
+        return [b for _, b in sorted(weighted, key=lambda t: -t[0])[:count]]
+
+    @property
+    def bands(self):
+        return tuple(b for m in self.members for b in m.prediction.bands)
+
+    @property
+    def wavenumbers_cm1(self) -> np.ndarray:
+        return np.concatenate([m.prediction.wavenumbers_cm1 for m in self.members])
+
+    @property
+    def intensities_km_mol(self) -> np.ndarray:
+        return np.concatenate([m.weight * m.prediction.intensities_km_mol for m in self.members])
+
+    def to_dict(self) -> dict:
+        return {"smiles": self.smiles, "temperature_K": self.temperature_K, "weighting": self.weighting,
+                "conformers_found": self.found, "conformers_refined": self.refined, "notes": list(self.notes),
+                "members": [m.to_dict() for m in self.members], "spectrum": self.spectrum.to_dict()}
+
+
+def boltzmann_weights(relative_energies_kcal_mol, temperature_K: float) -> np.ndarray:
+    """exp(-dE/RT) normalised to sum 1 (R from scipy.constants)."""
+    e = np.asarray(relative_energies_kcal_mol, float) * 1000 * sc.calorie  # J/mol
+    x = -(e - e.min()) / (sc.R * temperature_K)
+    w = np.exp(x)
+    return w / w.sum()
+
+
+def rotor_count(mol_noh: Chem.Mol) -> int:
+    """Rotatable bonds (RDKit's count) plus O-H, N-H and S-H rotors on terminal heteroatoms bonded
+    to an sp3 or sp2 atom: their orientation gives distinct conformers (e.g. trans/gauche ethanol)."""
+    n = rdMolDescriptors.CalcNumRotatableBonds(mol_noh)
+    for atom in mol_noh.GetAtoms():
+        if atom.GetAtomicNum() in (7, 8, 16) and atom.GetTotalNumHs() > 0 and atom.GetDegree() == 1:
+            nb = atom.GetNeighbors()[0]
+            if nb.GetDegree() >= 2 and not atom.GetIsAromatic():
+                n += 1
+    return n
+
+
+def _rmsd(mol_a: Chem.Mol, mol_b: Chem.Mol) -> float:
+    """All-atom RMSD after the best symmetry-equivalent alignment (hydrogens count: OH rotamers
+    such as gauche/trans ethanol differ only in them)."""
+    if mol_a.GetNumAtoms() < 3:
+        return 0.0
+    return float(rdMolAlign.GetBestRMS(mol_a, mol_b, maxMatches=1000))
+
+
+def _single_conformer(mol_noh: Chem.Mol, mol_h: Chem.Mol, conf_id: int, smiles: str, notes) -> Molecule:
+    m = mol_h
+    pos = np.array(mol_h.GetConformer(conf_id).GetPositions())
+    charge, uhf = charge_and_uhf(mol_noh)
+    return Molecule(smiles=Chem.MolToSmiles(mol_noh), numbers=np.array([a.GetAtomicNum() for a in m.GetAtoms()]),
+                    positions_angstrom=pos, charge=charge, uhf=uhf,
+                    bonds=tuple((b.GetBeginAtomIdx(), b.GetEndAtomIdx(), float(b.GetBondTypeAsDouble()))
+                                for b in m.GetBonds()),
+                    symbols=tuple(a.GetSymbol() for a in m.GetAtoms()),
+                    molblock=Chem.MolToMolBlock(m, confId=conf_id), notes=tuple(notes))
+
+
+def _conformer_mol(template: Molecule, positions_angstrom) -> Chem.Mol:
+    mol = template.with_positions(positions_angstrom).to_rdkit()
+    return mol
+
+
+def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptions(),
+                     spec: SpectrumOptions = SpectrumOptions(), ens: EnsembleOptions = EnsembleOptions(),
+                     progress: Callable[[str, int, int, str], None] | None = None) -> EnsemblePrediction:
+    """Conformer search, refinement, Hessians and the Boltzmann-weighted spectrum of ``smiles``."""
+    ens.validate()
+    spec.validate()
+    mol_noh, notes = parse_smiles(smiles, largest_fragment=calc.largest_fragment)
+    n_rot = rotor_count(mol_noh)
+    notes = list(notes)
+    if n_rot == 0:
+        mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
+        t0 = time.perf_counter()
+        record, _, n = compute_record(mol, calc, progress)
+        pred = analyse(record, spec, notes=tuple(mol.notes) + tuple(n))
+        grads = record.timings["optimization_gradients"] + record.timings["hessian_gradients"]
+        member = Member(pred, 0.0, 1.0, grads, time.perf_counter() - t0)
+        return EnsemblePrediction(pred.smiles, (member,), pred.spectrum, ens.temperature_K, ens.weighting, 1, 1,
+                                  tuple(notes + ["no rotatable bonds: one conformer"]))
+    count = min(ens.max_conformers, 5 + 10 * n_rot)
+    mol_h = embed(mol_noh, seed=calc.seed, num_conformers=count)
+    conf_ids = [c.GetId() for c in mol_h.GetConformers()]
+    # force-field energies of the (already relaxed, sorted) conformers
+    from rdkit.Chem import AllChem
+
+    if AllChem.MMFFHasAllMoleculeParams(mol_h):
+        props = AllChem.MMFFGetMoleculeProperties(mol_h)
+        ff_e = [AllChem.MMFFGetMoleculeForceField(mol_h, props, confId=c).CalcEnergy() for c in conf_ids]
+    else:
+        ff_e = [AllChem.UFFGetMoleculeForceField(mol_h, confId=c).CalcEnergy() for c in conf_ids]
+    kept: list[int] = []
+    for c, e in zip(conf_ids, ff_e):
+        if e - min(ff_e) > ens.mmff_window_kcal:
+            continue
+        dup = False
+        for k in kept:
+            if abs(ff_e[conf_ids.index(k)] - e) < 0.05:
+                a, b = Chem.Mol(mol_h, confId=c), Chem.Mol(mol_h, confId=k)
+                if _rmsd(a, b) < ens.rmsd_angstrom:
+                    dup = True
+                    break
+        if not dup:
+            kept.append(c)
+        if len(kept) >= ens.max_refined:
+            break
+    found = len(conf_ids)
+    template = _single_conformer(mol_noh, mol_h, kept[0], smiles, notes)
+    # GFN2-xTB optimisation of every kept conformer
+    refined: list[tuple[float, np.ndarray, int, float]] = []
+    for idx, c in enumerate(kept):
+        if progress:
+            progress("conformers", idx, len(kept), f"optimising conformer {idx + 1}/{len(kept)}")
+        x = np.array(mol_h.GetConformer(c).GetPositions()) / Bohr
+        t0 = time.perf_counter()
+        eng = make_engine(template.numbers, x, template.charge, template.uhf, calc.engine)
+        opt = optimize(eng, template.numbers, x, calc.optimizer)
+        refined.append((opt.energy_hartree, opt.positions_bohr * Bohr, opt.gradient_calls, time.perf_counter() - t0))
+    refined.sort(key=lambda r: r[0])
+    unique: list[tuple[float, np.ndarray, int, float]] = []
+    for r in refined:
+        same = any(abs(r[0] - u[0]) * _HARTREE_KCAL < 0.01
+                   and _rmsd(_conformer_mol(template, r[1]), _conformer_mol(template, u[1])) < 0.1
+                   for u in unique)
+        if not same:
+            unique.append(r)
+    e_min = unique[0][0]
+    window = [u for u in unique if (u[0] - e_min) * _HARTREE_KCAL <= ens.energy_window_kcal]
+    preds = []
+    for idx, (e, pos, grads, secs) in enumerate(window):
+        if progress:
+            progress("conformers", idx, len(window), f"Hessian of conformer {idx + 1}/{len(window)}")
+        t0 = time.perf_counter()
+        record, _, n = compute_record(template.with_positions(pos), calc, None)
+        pred = analyse(record, spec, notes=tuple(n))
+        cost = grads + record.timings["optimization_gradients"] + record.timings["hessian_gradients"]
+        preds.append((pred, cost, secs + time.perf_counter() - t0))
+    energies = np.array([p.record.energy_hartree for p, _, _ in preds])
+    if ens.weighting == "free-energy":
+        g = np.array([prediction_thermochemistry(p, ens.temperature_K).gibbs_energy_kj_mol for p, _, _ in preds])
+        rel = (g - g.min()) / sc.calorie  # kJ/mol -> kcal/mol
+    else:
+        rel = (energies - energies.min()) * _HARTREE_KCAL
+    w = boltzmann_weights(rel, ens.temperature_K)
+    members = tuple(Member(p, float(r), float(wi), int(c), float(s)) for (p, c, s), r, wi in zip(preds, rel, w))
+    y = sum(m.weight * m.prediction.spectrum.absorption_km_mol_cm1 for m in members)
+    first = members[0].prediction.spectrum
+    spectrum = dataclasses.replace(first, absorption_km_mol_cm1=np.asarray(y))
+    notes.append(f"{found} conformers embedded, {len(kept)} refined with GFN2-xTB, {len(unique)} distinct minima, "
+                 f"{len(window)} within {ens.energy_window_kcal:g} kcal/mol")
+    return EnsemblePrediction(members[0].prediction.smiles, members, spectrum, ens.temperature_K, ens.weighting,
+                              found, len(kept), tuple(notes))
