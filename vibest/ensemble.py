@@ -33,7 +33,7 @@ from .errors import InputError
 from .predict import (CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record,
                       prediction_thermochemistry)
 from .spectrum import Spectrum
-from .structure import Molecule, build_molecule, charge_and_uhf, embed, parse_smiles
+from .structure import build_molecule, embed, molecule_from_conformer, parse_smiles
 
 _HARTREE_KCAL = sc.physical_constants["Hartree energy"][0] * sc.N_A / (1000 * sc.calorie)
 WEIGHTINGS = ("energy", "free-energy")
@@ -147,23 +147,6 @@ def _rmsd(mol_a: Chem.Mol, mol_b: Chem.Mol) -> float:
     return float(rdMolAlign.GetBestRMS(mol_a, mol_b, maxMatches=1000))
 
 
-def _single_conformer(mol_noh: Chem.Mol, mol_h: Chem.Mol, conf_id: int, smiles: str, notes) -> Molecule:
-    m = mol_h
-    pos = np.array(mol_h.GetConformer(conf_id).GetPositions())
-    charge, uhf = charge_and_uhf(mol_noh)
-    return Molecule(smiles=Chem.MolToSmiles(mol_noh), numbers=np.array([a.GetAtomicNum() for a in m.GetAtoms()]),
-                    positions_angstrom=pos, charge=charge, uhf=uhf,
-                    bonds=tuple((b.GetBeginAtomIdx(), b.GetEndAtomIdx(), float(b.GetBondTypeAsDouble()))
-                                for b in m.GetBonds()),
-                    symbols=tuple(a.GetSymbol() for a in m.GetAtoms()),
-                    molblock=Chem.MolToMolBlock(m, confId=conf_id), notes=tuple(notes))
-
-
-def _conformer_mol(template: Molecule, positions_angstrom) -> Chem.Mol:
-    mol = template.with_positions(positions_angstrom).to_rdkit()
-    return mol
-
-
 def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptions(),
                      spec: SpectrumOptions = SpectrumOptions(), ens: EnsembleOptions = EnsembleOptions(),
                      progress: Callable[[str, int, int, str], None] | None = None) -> EnsemblePrediction:
@@ -209,7 +192,7 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
         if len(kept) >= ens.max_refined:
             break
     found = len(conf_ids)
-    template = _single_conformer(mol_noh, mol_h, kept[0], smiles, notes)
+    template = molecule_from_conformer(mol_noh, mol_h, kept[0], notes)
     # GFN2-xTB optimisation of every kept conformer
     refined: list[tuple[float, np.ndarray, int, float]] = []
     for idx, c in enumerate(kept):
@@ -224,7 +207,7 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
     unique: list[tuple[float, np.ndarray, int, float]] = []
     for r in refined:
         same = any(abs(r[0] - u[0]) * _HARTREE_KCAL < 0.01
-                   and _rmsd(_conformer_mol(template, r[1]), _conformer_mol(template, u[1])) < 0.1
+                   and _rmsd(template.with_positions(r[1]).to_rdkit(), template.with_positions(u[1]).to_rdkit()) < 0.1
                    for u in unique)
         if not same:
             unique.append(r)

@@ -158,21 +158,24 @@ def build_molecule(smiles: str, seed: int = 0xB1B, largest_fragment: bool = Fals
                    prerelax: bool = True) -> Molecule:
     """SMILES -> validated :class:`Molecule` with one force-field-relaxed 3D geometry."""
     mol_noh, notes = parse_smiles(smiles, largest_fragment=largest_fragment)
-    charge, uhf = charge_and_uhf(mol_noh)
     mol = embed(mol_noh, seed=seed, prerelax=prerelax)
-    pos = np.array(mol.GetConformer(0).GetPositions(), dtype=float)
     if mol.GetNumAtoms() == 1:
         raise InputError(f"{smiles!r} is a single atom: it has no vibrations")
-    numbers = np.array([a.GetAtomicNum() for a in mol.GetAtoms()], dtype=int)
+    return molecule_from_conformer(mol_noh, mol, mol.GetConformer(0).GetId(), notes)
+
+
+def molecule_from_conformer(mol_noh: Chem.Mol, mol_h: Chem.Mol, conf_id: int, notes=()) -> Molecule:
+    """:class:`Molecule` of conformer ``conf_id`` of ``mol_h`` (``mol_noh`` gives SMILES, charge, spin)."""
+    charge, uhf = charge_and_uhf(mol_noh)
     return Molecule(
         smiles=Chem.MolToSmiles(mol_noh),
-        numbers=numbers,
-        positions_angstrom=pos,
+        numbers=np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()], dtype=int),
+        positions_angstrom=np.array(mol_h.GetConformer(conf_id).GetPositions(), dtype=float),
         charge=charge,
         uhf=uhf,
-        bonds=_bond_list(mol),
-        symbols=tuple(a.GetSymbol() for a in mol.GetAtoms()),
-        molblock=Chem.MolToMolBlock(mol, confId=mol.GetConformer(0).GetId()),
+        bonds=_bond_list(mol_h),
+        symbols=tuple(a.GetSymbol() for a in mol_h.GetAtoms()),
+        molblock=Chem.MolToMolBlock(mol_h, confId=conf_id),
         notes=tuple(notes),
     )
 

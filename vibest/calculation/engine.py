@@ -125,17 +125,23 @@ class TBLiteEngine(Engine):
         return Evaluation(float(res.get("energy")), np.array(res.get("gradient")), np.array(res.get("dipole")))
 
     def save_guess(self, path: str) -> bool:
+        from tblite.interface import Result
+
         if self._result is None:
             return False
         self._result.save(path)
+        self._guess_path, self._guess = path, Result(self._result)
         return True
 
     def load_guess(self, path: str) -> None:
+        """Restart from the wavefunction at ``path``; the file is read once, later calls copy it."""
         from tblite.interface import Result
 
-        res = Result()
-        res.load(path)
-        self._result = res
+        if getattr(self, "_guess_path", None) != path:
+            cached = Result()
+            cached.load(path)
+            self._guess_path, self._guess = path, cached
+        self._result = Result(self._guess)
 
 
 class XTBEngine(Engine):

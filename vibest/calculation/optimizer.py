@@ -86,13 +86,13 @@ def _max_atom_force(grad: np.ndarray) -> float:
 _RIGID_SHIFT = 1e3
 
 
-def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray) -> np.ndarray:
-    """RFO step (Banerjee et al. 1985) in the space orthogonal to the rigid-body vectors ``rigid``.
+def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray, proj: np.ndarray) -> np.ndarray:
+    """RFO step (Banerjee et al. 1985) in the space orthogonal to the rigid-body vectors ``rigid``
+    (``proj`` = 1 - rigid rigid^T).
 
     The projected Hessian P H P gets a large curvature along the rigid-body directions; one
     eigendecomposition then serves both the projection and the augmented-Hessian root.
     """
-    proj = np.eye(len(grad)) - rigid @ rigid.T
     h = proj @ hess @ proj + _RIGID_SHIFT * (rigid @ rigid.T)
     w, v = np.linalg.eigh(0.5 * (h + h.T))
     internal = w < 0.5 * _RIGID_SHIFT
@@ -145,7 +145,7 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         rb = rigid_body_basis(x)
         proj = np.eye(3 * n) - rb @ rb.T
         gp = proj @ g
-        step = _rfo_step(hess, gp, rb)
+        step = _rfo_step(hess, gp, rb, proj)
         length = np.linalg.norm(step)
         if length > trust:
             step *= trust / length
