@@ -22,7 +22,7 @@ def _measured_csv(path: Path) -> Path:
 
 def test_compare_command_writes_overlay_and_json(tmp_path):
     m = _measured_csv(tmp_path / "m.csv")
-    res = CliRunner().invoke(main, ["compare", str(m), "CC(C)=O", "-q", "--no-cache", "--plot",
+    res = CliRunner().invoke(main, ["compare", str(m), "CC(C)=O", "-q", "--no-store", "--plot",
                                     str(tmp_path / "o.png"), "--json", str(tmp_path / "c.json")])
     assert res.exit_code == 0, res.output
     assert "pearson" in res.output and "C=O stretch" in res.output and "caution" in res.output
@@ -35,8 +35,8 @@ def test_rank_command_table_csv_and_plots(tmp_path):
     m = _measured_csv(tmp_path / "m.csv")
     cands = tmp_path / "c.txt"
     cands.write_text("CC(C)=O acetone\nCC(N)C#N aminonitrile\n")
-    res = CliRunner().invoke(main, ["rank", str(m), "--candidates-file", str(cands), "-q", "--cache",
-                                    str(tmp_path / "cache"), "--csv", str(tmp_path / "r.csv"),
+    res = CliRunner().invoke(main, ["rank", str(m), "--candidates-file", str(cands), "-q", "--store",
+                                    str(tmp_path / "store.sqlite"), "--csv", str(tmp_path / "r.csv"),
                                     "--plot-dir", str(tmp_path / "plots"), "--top", "2"])
     assert res.exit_code == 0, res.output
     lines = [l for l in res.output.splitlines() if l.strip().startswith("1 ")]

@@ -10,7 +10,7 @@ from vibest.compare import compare, match_peaks, Peak, predicted_curve, score, S
 from vibest.measured import ABSORBANCE, MeasuredSpectrum, load_spectrum
 from vibest.ranking import Candidate, rank_candidates, read_candidates
 from vibest.spectrum import grid, line_shape_values
-from vibest.store import RecordCache
+from vibest.store import RecordStore
 
 from .conftest import prediction_of
 
@@ -83,12 +83,12 @@ def test_ranking_from_trade_facts(tmp_path):
     measured = MeasuredSpectrum(x, y, ABSORBANCE, "trade-facts acetone")
     cands = [Candidate("2-aminopropanenitrile", "CC(N)C#N"), Candidate("acetone", "CC(C)=O"),
              Candidate("allyl alcohol", "C=CCO")]
-    cache = RecordCache(tmp_path / "cache")
-    ranking = rank_candidates(measured, cands, cache=cache)
+    store = RecordStore(tmp_path / "store.sqlite")
+    ranking = rank_candidates(measured, cands, store=store)
     assert ranking.entries[0].candidate.name == "acetone"
     assert ranking.entries[0].margin_to_next > 0
-    again = rank_candidates(measured, cands, cache=cache)
-    assert all(e.from_cache for e in again.entries)
+    again = rank_candidates(measured, cands, store=store)
+    assert all(e.from_store for e in again.entries)
     assert [e.candidate.name for e in again.entries] == [e.candidate.name for e in ranking.entries]
 
 

@@ -142,6 +142,23 @@ def comparison_options(f):
     return f
 
 
+def store_options(f):
+    """Where computed records are kept (and found again)."""
+    for opt in reversed([
+        click.option("--store", "store_path", metavar="FILE", default=None,
+                     help="Result store (SQLite file) [$VIBEST_STORE or ~/.cache/vibest/store.sqlite]."),
+        click.option("--no-store", is_flag=True, help="Neither read nor write the result store."),
+    ]):
+        f = opt(f)
+    return f
+
+
+def _store(path, disabled: bool):
+    from .store import RecordStore
+
+    return None if disabled else RecordStore(path)
+
+
 def _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model="alpb"):
     from .calculation.engine import EngineSettings
     from .predict import CalculationOptions
@@ -285,18 +302,16 @@ def solvents_command() -> None:
 @spectrum_options
 @click.option("--plot", "plot_path", metavar="FILE", help="Overlay plot (.png, .svg, .pdf).")
 @click.option("--json", "json_path", metavar="FILE", help="Comparison with peak table as JSON.")
-@click.option("--cache", "cache_dir", metavar="DIR", default=None, help="Record cache directory [~/.cache/vibest/records].")
-@click.option("--no-cache", is_flag=True, help="Neither read nor write the record cache.")
+@store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, baseline,
                     tolerance, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
-                    line_shape, plot_path, json_path, cache_dir, no_cache, quiet) -> None:
+                    line_shape, plot_path, json_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
     from .compare import compare
     from .measured import load_spectrum
-    from .ranking import predict_cached
-    from .store import RecordCache
+    from .ranking import predict_stored
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
@@ -305,7 +320,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
-        pred, _ = predict_cached(smiles, calc, sopts, None if no_cache else RecordCache(cache_dir), progress)
+        pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
         comp = compare(pred, spec, score_name=score_name, range_cm1=compare_range, fit_scale=fit_scale,
                        fit_shift=fit_shift, baseline=baseline, tolerance_cm1=tolerance)
@@ -335,17 +350,15 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @click.option("--json", "json_path", metavar="FILE", help="Ranking with peak tables as JSON.")
 @click.option("--plot-dir", metavar="DIR", default=None, help="Write overlay plots of the best candidates here.")
 @click.option("--top", type=click.IntRange(min=1), default=3, show_default=True, help="How many overlays to plot.")
-@click.option("--cache", "cache_dir", metavar="DIR", default=None, help="Record cache directory [~/.cache/vibest/records].")
-@click.option("--no-cache", is_flag=True, help="Neither read nor write the record cache.")
+@store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
                  baseline, tolerance, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
-                 fwhm, line_shape, csv_path, json_path, plot_dir, top, cache_dir, no_cache, quiet) -> None:
+                 fwhm, line_shape, csv_path, json_path, plot_dir, top, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
     from .measured import load_spectrum
     from .ranking import Candidate, rank_candidates, read_candidates
-    from .store import RecordCache
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
@@ -364,7 +377,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
             progress("candidates", done, total, f"{done}/{total} {name}")
 
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts,
-                                  cache=None if no_cache else RecordCache(cache_dir), score_name=score_name,
+                                  store=_store(store_path, no_store), score_name=score_name,
                                   progress=report, range_cm1=compare_range, fit_scale=fit_scale, fit_shift=fit_shift,
                                   baseline=baseline, tolerance_cm1=tolerance)
         progress.finish()
@@ -382,6 +395,143 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
                 output.plot_overlay(e.comparison, path, measured_label=f"measured {Path(measured).name}",
                                     title=f"rank {e.rank}: {e.candidate.name}  {score_name} {e.score:.3f}")
                 click.echo(f"wrote {path}", err=True)
+
+
+class BatchBar:
+    """Batch progress on stderr: a bar with counts and an ETA (rewritten line on a terminal,
+    a plain line every few seconds otherwise)."""
+
+    def __init__(self, enabled: bool = True, width: int = 24):
+        self.enabled = enabled
+        self.width = width
+        self.tty = sys.stderr.isatty()
+        self.t0 = time.perf_counter()
+        self.counts = {"computed": 0, "stored": 0, "failed": 0}
+        self.worked = 0  # molecules that needed a calculation (stored ones and bad SMILES take no time)
+        self.last_print = 0.0
+
+    def __call__(self, done: int, total: int, entry) -> None:
+        if entry.status in self.counts:
+            self.counts[entry.status] += 1
+        if entry.seconds > 0:
+            self.worked += 1
+        if not self.enabled:
+            return
+        now = time.perf_counter()
+        elapsed = now - self.t0
+        eta = elapsed / self.worked * (total - done) if self.worked else None
+        filled = int(self.width * done / max(total, 1))
+        text = (f"[{'#' * filled}{'.' * (self.width - filled)}] {done}/{total}  computed {self.counts['computed']}"
+                f"  stored {self.counts['stored']}  failed {self.counts['failed']}  elapsed {_clock(elapsed)}"
+                f"  ETA {_clock(eta) if eta is not None and done < total else '--:--'}")
+        if self.tty:
+            click.echo("\r" + text, nl=False, err=True)
+        elif now - self.last_print > 5.0 or done == total:
+            click.echo(text, err=True)
+            self.last_print = now
+
+    def finish(self) -> None:
+        if self.enabled and self.tty:
+            click.echo("", err=True)
+
+
+def _clock(seconds: float) -> str:
+    s = int(round(seconds))
+    return f"{s // 3600}:{s % 3600 // 60:02d}:{s % 60:02d}" if s >= 3600 else f"{s // 60:02d}:{s % 60:02d}"
+
+
+@main.command("batch")
+@click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
+@click.option("-o", "--table", "table_path", metavar="FILE", default=None,
+              help="Summary table (CSV) [INPUT stem + '.vibest.csv' beside the input].")
+@click.option("--output-dir", metavar="DIR", default=None,
+              help="Also write each molecule's bands (JSON) and spectrum (CSV) here.")
+@calculation_options
+@spectrum_options
+@store_options
+@click.option("--scheduler", metavar="ADDRESS", default=None,
+              help="Run on a Dask cluster (e.g. tcp://host:8786) instead of local processes.")
+@click.option("--retry-failed", is_flag=True, help="Compute again molecules whose failure is in the store.")
+@click.option("-q", "--quiet", is_flag=True, help="No progress output.")
+def batch_command(input_path, table_path, output_dir, seed, workers, largest_fragment, backend, solvent, solvent_model,
+                  scale_factor, scale_model, fwhm, line_shape, store_path, no_store, scheduler, retry_failed,
+                  quiet) -> None:
+    """Predict every molecule of INPUT (one 'SMILES [name]' per line, or CSV with smiles,name columns).
+
+    Molecules already in the result store are not recomputed; a failure is recorded for its
+    molecule and the batch goes on. Here --workers counts molecules computed at once (each on
+    one core). Interrupt at any time: finished molecules are kept, a re-run does the rest.
+    """
+    import tempfile
+
+    from .batch import predict_many, read_batch_input
+    from .batch.run import write_batch_table
+    from .predict import CAUTION
+    from .store import RecordStore
+
+    bar = BatchBar(enabled=not quiet)
+    with _user_errors():
+        molecules = read_batch_input(input_path)
+        table = Path(table_path) if table_path else Path(input_path).with_suffix(".vibest.csv")
+        _check_output_path(str(table))
+        calc = _calc_options(seed, None, largest_fragment, backend, solvent, solvent_model)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        tmp = None
+        if no_store:
+            tmp = tempfile.TemporaryDirectory(prefix="vibest-batch-")
+            store = RecordStore(Path(tmp.name) / "store.sqlite")
+        else:
+            store = RecordStore(store_path)
+        client = None
+        if scheduler:
+            from .batch.pool import DaskPool
+
+            client = DaskPool.connect(scheduler).client
+        click.echo(f"{len(molecules)} molecules from {input_path}; store {store.path if not no_store else '(none)'}",
+                   err=True)
+        try:
+            entries = predict_many(molecules, store=store, calc=calc, spec=sopts, workers=workers, client=client,
+                                   output_dir=output_dir, retry_failed=retry_failed, progress=bar)
+        finally:
+            bar.finish()
+            if client is not None:
+                client.close()
+        write_batch_table(entries, table)
+        counts = {k: sum(e.status == k for e in entries) for k in ("computed", "stored", "failed", "not run")}
+        click.echo(f"computed {counts['computed']}, from store {counts['stored']}, failed {counts['failed']}"
+                   + (f", not run {counts['not run']} (interrupted: run the same command again to finish)"
+                      if counts["not run"] else ""), err=True)
+        for e in entries:
+            if e.status == "failed":
+                click.echo(f"  row {e.row} {e.name}: {e.reason}", err=True)
+        click.echo(f"wrote {table}", err=True)
+        click.echo(f"# caution: {CAUTION}", err=True)
+        store.close()
+        if tmp is not None:
+            tmp.cleanup()
+        if counts["not run"]:
+            sys.exit(130)
+
+
+@main.command("store")
+@click.option("--store", "store_path", metavar="FILE", default=None,
+              help="Result store (SQLite file) [$VIBEST_STORE or ~/.cache/vibest/store.sqlite].")
+@click.option("--list", "list_rows", is_flag=True, help="List the stored molecules.")
+def store_command(store_path, list_rows) -> None:
+    """Show what the result store holds and check its integrity."""
+    from .store import RecordStore
+
+    with _user_errors():
+        store = RecordStore(store_path)
+        if not store.path.exists():
+            raise InputError(f"no result store at {store.path}")
+        click.echo(f"store {store.path}: schema version {store.schema_version()}, {store.count()} records, "
+                   f"{store.failure_count()} failures, integrity {store.integrity_check()}")
+        if list_rows:
+            for key, smiles, inchikey, natoms, energy in store.rows():
+                click.echo(f"{key[:12]}  {inchikey or '-':27}  {natoms or '':>4}  "
+                           f"{'' if energy is None else f'{energy:.8f}':>16}  {smiles}")
+        store.close()
 
 
 if __name__ == "__main__":  # pragma: no cover

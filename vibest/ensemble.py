@@ -160,7 +160,7 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
         mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
         t0 = time.perf_counter()
         record, _, n = compute_record(mol, calc, progress)
-        pred = analyse(record, spec, notes=tuple(mol.notes) + tuple(n))
+        pred = analyse(record, spec)
         grads = record.timings["optimization_gradients"] + record.timings["hessian_gradients"]
         member = Member(pred, 0.0, 1.0, grads, time.perf_counter() - t0)
         return EnsemblePrediction(pred.smiles, (member,), pred.spectrum, ens.temperature_K, ens.weighting, 1, 1,
@@ -219,7 +219,7 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
             progress("conformers", idx, len(window), f"Hessian of conformer {idx + 1}/{len(window)}")
         t0 = time.perf_counter()
         record, _, n = compute_record(template.with_positions(pos), calc, None)
-        pred = analyse(record, spec, notes=tuple(n))
+        pred = analyse(record, spec)
         cost = grads + record.timings["optimization_gradients"] + record.timings["hessian_gradients"]
         preds.append((pred, cost, secs + time.perf_counter() - t0))
     energies = np.array([p.record.energy_hartree for p, _, _ in preds])

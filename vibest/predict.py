@@ -277,14 +277,16 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
         hessian_hartree_bohr2=hes.hessian_hartree_bohr2, dipole_e_bohr=ev.dipole_e_bohr,
         dipole_derivatives_e=hes.dipole_derivatives_e,
         settings=options.to_dict() | {"converged": bool(opt.converged)}, timings=timings,
-        molblock=molecule.molblock,
+        molblock=molecule.molblock, notes=tuple(molecule.notes) + tuple(notes),
     )
     return record, bool(opt.converged), notes
 
 
 def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
             masses_amu=None, notes: tuple[str, ...] = ()) -> Prediction:
-    """Turn a Hessian record into bands and a spectrum (no gradients are computed)."""
+    """Turn a Hessian record into bands and a spectrum (no gradients are computed).
+
+    The prediction's notes are the record's notes followed by ``notes``."""
     options.validate()
     scale = options.resolve_scale()
     space = InternalSpace.build(record.positions_angstrom, record.bonds)
@@ -317,7 +319,7 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
     spec = broaden(scaled, modes.intensities_km_mol, options.fwhm_cm1, options.line_shape,
                    grid(*options.range_cm1, options.step_cm1))
     imaginary = tuple(float(w) for w in harmonic if w < -IMAGINARY_THRESHOLD_CM1)
-    all_notes = list(notes)
+    all_notes = list(record.notes) + list(notes)
     if imaginary:
         all_notes.append(f"{len(imaginary)} imaginary mode(s) remain: the geometry is not a true minimum")
     converged = bool(record.settings.get("converged", True))
@@ -369,7 +371,7 @@ def predict(smiles: str, *, seed: int = 0xB1B, largest_fragment: bool = False, s
     molecule = build_molecule(smiles, seed=seed, largest_fragment=largest_fragment)
     record, _, notes = compute_record(molecule, calc_opts, progress)
     t1 = time.perf_counter()
-    pred = analyse(record, spec_opts, notes=tuple(molecule.notes) + tuple(notes))
+    pred = analyse(record, spec_opts)
     record.timings["analysis_seconds"] = time.perf_counter() - t1
     record.timings["total_seconds"] = time.perf_counter() - t0
     return pred

@@ -11,7 +11,7 @@ from .compare import DEFAULT_SCORE, Comparison, compare
 from .errors import InputError, VibestError
 from .measured import MeasuredSpectrum
 from .predict import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record
-from .store import RecordCache
+from .store import RecordStore
 from .structure import build_molecule
 
 
@@ -34,11 +34,11 @@ class RankedCandidate:
     comparison: Comparison | None
     prediction: Prediction | None
     error: str | None = None
-    from_cache: bool = False
+    from_store: bool = False
 
     def to_dict(self) -> dict:
         d = {"rank": self.rank, "name": self.candidate.name, "smiles": self.candidate.smiles, "score": self.score,
-             "margin_to_next": self.margin_to_next, "error": self.error, "from_cache": self.from_cache}
+             "margin_to_next": self.margin_to_next, "error": self.error, "from_store": self.from_store}
         if self.comparison is not None:
             d["comparison"] = self.comparison.to_dict()
         return d
@@ -97,24 +97,22 @@ def read_candidates(path: str | Path) -> list[Candidate]:
     return out
 
 
-def predict_cached(smiles: str, calc: CalculationOptions, spec: SpectrumOptions, cache: RecordCache | None,
+def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions, store: RecordStore | None,
                    progress=None) -> tuple[Prediction, bool]:
-    """Prediction of ``smiles``, computing the record only when the cache has none."""
-    record = cache.get(smiles, calc) if cache else None
+    """Prediction of ``smiles``, computing the record only when the store has none (and storing it)."""
+    record = store.get(smiles, calc) if store is not None else None
     hit = record is not None
-    notes: tuple[str, ...] = ()
     if record is None:
         mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
-        record, _, n = compute_record(mol, calc, progress)
-        notes = tuple(mol.notes) + tuple(n)
-        if cache:
-            cache.put(smiles, calc, record)
-    return analyse(record, spec, notes=notes), hit
+        record, _, _ = compute_record(mol, calc, progress)
+        if store is not None:
+            store.put(smiles, calc, record)
+    return analyse(record, spec), hit
 
 
 def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
-                    cache: RecordCache | None = None, score_name: str = DEFAULT_SCORE,
+                    store: RecordStore | None = None, score_name: str = DEFAULT_SCORE,
                     progress: Callable[[int, int, str], None] | None = None, **compare_options) -> Ranking:
     """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
 
@@ -128,7 +126,7 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
         if progress:
             progress(k, len(candidates), cand.name)
         try:
-            pred, hit = predict_cached(cand.smiles, calc, spec, cache)
+            pred, hit = predict_stored(cand.smiles, calc, spec, store)
             comp = compare(pred, measured, score_name=score_name, **compare_options)
             scored.append((cand, pred, comp, hit))
         except VibestError as exc:

@@ -1,9 +1,19 @@
-"""A directory cache of Hessian records, keyed by structure and every setting that changes them.
+"""A persistent result store: Hessian records in an embedded SQLite database.
 
-Re-analysis (other scaling, widths, comparisons) reads a cached record instead of recomputing.
-The key is a SHA-256 of the canonical SMILES, the calculation settings and the record format
-version; files are written atomically (temporary file + rename), so an interrupted run never
-leaves a half-written record.
+Re-analysis (other scaling, widths, isotopes, comparisons) reads a stored record instead of
+recomputing. Each row is keyed by a SHA-256 of the canonical structure (InChIKey and canonical
+SMILES) and every setting that changes the computed numbers (:class:`CalculationOptions`:
+level of theory, solvent, embedding seed, convergence, finite-difference step) plus
+:data:`CALCULATION_VERSION`, which is raised whenever a vibest release changes the numbers of the
+expensive stage. The record (geometry, Hessian, dipole derivatives, settings, timings) is stored
+as zlib-compressed JSON, exact to the float repr.
+
+Safety:
+- WAL journal mode and a busy timeout, so several processes may read and write at once; every
+  write is one short ``BEGIN IMMEDIATE`` transaction, so a process killed at any moment leaves
+  either the whole row or none of it.
+- The schema version is SQLite's ``PRAGMA user_version``; :data:`MIGRATIONS` upgrades older
+  files step by step when they are opened. A file newer than this vibest is refused, not altered.
 """
 
 from __future__ import annotations
@@ -11,55 +21,252 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-import tempfile
+import sqlite3
+import time
+import zlib
 from pathlib import Path
+from typing import Callable, Iterator
 
 from .calculation.record import RECORD_VERSION, HessianRecord
 from .errors import InputError
 from .predict import CalculationOptions
-from .structure import canonical_smiles
+
+#: Raised when a vibest release changes the numbers of the expensive stage for the same settings.
+CALCULATION_VERSION = 1
+#: Current schema version (PRAGMA user_version).
+SCHEMA_VERSION = 2
+#: Seconds a writer waits for another writer's lock before giving up.
+DEFAULT_TIMEOUT_S = 120.0
 
 
-def default_cache_dir() -> Path:
-    """$VIBEST_CACHE, else $XDG_CACHE_HOME/vibest/records, else ~/.cache/vibest/records."""
-    env = os.environ.get("VIBEST_CACHE")
+def default_store_path() -> Path:
+    """$VIBEST_STORE, else $XDG_CACHE_HOME/vibest/store.sqlite, else ~/.cache/vibest/store.sqlite."""
+    env = os.environ.get("VIBEST_STORE")
     if env:
         return Path(env)
     base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
-    return Path(base) / "vibest" / "records"
+    return Path(base) / "vibest" / "store.sqlite"
 
 
-class RecordCache:
-    """Records stored as JSON files in one directory."""
+def structure_identity(smiles: str) -> tuple[str, str]:
+    """(canonical SMILES, InChIKey) of a SMILES; InChIKey is "" when InChI cannot be made.
 
-    def __init__(self, directory: str | Path | None = None):
-        self.directory = Path(directory) if directory else default_cache_dir()
+    Raises InputError for a SMILES RDKit cannot read."""
+    from rdkit import Chem, RDLogger
+
+    RDLogger.DisableLog("rdApp.*")
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        raise InputError(f"cannot parse SMILES {smiles!r}")
+    canonical = Chem.MolToSmiles(mol)
+    try:
+        inchikey = Chem.MolToInchiKey(mol) or ""
+    except Exception:  # pragma: no cover - InChI library failure
+        inchikey = ""
+    return canonical, inchikey
+
+
+def _encode(record: HessianRecord) -> bytes:
+    return zlib.compress(json.dumps(record.to_dict()).encode(), 6)
+
+
+def _decode(blob: bytes) -> HessianRecord:
+    return HessianRecord.from_dict(json.loads(zlib.decompress(blob)))
+
+
+def _migrate_1(conn: sqlite3.Connection) -> None:
+    """Version 1: one table of records."""
+    conn.execute("""CREATE TABLE IF NOT EXISTS records (
+        key TEXT PRIMARY KEY, inchikey TEXT NOT NULL, smiles TEXT NOT NULL, settings TEXT NOT NULL,
+        created REAL NOT NULL, record BLOB NOT NULL)""")
+
+
+def _migrate_2(conn: sqlite3.Connection) -> None:
+    """Version 2: per-molecule failures, an InChIKey index, and atom count / energy columns
+    (filled from the stored records) for queries without decoding records."""
+    conn.execute("""CREATE TABLE IF NOT EXISTS failures (
+        key TEXT PRIMARY KEY, inchikey TEXT NOT NULL, smiles TEXT NOT NULL, settings TEXT NOT NULL,
+        created REAL NOT NULL, reason TEXT NOT NULL)""")
+    conn.execute("ALTER TABLE records ADD COLUMN natoms INTEGER")
+    conn.execute("ALTER TABLE records ADD COLUMN energy_hartree REAL")
+    conn.execute("ALTER TABLE records ADD COLUMN vibest_version TEXT")
+    conn.execute("CREATE INDEX IF NOT EXISTS records_inchikey ON records (inchikey)")
+    rows = conn.execute("SELECT key, record FROM records").fetchall()
+    for key, blob in rows:
+        rec = _decode(blob)
+        conn.execute("UPDATE records SET natoms = ?, energy_hartree = ? WHERE key = ?",
+                     (rec.natoms, rec.energy_hartree, key))
+
+
+#: schema version reached -> function that upgrades from the version before.
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _migrate_1, 2: _migrate_2}
+
+
+class RecordStore:
+    """Hessian records (and per-molecule failures) in one SQLite file.
+
+    Usable from several processes at once; open one store object per process (the connection is
+    re-opened automatically after a fork). ``path=None`` uses :func:`default_store_path`.
+    """
+
+    def __init__(self, path: str | Path | None = None, timeout_s: float = DEFAULT_TIMEOUT_S):
+        self.path = Path(path) if path else default_store_path()
+        self.timeout_s = float(timeout_s)
+        self._conn: sqlite3.Connection | None = None
+        self._pid = -1
+
+    # -- connection and schema -------------------------------------------------------------
+    def _connect(self) -> sqlite3.Connection:
+        if self._conn is not None and self._pid == os.getpid():
+            return self._conn
+        if self.path.exists() and self.path.is_dir():
+            raise InputError(f"result store {self.path} is a directory; give a file name (e.g. store.sqlite)")
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            conn = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
+        except (OSError, sqlite3.Error) as exc:
+            raise InputError(f"cannot open result store {self.path}: {exc}") from None
+        try:
+            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+            conn.execute("PRAGMA journal_mode = WAL")
+            conn.execute("PRAGMA synchronous = NORMAL")
+            self._upgrade(conn)
+        except sqlite3.DatabaseError as exc:
+            conn.close()
+            raise InputError(f"{self.path} is not a usable vibest result store: {exc}") from None
+        self._conn, self._pid = conn, os.getpid()
+        return conn
+
+    def _upgrade(self, conn: sqlite3.Connection) -> None:
+        version = conn.execute("PRAGMA user_version").fetchone()[0]
+        if version > SCHEMA_VERSION:
+            raise InputError(f"result store {self.path} has schema version {version}, newer than this vibest "
+                             f"understands ({SCHEMA_VERSION}); upgrade vibest or use another file")
+        if version == SCHEMA_VERSION:
+            return
+        with self._write(conn):
+            version = conn.execute("PRAGMA user_version").fetchone()[0]  # another process may have upgraded
+            for target in range(version + 1, SCHEMA_VERSION + 1):
+                MIGRATIONS[target](conn)
+                conn.execute(f"PRAGMA user_version = {target}")
+
+    class _write:
+        """One IMMEDIATE transaction (takes the write lock at once: no lock-upgrade deadlocks)."""
+
+        def __init__(self, conn: sqlite3.Connection):
+            self.conn = conn
+
+        def __enter__(self):
+            self.conn.execute("BEGIN IMMEDIATE")
+            return self.conn
+
+        def __exit__(self, kind, value, tb):
+            self.conn.execute("COMMIT" if kind is None else "ROLLBACK")
+            return False
+
+    def close(self) -> None:
+        if self._conn is not None and self._pid == os.getpid():
+            self._conn.close()
+        self._conn = None
+
+    def __enter__(self) -> "RecordStore":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def __getstate__(self):  # picklable: the connection is not sent
+        return {"path": self.path, "timeout_s": self.timeout_s}
+
+    def __setstate__(self, state):
+        self.__init__(state["path"], state["timeout_s"])
+
+    # -- keys ------------------------------------------------------------------------------
+    @staticmethod
+    def settings_of(options: CalculationOptions) -> dict:
+        """Everything in the key besides the structure."""
+        return {"options": options.to_dict(), "record_version": RECORD_VERSION,
+                "calculation_version": CALCULATION_VERSION}
 
     def key(self, smiles: str, options: CalculationOptions) -> str:
-        payload = json.dumps({"smiles": canonical_smiles(smiles), "options": options.to_dict(),
-                              "record_version": RECORD_VERSION}, sort_keys=True, default=str)
-        return hashlib.sha256(payload.encode()).hexdigest()[:32]
+        canonical, inchikey = structure_identity(smiles)
+        return self.key_of(canonical, inchikey, options)
 
-    def path(self, smiles: str, options: CalculationOptions) -> Path:
-        return self.directory / f"{self.key(smiles, options)}.json"
+    @classmethod
+    def key_of(cls, canonical: str, inchikey: str, options: CalculationOptions) -> str:
+        """Key from a canonical SMILES and InChIKey (see :func:`structure_identity`)."""
+        payload = json.dumps({"smiles": canonical, "inchikey": inchikey, **cls.settings_of(options)},
+                             sort_keys=True, default=str)
+        return hashlib.sha256(payload.encode()).hexdigest()
 
+    # -- records ---------------------------------------------------------------------------
     def get(self, smiles: str, options: CalculationOptions) -> HessianRecord | None:
-        p = self.path(smiles, options)
-        if not p.exists():
+        """The stored record for ``smiles`` with ``options``, or None."""
+        return self.get_by_key(self.key(smiles, options))
+
+    def get_by_key(self, key: str) -> HessianRecord | None:
+        row = self._connect().execute("SELECT record FROM records WHERE key = ?", (key,)).fetchone()
+        if row is None:
             return None
         try:
-            return HessianRecord.load(p)
-        except InputError:
-            return None  # unreadable entry: recompute and overwrite
+            return _decode(row[0])
+        except (ValueError, KeyError, TypeError, zlib.error, InputError):
+            return None  # unreadable row (e.g. a newer record format): recompute and replace
 
-    def put(self, smiles: str, options: CalculationOptions, record: HessianRecord) -> Path:
+    def has(self, key: str) -> bool:
+        return self._connect().execute("SELECT 1 FROM records WHERE key = ?", (key,)).fetchone() is not None
+
+    def put(self, smiles: str, options: CalculationOptions, record: HessianRecord) -> str:
+        """Store ``record`` (replacing any row with the same key, and clearing a stored failure); returns the key."""
+        from . import __version__
+
+        canonical, inchikey = structure_identity(smiles)
+        key = self.key_of(canonical, inchikey, options)
+        blob = _encode(record)
+        conn = self._connect()
+        with self._write(conn):
+            conn.execute("INSERT OR REPLACE INTO records (key, inchikey, smiles, settings, created, record, natoms, "
+                         "energy_hartree, vibest_version) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                         (key, inchikey, canonical, json.dumps(self.settings_of(options), sort_keys=True, default=str),
+                          time.time(), blob, record.natoms, record.energy_hartree, __version__))
+            conn.execute("DELETE FROM failures WHERE key = ?", (key,))
+        return key
+
+    # -- failures --------------------------------------------------------------------------
+    def put_failure(self, smiles: str, options: CalculationOptions, reason: str) -> str:
+        """Record that ``smiles`` failed with ``options`` (kept until it succeeds or is retried)."""
         try:
-            self.directory.mkdir(parents=True, exist_ok=True)
-        except OSError as exc:
-            raise InputError(f"cannot create cache directory {self.directory}: {exc.strerror or exc}") from None
-        p = self.path(smiles, options)
-        fd, tmp = tempfile.mkstemp(dir=self.directory, suffix=".tmp")
-        with os.fdopen(fd, "w") as fh:
-            json.dump(record.to_dict(), fh)
-        os.replace(tmp, p)
-        return p
+            canonical, inchikey = structure_identity(smiles)
+        except InputError:
+            canonical, inchikey = smiles, ""
+        key = self.key_of(canonical, inchikey, options)
+        conn = self._connect()
+        with self._write(conn):
+            conn.execute("INSERT OR REPLACE INTO failures (key, inchikey, smiles, settings, created, reason) "
+                         "VALUES (?, ?, ?, ?, ?, ?)",
+                         (key, inchikey, canonical, json.dumps(self.settings_of(options), sort_keys=True, default=str),
+                          time.time(), reason))
+        return key
+
+    def failure(self, key: str) -> str | None:
+        row = self._connect().execute("SELECT reason FROM failures WHERE key = ?", (key,)).fetchone()
+        return None if row is None else row[0]
+
+    # -- inspection ------------------------------------------------------------------------
+    def count(self) -> int:
+        return self._connect().execute("SELECT COUNT(*) FROM records").fetchone()[0]
+
+    def failure_count(self) -> int:
+        return self._connect().execute("SELECT COUNT(*) FROM failures").fetchone()[0]
+
+    def rows(self) -> Iterator[tuple[str, str, str, int, float]]:
+        """(key, canonical SMILES, InChIKey, atoms, energy Eh) of every stored record."""
+        yield from self._connect().execute(
+            "SELECT key, smiles, inchikey, natoms, energy_hartree FROM records ORDER BY smiles")
+
+    def integrity_check(self) -> str:
+        """SQLite's ``PRAGMA integrity_check`` ("ok" for a sound file)."""
+        return "; ".join(r[0] for r in self._connect().execute("PRAGMA integrity_check").fetchall())
+
+    def schema_version(self) -> int:
+        return self._connect().execute("PRAGMA user_version").fetchone()[0]

@@ -31,6 +31,7 @@ class HessianRecord:
         settings: level of theory and numerical settings (JSON-able).
         timings: counts and seconds per stage (JSON-able).
         molblock: MDL molblock with H in the record's atom order (bond types, formal charges), or "".
+        notes: remarks of the calculation for the user (fragment choice, retries, non-convergence).
     """
 
     smiles: str
@@ -46,6 +47,7 @@ class HessianRecord:
     settings: dict = field(default_factory=dict)
     timings: dict = field(default_factory=dict)
     molblock: str = ""
+    notes: tuple[str, ...] = ()
 
     @property
     def natoms(self) -> int:
@@ -68,6 +70,7 @@ class HessianRecord:
             "settings": self.settings,
             "timings": self.timings,
             "molblock": self.molblock,
+            "notes": list(self.notes),
         }
 
     @classmethod
@@ -90,6 +93,7 @@ class HessianRecord:
             settings=dict(d.get("settings", {})),
             timings=dict(d.get("timings", {})),
             molblock=str(d.get("molblock", "")),
+            notes=tuple(str(n) for n in d.get("notes", ())),
         )
 
     def save(self, path: str | Path) -> None:

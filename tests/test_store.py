@@ -1,0 +1,130 @@
+"""The SQLite result store: exact round trip, keys, schema migration, concurrent writers.
+
+External references: SQLite's own ``PRAGMA integrity_check`` judges the file; RDKit's InChIKey
+(standard InChI) is the structure identity.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import pickle
+import sqlite3
+import subprocess
+import sys
+import textwrap
+import time
+
+import numpy as np
+import pytest
+
+from vibest.calculation.engine import EngineSettings
+from vibest.errors import InputError
+from vibest.predict import CalculationOptions
+from vibest.store import MIGRATIONS, SCHEMA_VERSION, RecordStore, _encode, structure_identity
+
+from .conftest import record_of
+
+
+def test_round_trip_is_exact(tmp_path):
+    rec = record_of("O")
+    store = RecordStore(tmp_path / "s.sqlite")
+    store.put("O", CalculationOptions(), rec)
+    back = store.get("[H]O[H]", CalculationOptions())  # same structure, other spelling
+    assert back is not None
+    np.testing.assert_array_equal(back.hessian_hartree_bohr2, rec.hessian_hartree_bohr2)
+    np.testing.assert_array_equal(back.dipole_derivatives_e, rec.dipole_derivatives_e)
+    np.testing.assert_array_equal(back.positions_angstrom, rec.positions_angstrom)
+    assert back.energy_hartree == rec.energy_hartree and back.bonds == rec.bonds
+    assert store.integrity_check() == "ok" and store.count() == 1
+
+
+def test_key_changes_with_every_result_setting(tmp_path):
+    store = RecordStore(tmp_path / "s.sqlite")
+    base = CalculationOptions()
+    keys = {store.key("CCO", base),
+            store.key("CCO", dataclasses.replace(base, seed=1)),
+            store.key("CCO", dataclasses.replace(base, engine=EngineSettings(solvent="water"))),
+            store.key("CCO", dataclasses.replace(base, hessian_step_bohr=0.01)),
+            store.key("COC", base)}
+    assert len(keys) == 5
+    # the worker count does not change the numbers, so it does not change the key
+    assert store.key("OCC", dataclasses.replace(base, workers=7)) == store.key("CCO", base)
+
+
+def test_structure_identity_uses_standard_inchikey():
+    # Ethanol's standard InChIKey (PubChem CID 702, from memory): LFQSCWFLJHTTHZ-UHFFFAOYSA-N
+    assert structure_identity("OCC") == ("CCO", "LFQSCWFLJHTTHZ-UHFFFAOYSA-N")
+    with pytest.raises(InputError):
+        structure_identity("C1CC")
+
+
+def test_version_1_file_is_migrated(tmp_path):
+    path = tmp_path / "old.sqlite"
+    rec = record_of("O")
+    conn = sqlite3.connect(path)
+    MIGRATIONS[1](conn)
+    conn.execute("INSERT INTO records VALUES (?, ?, ?, ?, ?, ?)",
+                 ("k1", "XLYOFNOQVPJJNP-UHFFFAOYSA-N", "O", "{}", time.time(), _encode(rec)))
+    conn.execute("PRAGMA user_version = 1")
+    conn.commit()
+    conn.close()
+    store = RecordStore(path)
+    assert store.schema_version() == SCHEMA_VERSION
+    assert store.get_by_key("k1").energy_hartree == rec.energy_hartree
+    assert list(store.rows()) == [("k1", "O", "XLYOFNOQVPJJNP-UHFFFAOYSA-N", 3, rec.energy_hartree)]
+    assert store.integrity_check() == "ok"
+
+
+def test_newer_or_foreign_files_are_refused_not_altered(tmp_path):
+    newer = tmp_path / "newer.sqlite"
+    conn = sqlite3.connect(newer)
+    conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
+    conn.close()
+    with pytest.raises(InputError, match="newer"):
+        RecordStore(newer).count()
+    text = tmp_path / "notes.sqlite"
+    text.write_text("this is not a database\n" * 100)
+    with pytest.raises(InputError, match="not a usable"):
+        RecordStore(text).count()
+    assert text.read_text().startswith("this is not")
+    with pytest.raises(InputError, match="directory"):
+        RecordStore(tmp_path).count()
+
+
+def test_failures_are_kept_until_success(tmp_path):
+    store = RecordStore(tmp_path / "s.sqlite")
+    opts = CalculationOptions()
+    key = store.put_failure("O", opts, "SCF did not converge")
+    assert store.failure(key) == "SCF did not converge" and store.failure_count() == 1
+    store.put("O", opts, record_of("O"))
+    assert store.failure(key) is None and store.count() == 1
+
+
+WRITER = textwrap.dedent("""
+    import dataclasses, pickle, sys
+    from vibest.predict import CalculationOptions
+    from vibest.store import RecordStore
+    path, rec_file, worker, count = sys.argv[1], sys.argv[2], int(sys.argv[3]), int(sys.argv[4])
+    rec = pickle.load(open(rec_file, "rb"))
+    store = RecordStore(path)
+    for i in range(count):
+        store.put("O", dataclasses.replace(CalculationOptions(), seed=1000 * worker + i), rec)
+""")
+
+
+def test_concurrent_writers_lose_nothing(tmp_path):
+    """Four processes write 25 records each into one file at the same time."""
+    rec_file = tmp_path / "rec.pkl"
+    rec_file.write_bytes(pickle.dumps(record_of("O")))
+    path = tmp_path / "shared.sqlite"
+    procs = [subprocess.Popen([sys.executable, "-c", WRITER, str(path), str(rec_file), str(w), "25"],
+                              stderr=subprocess.PIPE) for w in range(4)]
+    for p in procs:
+        _, err = p.communicate(timeout=120)
+        assert p.returncode == 0, err.decode()
+    store = RecordStore(path)
+    assert store.count() == 100
+    assert store.integrity_check() == "ok"
+    for w in range(4):
+        for i in (0, 24):
+            assert store.get("O", dataclasses.replace(CalculationOptions(), seed=1000 * w + i)) is not None
