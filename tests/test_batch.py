@@ -131,7 +131,8 @@ def _worker_children(pid: int) -> list[int]:
 
 
 @pytest.mark.slow
-def test_sigkill_mid_batch_then_rerun_completes(tmp_path):
+@pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGINT], ids=["SIGKILL", "SIGINT"])
+def test_killed_batch_then_rerun_completes(tmp_path, sig):
     inp = tmp_path / "set.txt"
     inp.write_text("".join(f"{s} mol{i:02d}\n" for i, s in enumerate(KILL_SET)))
     store_path = tmp_path / "store.sqlite"
@@ -151,8 +152,13 @@ def test_sigkill_mid_batch_then_rerun_completes(tmp_path):
                 break
         time.sleep(0.1)
     assert proc.poll() is None, "batch finished before it could be killed; use a larger set"
-    os.kill(proc.pid, signal.SIGKILL)
-    proc.wait()
+    os.kill(proc.pid, sig)
+    code = proc.wait(timeout=60)
+    if sig == signal.SIGINT:  # an orderly stop: exit 130 and a table that says what is not done
+        assert code == 130
+        with open(tmp_path / "out.csv") as fh:
+            first = [r["status"] for r in csv.DictReader(l for l in fh if not l.startswith("#"))]
+        assert len(first) == len(KILL_SET) and "not run" in first
     # the workers notice that their coordinator is gone and stop within seconds
     t0 = time.time()
     while set(_worker_children(0)) - before and time.time() - t0 < 10:
