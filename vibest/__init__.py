@@ -14,10 +14,12 @@ from .errors import CalculationError, InputError, VibestError  # noqa: E402
 
 _LAZY = {"predict": "predict", "analyse": "predict", "compute_record": "predict", "Prediction": "predict",
          "CAUTION": "predict", "isotopologue": "predict", "prediction_thermochemistry": "predict",
-         "compare": "compare", "rank_candidates": "ranking", "load_spectrum": "measured"}
+         "compare": "compare", "rank_candidates": "ranking", "load_spectrum": "measured",
+         "predict_many": "batch", "RecordStore": "store"}
 
 __all__ = ["predict", "analyse", "compute_record", "Prediction", "CAUTION", "isotopologue",
-           "prediction_thermochemistry", "compare", "rank_candidates", "load_spectrum", "InputError",
+           "prediction_thermochemistry", "compare", "rank_candidates", "load_spectrum", "predict_many", "RecordStore",
+           "InputError",
            "CalculationError", "VibestError", "__version__"]
 
 
