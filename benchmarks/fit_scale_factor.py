@@ -1,12 +1,16 @@
 """Fit vibest's scale models for GFN2-xTB harmonic wavenumbers and print their errors.
 
-Computes every molecule of vibest/data/fundamentals.csv with default settings, pairs computed
-and experimental fundamentals by sorted order within each molecule, and fits on a training split
-of molecules (every 4th molecule from the 3rd is held out):
-  1. uniform: s = sum(w_calc w_exp) / sum(w_calc^2);
-  2. per-coordinate: scaled force field, one force-constant factor per coordinate type.
-Prints MAD / RMS / max per model on train and held-out molecules, per molecule, and per type.
-The default model is the one with the lower held-out MAD.
+Computes every molecule of vibest/data/fundamentals.csv with default settings (flexible molecules
+in their lowest conformer, vibest.reference_records), assigns computed modes to the tabulated
+fundamentals by symmetry class and mode character (vibest.analysis.assignment), and fits on a
+training split of molecules (every 4th molecule from the 3rd is held out):
+  1. uniform: one factor s = sum(w_calc w_exp) / sum(w_calc^2);
+  2. region: one such factor per region of the harmonic wavenumber (<1000, 1000-1600,
+     1600-2000, 2000-2700, >2700 cm^-1);
+  3. per-coordinate: scaled force field (Pulay et al.), one force-constant factor per coordinate type.
+Prints MAD / RMS / max per model on train and held-out molecules, per coordinate type (of the
+mode's dominant coordinate), per molecule, and the rows the assignment could not pair. The
+default model is the one with the lowest held-out MAD.
 
     python benchmarks/fit_scale_factor.py            # print only
     python benchmarks/fit_scale_factor.py --write    # also update vibest/data/scale_factors.json
@@ -16,87 +20,136 @@ from __future__ import annotations
 
 import argparse
 import json
+import pickle
 import sys
+import time
 from pathlib import Path
 
 import numpy as np
 
-from vibest.analysis.calibration import (error_statistics, fit_per_coordinate, prepare_case, reference_molecules,
-                                         scaled_wavenumbers, split_train_test)
-from vibest.analysis.harmonic import harmonic_analysis
-from vibest.analysis.scaling import PER_COORDINATE, UNIFORM, ScaleModel, fit_uniform_factor
-from vibest.predict import CalculationOptions, compute_record
-from vibest.structure import build_molecule
+from vibest.analysis.calibration import (error_statistics, fit_per_coordinate, fit_regions, fit_uniform, pooled,
+                                         predicted_wavenumbers, prepare_case, reference_molecules, split_train_test)
+from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM, ScaleModel
+from vibest.reference_records import reference_record
 
 
-def compute_cases(verbose: bool = True):
+def compute_cases(verbose: bool = True, cache: Path | None = None):
+    records = {}
+    if cache and cache.exists():
+        records = pickle.loads(cache.read_bytes())
     cases = []
     for ref in reference_molecules():
-        mol = build_molecule(ref.smiles)
-        record, converged, _ = compute_record(mol, CalculationOptions(workers=1))
+        t0 = time.perf_counter()
+        if ref.smiles not in records:
+            records[ref.smiles] = reference_record(ref.smiles)
+        case = prepare_case(ref, records[ref.smiles])
         if verbose:
-            print(f"  computed {ref.name:<22} {mol.natoms:>3} atoms{'' if converged else '  (not converged)'}",
-                  file=sys.stderr)
-        cases.append(prepare_case(ref, record))
+            a = case.assignment
+            print(f"  {ref.name:<36} {case.record.natoms:>3} atoms {time.perf_counter() - t0:6.1f} s  "
+                  f"{len(a.rows)}/{len(ref.fundamentals_cm1)} assigned ({a.method})", file=sys.stderr)
+        cases.append(case)
+    if cache:
+        cache.write_bytes(pickle.dumps(records))
     return cases
 
 
 def fit_models(cases):
-    """(train, test, uniform model, per-coordinate model) fitted on the training split."""
+    """(train, test, {name: model}) fitted on the training split."""
     train, test = split_train_test(cases)
-    calc = np.concatenate([np.sort(harmonic_analysis(c.record.numbers, c.record.positions_angstrom,
-                                                     c.record.hessian_hartree_bohr2).wavenumbers_cm1) for c in train])
-    exp = np.concatenate([np.sort(c.reference.fundamentals_cm1) for c in train])
-    s = fit_uniform_factor(calc, exp)
-    uniform = ScaleModel(s, UNIFORM, "fit")
-    per = ScaleModel(s, PER_COORDINATE, "fit", fit_per_coordinate(train, s))
-    return train, test, uniform, per
+    s = fit_uniform(train)
+    models = {
+        "unscaled": ScaleModel(1.0, UNIFORM, "none"),
+        UNIFORM: ScaleModel(s, UNIFORM, "fit"),
+        REGION: ScaleModel(s, REGION, "fit", region_factors=fit_regions(train, s)),
+        PER_COORDINATE: ScaleModel(s, PER_COORDINATE, "fit", fit_per_coordinate(train, s)),
+    }
+    return train, test, models
 
 
 def stats(cases, model):
-    p = np.concatenate([scaled_wavenumbers(c, model) for c in cases])
-    e = np.concatenate([np.sort(c.reference.fundamentals_cm1) for c in cases])
-    return error_statistics(p, e)
+    return error_statistics(*pooled(cases, model))
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--write", action="store_true", help="update vibest/data/scale_factors.json")
+    ap.add_argument("--records", type=Path, default=None, help="pickle file to keep computed records between runs")
     args = ap.parse_args()
-    cases = compute_cases()
-    train, test, uniform, per = fit_models(cases)
-    unscaled = ScaleModel(1.0, UNIFORM, "none")
-    print(f"molecules: {len(train)} train, {len(test)} held out: {', '.join(c.reference.name for c in test)}")
+    cases = compute_cases(cache=args.records)
+    train, test, models = fit_models(cases)
+    n_rows = sum(len(c.reference.fundamentals_cm1) for c in cases)
+    n_pairs = sum(len(c.assignment.rows) for c in cases)
+    print(f"molecules: {len(cases)} ({len(train)} train, {len(test)} held out: {', '.join(c.reference.name for c in test)})")
+    print(f"fundamentals: {n_rows} (degenerate ones counted per component), assigned {n_pairs}, unassigned {n_rows - n_pairs}")
+    by_method: dict[str, int] = {}
+    for c in cases:
+        by_method[c.assignment.method] = by_method.get(c.assignment.method, 0) + 1
+    for m, n in sorted(by_method.items()):
+        print(f"  assignment by {m}: {n} molecules")
     print(f"\n{'model':<16} {'split':<9} {'n':>4} {'MAD':>7} {'RMS':>7} {'max':>7}   (cm-1)")
     table = {}
-    for name, model in (("unscaled", unscaled), ("uniform", uniform), ("per-coordinate", per)):
+    for name, model in models.items():
         for split, cs in (("train", train), ("held-out", test)):
             st = stats(cs, model)
             table[(name, split)] = st
             print(f"{name:<16} {split:<9} {st['count']:>4} {st['mad_cm1']:7.1f} {st['rms_cm1']:7.1f} {st['max_cm1']:7.1f}")
-    print(f"\nuniform factor {uniform.factor:.4f}")
+    print(f"\nuniform factor {models[UNIFORM].factor:.4f}; region factors "
+          + ", ".join(f"{f:.4f}" for f in models[REGION].region_factors) + " (<1000, 1000-1600, 1600-2000, 2000-2700, >2700)")
     print(f"\n{'coordinate type':<28} {'force-constant factor':>21} {'~wavenumber factor':>19}")
-    for t, v in sorted(per.force_constant_factors.items()):
+    for t, v in sorted(models[PER_COORDINATE].force_constant_factors.items()):
         print(f"{t:<28} {v:21.4f} {np.sqrt(v):19.4f}")
-    print(f"\n{'molecule':<22} {'split':<9} {'MAD uniform':>11} {'MAD per-coord':>13}")
+    print("\nerror by the dominant coordinate type of the mode (MAD / max, cm-1; train | held-out)")
+    types = sorted({t for c in cases for t in c.dominant_types})
+    print(f"{'type':<28} {'n':>4} " + " ".join(f"{n:>17}" for n in models if n != "unscaled"))
+    for t in types:
+        row = []
+        for name, model in models.items():
+            if name == "unscaled":
+                continue
+            parts = []
+            for cs in (train, test):
+                p, e = [], []
+                for c in cs:
+                    sel = [k for k, d in enumerate(c.dominant_types) if d == t]
+                    if sel:
+                        p.append(predicted_wavenumbers(c, model)[sel])
+                        e.append(c.experimental_cm1[sel])
+                st = error_statistics(np.concatenate(p), np.concatenate(e)) if p else None
+                parts.append("   -   " if st is None else f"{st['mad_cm1']:3.0f}/{st['max_cm1']:3.0f}")
+            row.append(" | ".join(parts))
+        count = sum(d == t for c in cases for d in c.dominant_types)
+        print(f"{t:<28} {count:>4} " + " ".join(f"{r:>17}" for r in row))
+    print(f"\n{'molecule':<36} {'split':<9} {'MAD uni':>8} {'MAD reg':>8} {'MAD per':>8}  assignment")
     for c in cases:
         split = "held-out" if c in test else "train"
-        print(f"{c.reference.name:<22} {split:<9} {stats([c], uniform)['mad_cm1']:11.1f} {stats([c], per)['mad_cm1']:13.1f}")
-    default = PER_COORDINATE if table[("per-coordinate", "held-out")]["mad_cm1"] < table[("uniform", "held-out")]["mad_cm1"] else UNIFORM
+        st = [stats([c], models[m])["mad_cm1"] for m in (UNIFORM, REGION, PER_COORDINATE)]
+        print(f"{c.reference.name:<36} {split:<9} {st[0]:8.1f} {st[1]:8.1f} {st[2]:8.1f}  {c.assignment.method}")
+    print("\nunassigned rows:")
+    for c in cases:
+        for r in c.assignment.unassigned:
+            print(f"  {c.reference.name}: {c.reference.fundamentals_cm1[r]:.0f} cm-1 {c.reference.symmetries[r]} "
+                  f"{c.reference.descriptions[r]}")
+    candidates = [UNIFORM, REGION, PER_COORDINATE]
+    default = min(candidates, key=lambda n: table[(n, "held-out")]["mad_cm1"])
     print(f"\ndefault model by held-out MAD: {default}")
     if args.write:
         path = Path(__file__).resolve().parents[1] / "vibest" / "data" / "scale_factors.json"
+
+        def summary(name):
+            return {"train_mad_cm1": round(table[(name, "train")]["mad_cm1"], 1),
+                    "heldout_mad_cm1": round(table[(name, "held-out")]["mad_cm1"], 1),
+                    "train_molecules": len(train), "heldout_molecules": len(test)}
+
         out = {
             "default": default,
-            "method": "GFN2-xTB (tblite), vibest default settings; matching by sorted order per molecule",
+            "method": "GFN2-xTB (tblite), vibest default settings; modes assigned by symmetry class and character",
             "script": "benchmarks/fit_scale_factor.py",
-            "uniform": {"factor": round(uniform.factor, 5), "fundamentals": table[("uniform", "train")]["count"],
-                        "molecules": len(train), "train_mad_cm1": round(table[("uniform", "train")]["mad_cm1"], 1),
-                        "heldout_mad_cm1": round(table[("uniform", "held-out")]["mad_cm1"], 1)},
-            PER_COORDINATE: {"force_constant_factors": {k: round(v, 5) for k, v in sorted(per.force_constant_factors.items())},
-                             "train_molecules": len(train),
-                             "train_mad_cm1": round(table[("per-coordinate", "train")]["mad_cm1"], 1),
-                             "heldout_mad_cm1": round(table[("per-coordinate", "held-out")]["mad_cm1"], 1)},
+            "uniform": {"factor": round(models[UNIFORM].factor, 5), "fundamentals": table[(UNIFORM, "train")]["count"],
+                        "molecules": len(train), **summary(UNIFORM)},
+            REGION: {"region_factors": [round(f, 5) for f in models[REGION].region_factors], **summary(REGION)},
+            PER_COORDINATE: {"force_constant_factors": {k: round(v, 5) for k, v in
+                                                        sorted(models[PER_COORDINATE].force_constant_factors.items())},
+                             **summary(PER_COORDINATE)},
         }
         path.write_text(json.dumps(out, indent=1) + "\n")
         print(f"wrote {path}")

@@ -1,9 +1,10 @@
-"""Reference experimental fundamentals and the matching used to fit scale factors (pure).
+"""Reference experimental fundamentals, their assignment to computed modes, and model fits (pure).
 
-The reference table ``vibest/data/fundamentals.csv`` carries its provenance on every row.
-Matching here is by sorted order within one molecule: both the computed harmonic wavenumbers
-and the experimental fundamentals (each repeated by its degeneracy) are sorted and paired.
-This needs the complete set of fundamentals of each molecule (checked: count = 3N-6 or 3N-5).
+The reference table ``vibest/data/fundamentals.csv`` carries its provenance on every row
+(source, whether written from memory, Shimanouchi's uncertainty grade). Computed modes are paired
+with the tabulated fundamentals by symmetry class and mode character
+(:mod:`vibest.analysis.assignment`), not by sorted order. Fits use only assigned pairs; the
+split into training and held-out data is by molecule.
 """
 
 from __future__ import annotations
@@ -13,17 +14,22 @@ from dataclasses import dataclass
 from importlib import resources
 
 import numpy as np
+from scipy.optimize import linear_sum_assignment
 
 
 @dataclass(frozen=True)
 class ReferenceMolecule:
-    """A molecule of the reference set with its experimental fundamentals (cm^-1, expanded by degeneracy)."""
+    """A molecule of the reference set. Per fundamental (expanded by degeneracy, table order):
+    wavenumber (cm^-1), description, symmetry label and degeneracy."""
 
     name: str
     smiles: str
     fundamentals_cm1: np.ndarray
     descriptions: tuple[str, ...]
+    symmetries: tuple[str, ...]
+    degeneracies: tuple[int, ...]
     source: str
+    from_memory: bool
 
 
 def reference_molecules() -> list[ReferenceMolecule]:
@@ -35,60 +41,98 @@ def reference_molecules() -> list[ReferenceMolecule]:
         grouped.setdefault(row["molecule"], []).append(row)
     out = []
     for name, rs in grouped.items():
-        values, descs = [], []
+        values, descs, syms, degs = [], [], [], []
         for r in rs:
-            for _ in range(int(r["degeneracy"])):
+            d = int(r["degeneracy"])
+            for _ in range(d):
                 values.append(float(r["wavenumber_cm1"]))
                 descs.append(r["description"])
-        out.append(ReferenceMolecule(name, rs[0]["smiles"], np.array(values), tuple(descs), rs[0]["source"]))
+                syms.append(r["symmetry"])
+                degs.append(d)
+        out.append(ReferenceMolecule(name, rs[0]["smiles"], np.array(values), tuple(descs), tuple(syms),
+                                     tuple(degs), rs[0]["source"], rs[0]["from_memory"].strip().lower() == "yes"))
     return out
 
 
-def match_sorted(computed_cm1, experimental_cm1) -> tuple[np.ndarray, np.ndarray]:
-    """Pair computed and experimental wavenumbers by sorted order; lengths must agree."""
-    c = np.sort(np.asarray(computed_cm1, dtype=float))
-    e = np.sort(np.asarray(experimental_cm1, dtype=float))
-    if len(c) != len(e):
-        raise ValueError(f"{len(c)} computed modes but {len(e)} reference fundamentals")
-    return c, e
-
-
 def error_statistics(predicted_cm1, experimental_cm1) -> dict[str, float]:
-    """MAD, RMS and maximum absolute error (cm^-1)."""
+    """MAD, RMS and maximum absolute error (cm^-1) and the count."""
     d = np.asarray(predicted_cm1, dtype=float) - np.asarray(experimental_cm1, dtype=float)
+    if not len(d):
+        return {"mad_cm1": float("nan"), "rms_cm1": float("nan"), "max_cm1": float("nan"), "count": 0}
     return {"mad_cm1": float(np.abs(d).mean()), "rms_cm1": float(np.sqrt((d ** 2).mean())),
             "max_cm1": float(np.abs(d).max()), "count": int(len(d))}
 
 
 @dataclass(frozen=True)
 class CalibrationCase:
-    """A reference molecule with its computed record, ready for repeated re-scaling."""
+    """A reference molecule with its computed record, modes, assignment and the coordinate type
+    that dominates each assigned mode (for error tables)."""
 
     reference: ReferenceMolecule
     record: object  # HessianRecord
     space: object  # InternalSpace
     types: tuple[str, ...]
+    modes: object  # HarmonicModes (unscaled)
+    assignment: object  # Assignment
+    dominant_types: tuple[str, ...]  # per assigned pair
+
+    @property
+    def experimental_cm1(self) -> np.ndarray:
+        """Experimental wavenumbers of the assigned rows, in pair order."""
+        return self.reference.fundamentals_cm1[list(self.assignment.rows)]
 
 
-def prepare_case(reference: ReferenceMolecule, record) -> CalibrationCase:
+def prepare_case(reference: ReferenceMolecule, record, use_symmetry: bool = True) -> CalibrationCase:
+    from .assignment import assign_modes
+    from .composition import mode_composition
+    from .harmonic import harmonic_analysis
     from .internal_space import InternalSpace
     from .scaling import coordinate_types
 
     space = InternalSpace.build(record.positions_angstrom, record.bonds)
-    return CalibrationCase(reference, record, space, tuple(coordinate_types(record.numbers, record.bonds,
-                                                                            space.primitives)))
+    types = tuple(coordinate_types(record.numbers, record.bonds, space.primitives))
+    modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2)
+    comp = mode_composition(record.numbers, record.positions_angstrom, record.bonds, record.hessian_hartree_bohr2,
+                            modes.displacements, space=space)
+    ref = reference
+    assignment = assign_modes(record.numbers, record.positions_angstrom, modes, comp, ref.fundamentals_cm1,
+                              ref.descriptions, ref.symmetries, ref.degeneracies, use_symmetry=use_symmetry)
+    dominant = []
+    for m in assignment.modes:
+        if len(types):
+            per_type: dict[str, float] = {}
+            for t, share in zip(types, comp.shares[m]):
+                per_type[t] = per_type.get(t, 0.0) + share
+            dominant.append(max(per_type, key=per_type.get))
+        else:
+            dominant.append("stretch (diatomic)")
+    return CalibrationCase(ref, record, space, types, modes, assignment, tuple(dominant))
 
 
-def scaled_wavenumbers(case: CalibrationCase, model) -> np.ndarray:
-    """Sorted wavenumbers (cm^-1) of the case under a scale model."""
+def _modes_of(record, hessian):
     from .harmonic import harmonic_analysis
 
+    return harmonic_analysis(record.numbers, record.positions_angstrom, hessian)
+
+
+def predicted_wavenumbers(case: CalibrationCase, model) -> np.ndarray:
+    """Scaled wavenumbers (cm^-1) of the case's assigned modes, in pair order, under ``model``.
+
+    For a per-coordinate model the scaled Hessian is diagonalised again and each new mode is
+    matched to the unscaled mode it overlaps most (Hungarian method on |<l', l>|)."""
+    idx = list(case.assignment.modes)
+    w0 = case.modes.wavenumbers_cm1
+    if not model.per_coordinate:
+        return model.apply(w0)[idx]
     rec = case.record
-    if model.per_coordinate:
-        h = model.scaled_hessian(rec.numbers, rec.bonds, rec.hessian_hartree_bohr2, case.space)
-        return np.sort(harmonic_analysis(rec.numbers, rec.positions_angstrom, h).wavenumbers_cm1)
-    w = harmonic_analysis(rec.numbers, rec.positions_angstrom, rec.hessian_hartree_bohr2).wavenumbers_cm1
-    return np.sort(model.apply(w))
+    h = model.scaled_hessian(rec.numbers, rec.bonds, rec.hessian_hartree_bohr2, case.space)
+    scaled = _modes_of(rec, h)
+    a = case.modes.modes_mass_weighted.reshape(len(w0), -1)
+    b = scaled.modes_mass_weighted.reshape(len(scaled.wavenumbers_cm1), -1)
+    r, c = linear_sum_assignment(-np.abs(a @ b.T))
+    mapped = np.empty(len(w0))
+    mapped[r] = scaled.wavenumbers_cm1[c]
+    return mapped[idx]
 
 
 def split_train_test(cases: list, every: int = 4) -> tuple[list, list]:
@@ -98,28 +142,60 @@ def split_train_test(cases: list, every: int = 4) -> tuple[list, list]:
     return train, test
 
 
+def pooled(cases: list, model) -> tuple[np.ndarray, np.ndarray]:
+    """(predicted, experimental) over all assigned pairs of ``cases``."""
+    p = [predicted_wavenumbers(c, model) for c in cases]
+    e = [c.experimental_cm1 for c in cases]
+    return (np.concatenate(p) if p else np.zeros(0)), (np.concatenate(e) if e else np.zeros(0))
+
+
+def fit_uniform(cases: list) -> float:
+    """Least-squares factor s through the origin on the assigned pairs."""
+    from .scaling import fit_uniform_factor
+
+    calc = np.concatenate([c.modes.wavenumbers_cm1[list(c.assignment.modes)] for c in cases])
+    exp = np.concatenate([c.experimental_cm1 for c in cases])
+    return fit_uniform_factor(calc, exp)
+
+
+def fit_regions(cases: list, fallback: float) -> tuple[float, ...]:
+    """One factor per region (:data:`vibest.analysis.scaling.REGION_EDGES_CM1`); ``fallback`` for an empty region."""
+    from .scaling import REGION_EDGES_CM1, fit_uniform_factor, region_index
+
+    calc = np.concatenate([c.modes.wavenumbers_cm1[list(c.assignment.modes)] for c in cases])
+    exp = np.concatenate([c.experimental_cm1 for c in cases])
+    region = region_index(calc)
+    out = []
+    for k in range(len(REGION_EDGES_CM1) + 1):
+        sel = region == k
+        out.append(fit_uniform_factor(calc[sel], exp[sel]) if sel.sum() >= 3 else fallback)
+    return tuple(out)
+
+
 def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
                        prior_cm1: float = 200.0) -> dict[str, float]:
-    """Force-constant factors per coordinate type minimising the squared error of sorted wavenumbers.
+    """Force-constant factors per coordinate type minimising the squared error of assigned pairs.
 
     A weak prior pulls each factor towards uniform_factor^2: a residual prior_cm1 * ln(s_k / s_0)
     per type, so a type seen in few modes cannot drift on noise (Tikhonov regularisation).
     """
     from scipy.optimize import least_squares
 
-    from .scaling import PER_COORDINATE, ScaleModel
+    from .scaling import GEMINAL_COUPLING, PER_COORDINATE, ScaleModel, geminal_xh_pairs
 
     types = sorted({t for c in train for t in c.types})
+    if any(geminal_xh_pairs(c.record.numbers, c.space.primitives) for c in train):
+        types.append(GEMINAL_COUPLING)
     s0 = uniform_factor ** 2
-    exp = [np.sort(c.reference.fundamentals_cm1) for c in train]
+    exp = [c.experimental_cm1 for c in train]
 
     def model_of(logs):
         return ScaleModel(uniform_factor, PER_COORDINATE, "fit",
-                          {t: float(s0 * np.exp(v)) for t, v in zip(types, logs)})
+                          {t: float((1.0 if t == GEMINAL_COUPLING else s0) * np.exp(v)) for t, v in zip(types, logs)})
 
     def residuals(logs):
         m = model_of(logs)
-        r = [scaled_wavenumbers(c, m) - e for c, e in zip(train, exp)]
+        r = [predicted_wavenumbers(c, m) - e for c, e in zip(train, exp)]
         return np.concatenate(r + [prior_cm1 * np.asarray(logs)])
 
     sol = least_squares(residuals, np.zeros(len(types)), method="trf", x_scale=0.05, max_nfev=200)

@@ -1,9 +1,12 @@
 """Frequency scaling: harmonic GFN2-xTB wavenumbers -> estimates of observed fundamentals.
 
-Two models, both fitted by ``benchmarks/fit_scale_factor.py`` on the experimental gas-phase
+Three models, all fitted by ``benchmarks/fit_scale_factor.py`` on the experimental gas-phase
 fundamentals of ``vibest/data/fundamentals.csv`` and shipped in ``vibest/data/scale_factors.json``:
 
 * ``uniform``: every wavenumber times one factor s (least squares through the origin).
+* ``region``: one factor per wavenumber region of the harmonic band (below 1000, 1000-1600,
+  1600-2000, 2000-2700 and above 2700 cm^-1: skeletal, fingerprint, double bonds, triple and
+  cumulated bonds, X-H stretches), each by least squares through the origin.
 * ``per-coordinate``: the scaled-quantum-mechanical force field of Pulay and co-workers
   (P. Pulay, G. Fogarasi, G. Pongor, J. E. Boggs, A. Vargha, J. Am. Chem. Soc. 105, 7037 (1983)):
   the Hessian in internal coordinates is scaled as F'_ij = sqrt(s_i s_j) F_ij, with one factor
@@ -26,7 +29,9 @@ from ..errors import InputError
 from ..internal_coordinates import BEND, LINEAR_BEND, OUT_OF_PLANE, STRETCH, TORSION, Primitive
 from .internal_space import InternalSpace
 
-UNIFORM, PER_COORDINATE, USER = "uniform", "per-coordinate", "user"
+UNIFORM, REGION, PER_COORDINATE, USER = "uniform", "region", "per-coordinate", "user"
+#: upper edges (cm^-1, harmonic) of the regions of the ``region`` model; the last region is open.
+REGION_EDGES_CM1 = (1000.0, 1600.0, 2000.0, 2700.0)
 _SYMBOL = {1.0: "-", 1.5: ":", 2.0: "=", 3.0: "#"}
 _HALOGENS = {9, 17, 35, 53}
 
@@ -41,6 +46,8 @@ class ScaleModel:
             (its square scales force constants of coordinate types without a fitted factor).
         force_constant_factors: per coordinate type, the factor s_k on force constants
             (per-coordinate model only; wavenumbers scale roughly as sqrt(s_k)).
+        region_factors: wavenumber factors of the regions split at :data:`REGION_EDGES_CM1`
+            (region model only).
         source: where the numbers come from.
     """
 
@@ -48,6 +55,7 @@ class ScaleModel:
     name: str = UNIFORM
     source: str = ""
     force_constant_factors: dict[str, float] = field(default_factory=dict)
+    region_factors: tuple[float, ...] = ()
 
     @property
     def per_coordinate(self) -> bool:
@@ -57,11 +65,17 @@ class ScaleModel:
         """Short text for reports, e.g. "uniform factor 0.9939" or "per-coordinate (12 types)"."""
         if self.per_coordinate:
             return f"per-coordinate scaled force field ({len(self.force_constant_factors)} types)"
+        if self.name == REGION:
+            return "region factors " + ", ".join(f"{f:.4f}" for f in self.region_factors)
         return f"{self.name} factor {self.factor:.4f}"
 
     def apply(self, wavenumbers_cm1) -> np.ndarray:
-        """Uniformly scaled wavenumbers (cm^-1); imaginary (negative) values scale the same way."""
-        return np.asarray(wavenumbers_cm1, dtype=float) * self.factor
+        """Scaled wavenumbers (cm^-1): one factor, or the factor of each band's region (by the
+        magnitude of the harmonic wavenumber); imaginary (negative) values scale the same way."""
+        w = np.asarray(wavenumbers_cm1, dtype=float)
+        if self.name == REGION and self.region_factors:
+            return w * np.asarray(self.region_factors)[region_index(w)]
+        return w * self.factor
 
     def coordinate_factors(self, numbers, bonds, space: InternalSpace) -> np.ndarray:
         """Force-constant factor of every primitive of ``space`` (dimensionless)."""
@@ -70,26 +84,65 @@ class ScaleModel:
         return np.array([self.force_constant_factors.get(t, fallback) for t in types])
 
     def scaled_hessian(self, numbers, bonds, hessian_hartree_bohr2, space: InternalSpace) -> np.ndarray:
-        """Cartesian Hessian with the internal force constants scaled (Eh/Bohr^2)."""
+        """Cartesian Hessian with the internal force constants scaled (Eh/Bohr^2).
+
+        F'_ij = sqrt(s_i s_j) F_ij, except that the coupling of two X-H stretches on the same
+        atom X is scaled by a further factor (type :data:`GEMINAL_COUPLING`) when the model has
+        one: it sets the splitting of symmetric and antisymmetric XH2/XH3 stretches."""
         if not self.per_coordinate:
             return np.asarray(hessian_hartree_bohr2) * self.factor ** 2
-        return scale_hessian(hessian_hartree_bohr2, space, self.coordinate_factors(numbers, bonds, space))
+        root = np.sqrt(self.coordinate_factors(numbers, bonds, space))
+        matrix = np.outer(root, root)
+        coupling = self.force_constant_factors.get(GEMINAL_COUPLING)
+        if coupling is not None:
+            for i, j in geminal_xh_pairs(numbers, space.primitives):
+                matrix[i, j] *= coupling
+                matrix[j, i] *= coupling
+        return scale_hessian_matrix(hessian_hartree_bohr2, space, matrix)
 
     def to_dict(self) -> dict:
         return {"name": self.name, "factor": self.factor, "source": self.source,
-                "force_constant_factors": dict(self.force_constant_factors)}
+                "force_constant_factors": dict(self.force_constant_factors),
+                "region_factors": list(self.region_factors),
+                "region_edges_cm1": list(REGION_EDGES_CM1) if self.region_factors else []}
+
+
+def region_index(wavenumbers_cm1) -> np.ndarray:
+    """Region number (0-4) of each wavenumber, by its magnitude (cm^-1)."""
+    return np.searchsorted(np.asarray(REGION_EDGES_CM1), np.abs(np.asarray(wavenumbers_cm1, dtype=float)), side="right")
 
 
 def scale_hessian(hessian_hartree_bohr2, space: InternalSpace, factors) -> np.ndarray:
     """H' = H + B^T ((sqrt(s) sqrt(s)^T - 1) o F_q) B: exactly H when every s is 1."""
+    root = np.sqrt(np.asarray(factors, dtype=float))
+    return scale_hessian_matrix(hessian_hartree_bohr2, space, np.outer(root, root))
+
+
+def scale_hessian_matrix(hessian_hartree_bohr2, space: InternalSpace, matrix) -> np.ndarray:
+    """H' = H + B^T ((S - 1) o F_q) B for a symmetric matrix S of factors on F_q entries."""
     h = np.asarray(hessian_hartree_bohr2, dtype=float)
     if not len(space.primitives):
         return h.copy()
-    root = np.sqrt(np.asarray(factors, dtype=float))
     fq = space.force_constants(h)
-    delta = (np.outer(root, root) - 1.0) * fq
+    delta = (np.asarray(matrix, dtype=float) - 1.0) * fq
     out = h + space.b.T @ delta @ space.b
     return 0.5 * (out + out.T)
+
+
+#: Type name of the extra factor on couplings of two X-H stretches that share the atom X.
+GEMINAL_COUPLING = "X-H/X-H stretch coupling (same X)"
+
+
+def geminal_xh_pairs(numbers, primitives) -> list[tuple[int, int]]:
+    """Index pairs of X-H stretch primitives that share their heavy atom X."""
+    by_atom: dict[int, list[int]] = {}
+    for k, p in enumerate(primitives):
+        if p.kind == STRETCH:
+            a, b = p.atoms[:2]
+            za, zb = int(numbers[a]), int(numbers[b])
+            if (za == 1) != (zb == 1):
+                by_atom.setdefault(b if za == 1 else a, []).append(k)
+    return [(ks[i], ks[j]) for ks in by_atom.values() for i in range(len(ks)) for j in range(i + 1, len(ks))]
 
 
 def _cumulated_atoms(bonds) -> set[int]:
@@ -99,6 +152,20 @@ def _cumulated_atoms(bonds) -> set[int]:
             for a in (int(i), int(j)):
                 doubles[a] = doubles.get(a, 0) + 1
     return {a for a, c in doubles.items() if c >= 2}
+
+
+def _carbon_kind(c: int, numbers, orders) -> str:
+    """"aldehyde" (C=O on the carbon), "halogenated", "sp", "sp2" or "sp3" for a C-H bond's carbon."""
+    nbrs = [(j if i == c else i, o) for (i, j), o in orders.items() if c in (i, j)]
+    if any(int(numbers[n]) == 8 and o >= 2.0 for n, o in nbrs):
+        return "aldehyde"
+    if any(int(numbers[n]) in _HALOGENS for n, _ in nbrs):
+        return "halogenated"
+    if any(o >= 3.0 for _, o in nbrs) or len(nbrs) == 2:
+        return "sp"
+    if any(o >= 1.5 for _, o in nbrs) or len(nbrs) == 3:
+        return "sp2"
+    return "sp3"
 
 
 def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Primitive]) -> list[str]:
@@ -113,8 +180,13 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
             zi, zj = sorted((int(numbers[a[0]]), int(numbers[a[1]])))
             if zi == 1:
                 # First-row hydrides by element; heavier ones (S, Cl, Br, P, ...) share one type:
-                # GFN2-xTB places their stretches too low by a similar fraction.
-                out.append(f"{chemical_symbols[zj]}-H stretch" if zj <= 10 else "heavy-atom-H stretch")
+                # GFN2-xTB places their stretches too low by a similar fraction. C-H stretches by
+                # the kind of carbon, whose GFN2-xTB errors differ (aldehyde C-H ~100 cm^-1 low).
+                x = a[1] if int(numbers[a[0]]) == 1 else a[0]
+                if zj == 6:
+                    out.append(f"C-H stretch ({_carbon_kind(x, numbers, orders)})")
+                else:
+                    out.append(f"{chemical_symbols[zj]}-H stretch" if zj <= 10 else "heavy-atom-H stretch")
                 continue
             order = orders.get((min(a), max(a)), 1.0)
             sym = _SYMBOL.get(order, "-")
@@ -127,11 +199,17 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
                 name += " (cumulated)"
             out.append(name)
         elif p.kind == BEND:
-            out.append("bend (H)" if 1 in (int(numbers[a[0]]), int(numbers[a[2]])) else "bend")
+            ends = (int(numbers[a[0]]), int(numbers[a[2]]))
+            if ends == (1, 1):
+                out.append(f"H-{chemical_symbols[int(numbers[a[1]])]}-H bend")
+            elif 1 in ends:
+                out.append(f"H-{chemical_symbols[int(numbers[a[1]])]}-X bend")
+            else:
+                out.append("bend")
         elif p.kind == LINEAR_BEND:
             out.append("linear bend")
         elif p.kind == TORSION:
-            out.append("torsion")
+            out.append("torsion (H)" if 1 in (int(numbers[a[0]]), int(numbers[a[3]])) else "torsion")
         elif p.kind == OUT_OF_PLANE:
             out.append("out-of-plane")
         else:  # pragma: no cover - all kinds are listed above
@@ -161,12 +239,24 @@ def per_coordinate_scale_model() -> ScaleModel:
                       {k: float(v) for k, v in fit["force_constant_factors"].items()})
 
 
-SCALE_MODELS = (UNIFORM, PER_COORDINATE)
+def region_scale_model() -> ScaleModel:
+    data = _shipped()
+    fit = data.get(REGION)
+    if fit is None:
+        raise InputError("no region scale factors are shipped with this installation")
+    return ScaleModel(float(data["uniform"]["factor"]), REGION,
+                      f"region factors fitted on {fit['train_molecules']} molecules, benchmarks/fit_scale_factor.py",
+                      region_factors=tuple(float(v) for v in fit["region_factors"]))
+
+
+SCALE_MODELS = (UNIFORM, REGION, PER_COORDINATE)
 
 
 def named_scale_model(name: str) -> ScaleModel:
     if name == UNIFORM:
         return uniform_scale_model()
+    if name == REGION:
+        return region_scale_model()
     if name == PER_COORDINATE:
         return per_coordinate_scale_model()
     raise InputError(f"unknown scale model {name!r}; choose one of {', '.join(SCALE_MODELS)}")

@@ -1,0 +1,26 @@
+"""Hessian records of the reference molecules, as the calibration uses them (expensive stage).
+
+A rigid molecule is computed from its seeded embedding. A flexible one (rotatable bonds, or an
+O-H/N-H/S-H rotor) is computed in its lowest GFN2-xTB conformer: the conformer search of
+:func:`vibest.ensemble.predict_ensemble` with an energy window of 0, because tabulated gas-phase
+fundamentals belong to the most stable conformer (trans 1,2-dichloroethane, Z formic acid, ...).
+"""
+
+from __future__ import annotations
+
+from .calculation.record import HessianRecord
+from .predict import CalculationOptions, compute_record
+
+REFERENCE_OPTIONS = CalculationOptions(workers=1)
+
+
+def reference_record(smiles: str, options: CalculationOptions = REFERENCE_OPTIONS) -> HessianRecord:
+    """Record of the most stable conformer of ``smiles`` (see module docstring)."""
+    from .ensemble import EnsembleOptions, predict_ensemble, rotor_count
+    from .structure import build_molecule, parse_smiles
+
+    if rotor_count(parse_smiles(smiles)[0]) == 0:
+        record, _, _ = compute_record(build_molecule(smiles, seed=options.seed), options)
+        return record
+    ens = predict_ensemble(smiles, calc=options, ens=EnsembleOptions(energy_window_kcal=0.0, max_conformers=30))
+    return ens.members[0].prediction.record
