@@ -161,6 +161,9 @@ def band_label(numbers, bonds, primitives, shares_row, dq_row, groups: GroupMap,
                     f" ({group})" if group and group not in ("alkane", "aromatic") else "")
             elif 1 in ends and centre == "C" and nh >= 2 and group is None:
                 key = f"CH{nh} bend"
+            elif 1 in ends and centre != "C" and nh >= 2:
+                # H-N-C bends of an NH2 group are NH2 deformations (scissor, wag, twist, rock)
+                key = f"{centre}H{nh} bend" + (f" ({group})" if group and group not in ("alkane", "aromatic") else "")
             elif 1 in ends:
                 key = ("aromatic C-H in-plane bend" if group == "aromatic" else
                        f"{centre}-H bend" + (f" ({group})" if group and group != "alkane" else ""))
