@@ -3,9 +3,9 @@
 For every measured spectrum, all molecules of the set are ranked as candidates, and separately
 only its isomers (same molecular formula). Prints top-1 / top-3 rates, mean rank and the margin
 of the right answer per similarity score and broadening, then one line per molecule for the
-default settings. Predictions are cached in the record cache (--cache).
+default settings. Computed records are kept in the result store (--store).
 
-    python benchmarks/identification.py [--cache DIR] [--fwhm 16 30] [--quick]
+    python benchmarks/identification.py [--store FILE] [--fwhm 16 30] [--quick]
 """
 
 from __future__ import annotations
@@ -26,9 +26,9 @@ import measured_set  # noqa: E402
 from vibest.compare import DEFAULT_SCORE, SCORES, compare  # noqa: E402
 from vibest.measured import load_spectrum  # noqa: E402
 from vibest.predict import CalculationOptions, SpectrumOptions  # noqa: E402
-from vibest.ranking import predict_cached  # noqa: E402
+from vibest.ranking import predict_stored  # noqa: E402
 from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
-from vibest.store import RecordCache  # noqa: E402
+from vibest.store import RecordStore  # noqa: E402
 
 
 def formula(smiles: str) -> str:
@@ -66,7 +66,7 @@ def summary(rows) -> str:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--cache", default=None, help="record cache directory")
+    ap.add_argument("--store", default=None, help="result store (SQLite file) [the default store]")
     ap.add_argument("--fwhm", type=float, nargs="+", default=[DEFAULT_FWHM_CM1, 30.0])
     ap.add_argument("--quick", action="store_true", help="default score and first FWHM only")
     args = ap.parse_args()
@@ -77,12 +77,12 @@ def main() -> None:
         return
     entries = measured_set.entries()
     spectra = {e.file: load_spectrum(folder / e.file) for e in entries}
-    cache = RecordCache(args.cache) if args.cache else RecordCache()
+    store = RecordStore(args.store)
     calc = CalculationOptions()
     preds = {}
     for smi in sorted({e.smiles for e in entries}):
-        preds[smi], hit = predict_cached(smi, calc, SpectrumOptions(), cache)
-        print(f"  predicted {smi:<16} {'(cached)' if hit else ''}", file=sys.stderr)
+        preds[smi], hit = predict_stored(smi, calc, SpectrumOptions(), store)
+        print(f"  predicted {smi:<16} {'(stored)' if hit else ''}", file=sys.stderr)
     groups = defaultdict(list)
     for e in entries:
         groups[formula(e.smiles)].append(e.name)
