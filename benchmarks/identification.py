@@ -64,6 +64,16 @@ def summary(rows) -> str:
             f"isomers top-1 {np.mean(iso == 1):6.1%} ({len(iso)})  median margin {np.median(margins):+.3f}")
 
 
+VARIANTS = [  # (label, compare options): the effect of the gas-phase contour and the intensity power
+    ("plain bands, y^1", {"gas_phase": False, "intensity_power": 1.0}),
+    ("plain bands, y^0.5", {"gas_phase": False, "intensity_power": 0.5}),
+    ("gas contours, y^1", {"gas_phase": True, "intensity_power": 1.0}),
+    ("gas contours, y^0.5 (default here)", {"gas_phase": True, "intensity_power": 0.5}),
+    ("same + fitted shift (+-20 cm-1)", {"gas_phase": True, "intensity_power": 0.5, "fit_shift": True,
+                                         "shift_bounds_cm1": (-20.0, 20.0)}),
+]
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--store", default=None, help="result store (SQLite file) [the default store]")
@@ -88,13 +98,19 @@ def main() -> None:
         groups[formula(e.smiles)].append(e.name)
     print(f"{len(entries)} measured spectra, {len(preds)} distinct candidates; isomer groups: "
           + "; ".join(f"{f}: {', '.join(n)}" for f, n in groups.items() if len({x for x in n}) > 1))
+    print("broadening of the predicted spectrum (every file here is a gas-phase spectrum, so the default "
+          "comparison gives predicted bands rotational P/Q/R contours, vibest.gas_phase):")
+    for label, kw in VARIANTS:
+        rows = evaluate(entries, spectra, preds, DEFAULT_SCORE, args.fwhm[0], **kw)
+        print(f"  {label:<36} {summary(rows)}")
     scores = [DEFAULT_SCORE] if args.quick else list(SCORES)
     widths = args.fwhm[:1] if args.quick else args.fwhm
     default_rows = None
+    print("scores and widths (default comparison options):")
     for fwhm in widths:
         for name in scores:
             rows = evaluate(entries, spectra, preds, name, fwhm)
-            print(f"{name:<9} FWHM {fwhm:4.0f}: {summary(rows)}")
+            print(f"  {name:<9} FWHM {fwhm:4.0f}: {summary(rows)}")
             if name == DEFAULT_SCORE and fwhm == widths[0]:
                 default_rows = rows
     print(f"\nper molecule ({DEFAULT_SCORE}, FWHM {widths[0]:g} cm-1):")

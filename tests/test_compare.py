@@ -12,7 +12,7 @@ from vibest.ranking import Candidate, rank_candidates, read_candidates
 from vibest.spectrum import grid, line_shape_values
 from vibest.store import RecordStore
 
-from .conftest import prediction_of
+from .conftest import prediction_of, record_of
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
 
@@ -127,3 +127,46 @@ def test_ranking_against_real_measured_spectra(file, right, others):
     ranking = rank_candidates(measured, [Candidate(s, s) for s in [right] + others])
     assert ranking.entries[0].candidate.smiles == right, [(e.candidate.name, e.score) for e in ranking.entries]
     assert ranking.entries[0].margin_to_next > 0.05
+
+
+def test_rotational_constants_of_water():
+    """Water's rotational constants A 27.9, B 14.5, C 9.3 cm^-1 (ground state, from memory of
+    Herzberg's tables); the GFN2-xTB geometry is close, so 8 % tolerance."""
+    from vibest.gas_phase import rotational_constants_cm1
+
+    rec = record_of("O")
+    a, b, c = rotational_constants_cm1(rec.numbers, rec.positions_angstrom)
+    assert a == pytest.approx(27.9, rel=0.08) and b == pytest.approx(14.5, rel=0.08) and c == pytest.approx(9.3, rel=0.08)
+
+
+def test_branch_maxima_follow_the_classical_p_r_separation():
+    """P-R maxima separation sqrt(8 B kT / hc) = 2.3583 sqrt(B T) cm^-1 (Gerhard & Dennison,
+    Phys. Rev. 43, 197 (1933), from memory); for CO, B = 1.93 cm^-1 at 298 K: about 56.6 cm^-1."""
+    from vibest.gas_phase import branch_profile
+
+    x = np.arange(-200, 200.01, 0.1)
+    y = branch_profile(x, 1.93, 298.15)
+    left, right = x[np.argmax(np.where(x < 0, y, 0))], x[np.argmax(np.where(x > 0, y, 0))]
+    assert right - left == pytest.approx(2.3583 * np.sqrt(1.93 * 298.15), abs=0.5)
+    assert np.sum(y) * 0.1 == pytest.approx(1.0, abs=1e-3)
+
+
+def test_gas_phase_contour_keeps_intensity_and_is_chosen_from_the_file(tmp_path):
+    """A band with a contour keeps its integrated intensity; a JCAMP-DX file with ##STATE=GAS
+    switches the contour on by itself (JCAMP-DX 4.24 label, open standard)."""
+    from vibest.gas_phase import envelope_spectrum
+    from vibest.measured import load_spectrum
+    from vibest.measured.jcamp import write_jcamp
+
+    x = grid(1000, 3000, 1.0)
+    s = envelope_spectrum([2000.0], [50.0], 1.93, 0.0, 4.0, "lorentzian", x)
+    assert s.absorption_km_mol_cm1.sum() * 1.0 == pytest.approx(50.0, rel=0.03)
+    assert s.absorption_km_mol_cm1[1000] < 0.3 * s.absorption_km_mol_cm1.max()  # a dip, no Q branch, at the centre
+    pred = prediction_of("C=O")
+    path = tmp_path / "gas.jdx"
+    g = grid(600, 3600, 2.0)
+    write_jcamp(path, g, lorentz(g, 1746) + 0.3 * lorentz(g, 2843), "formaldehyde gas", extra_labels={"STATE": "GAS"})
+    spec = load_spectrum(path)
+    assert spec.phase == "gas"
+    assert compare(pred, spec).settings["gas_phase"] is True
+    assert compare(pred, spec, gas_phase=False).settings["gas_phase"] is False

@@ -123,7 +123,7 @@ def spectrum_options(f):
 
 
 def comparison_options(f):
-    from .compare import DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_SCORE, SCORES
+    from .compare import DEFAULT_INTENSITY_POWER, DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_SCORE, SCORES
 
     for opt in reversed([
         click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
@@ -137,6 +137,10 @@ def comparison_options(f):
         click.option("--baseline", is_flag=True, help="Remove a rubber-band (lower convex hull) baseline from the measured spectrum."),
         click.option("--tolerance", type=float, default=DEFAULT_MATCH_TOLERANCE_CM1, show_default=True,
                      help="Largest shift for a peak match, cm^-1."),
+        click.option("--phase", type=click.Choice(["auto", "gas", "condensed"]), default="auto", show_default=True,
+                     help="gas: give predicted bands rotational P/Q/R contours; auto: gas when the file's ##STATE says so."),
+        click.option("--intensity-power", type=click.FloatRange(0.1, 2.0), default=DEFAULT_INTENSITY_POWER,
+                     show_default=True, help="Compare curves as y**p (p < 1: weak bands count more)."),
     ]):
         f = opt(f)
     return f
@@ -151,6 +155,10 @@ def store_options(f):
     ]):
         f = opt(f)
     return f
+
+
+def _phase(choice: str):
+    return {"auto": None, "gas": True, "condensed": False}[choice]
 
 
 def _store(path, disabled: bool):
@@ -305,7 +313,7 @@ def solvents_command() -> None:
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, baseline,
-                    tolerance, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
+                    tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
                     line_shape, plot_path, json_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
@@ -323,7 +331,8 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
         comp = compare(pred, spec, score_name=score_name, range_cm1=compare_range, fit_scale=fit_scale,
-                       fit_shift=fit_shift, baseline=baseline, tolerance_cm1=tolerance)
+                       fit_shift=fit_shift, baseline=baseline, tolerance_cm1=tolerance, gas_phase=_phase(phase),
+                       intensity_power=intensity_power)
         for note in spec.notes:
             click.echo(f"# note: {note}")
         click.echo(output.comparison_summary(comp))
@@ -353,7 +362,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
-                 baseline, tolerance, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
+                 baseline, tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
                  fwhm, line_shape, csv_path, json_path, plot_dir, top, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
@@ -379,7 +388,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts,
                                   store=_store(store_path, no_store), score_name=score_name,
                                   progress=report, range_cm1=compare_range, fit_scale=fit_scale, fit_shift=fit_shift,
-                                  baseline=baseline, tolerance_cm1=tolerance)
+                                  baseline=baseline, tolerance_cm1=tolerance, gas_phase=_phase(phase),
+                                  intensity_power=intensity_power)
         progress.finish()
         click.echo(output.ranking_table(ranking))
         if csv_path:

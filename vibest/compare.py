@@ -1,7 +1,9 @@
 """Comparison of a predicted with a measured spectrum: scores, scale/shift fit, peak matching.
 
 Both spectra are brought to absorbance on one grid (default 500-3800 cm^-1, 2 cm^-1 steps),
-clipped at zero and scaled to a maximum of 1. Scores (all 1 for identical spectra):
+clipped at zero, scaled to a maximum of 1 and raised to the power ``intensity_power`` (default
+0.5). Predicted bands get gas-phase rotational contours when the measured sample was a gas
+(:mod:`vibest.gas_phase`). Scores (all 1 for identical spectra):
 
 * ``pearson``: Pearson correlation coefficient of the two curves (insensitive to offsets and scale).
 * ``spearman``: Spearman rank correlation (Pearson of the ranks; robust to non-linear intensity errors).
@@ -27,6 +29,10 @@ DEFAULT_SCORE = "pearson"
 DEFAULT_COMPARE_RANGE_CM1 = (500.0, 3800.0)
 DEFAULT_COMPARE_STEP_CM1 = 2.0
 DEFAULT_MATCH_TOLERANCE_CM1 = 40.0
+#: Both normalised curves are compared as y**p: p = 0.5 (square root) lets medium and weak bands
+#: count against the strongest one (GFN2-xTB intensities are uneven); benchmarks/identification.py
+#: measured p = 1, 0.7, 0.5, 0.33 on real spectra.
+DEFAULT_INTENSITY_POWER = 0.5
 
 
 def score(a, b, name: str = DEFAULT_SCORE) -> float:
@@ -130,12 +136,35 @@ class Comparison:
 
 
 def predicted_curve(pred: Prediction, grid_cm1, extra_scale: float = 1.0, shift_cm1: float = 0.0,
-                    fwhm_cm1: float | None = None, line_shape: str | None = None) -> np.ndarray:
-    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift, max 1."""
-    s = broaden(pred.wavenumbers_cm1 * extra_scale + shift_cm1, pred.intensities_km_mol,
-                fwhm_cm1 or pred.spectrum.fwhm_cm1, line_shape or pred.spectrum.line_shape, grid_cm1)
+                    fwhm_cm1: float | None = None, line_shape: str | None = None, gas_phase: bool = False,
+                    temperature_K: float = 298.15) -> np.ndarray:
+    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift, max 1.
+
+    With ``gas_phase`` each band gets a rotational P/Q/R contour (:mod:`vibest.gas_phase`)."""
+    nu = pred.wavenumbers_cm1 * extra_scale + shift_cm1
+    fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
+    shape = line_shape or pred.spectrum.line_shape
+    if gas_phase:
+        from .gas_phase import band_contour_inputs, envelope_spectrum
+
+        b, q = band_contour_inputs(pred)
+        s = envelope_spectrum(nu, pred.intensities_km_mol, b, q, fwhm, shape, grid_cm1, temperature_K)
+    else:
+        s = broaden(nu, pred.intensities_km_mol, fwhm, shape, grid_cm1)
     y = s.absorption_km_mol_cm1
     return y / y.max() if y.max() > 0 else y
+
+
+def smooth(curve, step_cm1: float, fwhm_cm1: float) -> np.ndarray:
+    """Gaussian smoothing of a curve on a uniform grid (FWHM in cm^-1), peak scaled back to the original maximum."""
+    y = np.asarray(curve, dtype=float)
+    if fwhm_cm1 <= 0 or len(y) < 3:
+        return y
+    half = int(np.ceil(2 * fwhm_cm1 / step_cm1))
+    x = np.arange(-half, half + 1) * step_cm1
+    k = line_shape_values(x, 0.0, fwhm_cm1, "gaussian")
+    out = np.convolve(y, k / k.sum(), mode="same")
+    return out * (y.max() / out.max()) if out.max() > 0 else out
 
 
 def pick_peaks(x, y, prominence: float = 0.03, min_separation_cm1: float = 8.0) -> list[Peak]:
@@ -183,8 +212,16 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
             fit_scale: bool = False, scale_bounds: tuple[float, float] = (0.95, 1.05),
             fit_shift: bool = False, shift_bounds_cm1: tuple[float, float] = (-40.0, 40.0),
             fwhm_cm1: float | None = None, line_shape: str | None = None, baseline: bool = False,
-            tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1, prominence: float = 0.03) -> Comparison:
+            tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1, prominence: float = 0.03,
+            gas_phase: bool | None = None, smooth_measured_cm1: float = 0.0,
+            intensity_power: float = DEFAULT_INTENSITY_POWER) -> Comparison:
     """Score a prediction against a measured spectrum, optionally fitting a scale factor and/or shift.
+
+    ``gas_phase`` gives predicted bands rotational contours (for spectra of gases; None: when
+    the measured file says the sample was a gas);
+    ``smooth_measured_cm1`` smooths the measured curve with a Gaussian of that FWHM (resolved
+    rotational lines become an envelope); ``intensity_power`` p compares y**p of both normalised
+    curves (p < 1 lets weak bands count more against strong ones).
 
     The fit maximises the chosen score within the bounds: a coarse grid, then a bounded
     refinement (scipy.optimize.minimize_scalar or Powell for both). The fitted values are
@@ -198,13 +235,23 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     if hi - lo < 50:
         raise InputError(f"{measured.source}: the measured range {mlo:.0f}-{mhi:.0f} cm^-1 does not overlap "
                          f"the comparison range {range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1")
+    if gas_phase is None:
+        gas_phase = measured.phase == "gas"
+    if not (0.1 <= intensity_power <= 2.0):
+        raise InputError(f"intensity power {intensity_power} must be between 0.1 and 2")
     g = grid(lo, hi, step_cm1)
     m_curve = preprocess(measured, g, baseline=baseline)
+    if smooth_measured_cm1 > 0:
+        m_curve = smooth(m_curve, step_cm1, smooth_measured_cm1)
+    m_curve = m_curve ** intensity_power
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
 
+    def curve(f, s):
+        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase) ** intensity_power
+
     def value(f, s):
-        return score(m_curve, predicted_curve(pred, g, f, s, fwhm, shape), score_name)
+        return score(m_curve, curve(f, s), score_name)
 
     f_best, s_best = 1.0, 0.0
     if fit_scale and fit_shift:
@@ -226,7 +273,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
                                        options={"xatol": 1e-5 if fit_scale else 1e-2})
         best = float(res.x) if -res.fun >= vals[k] else float(pts[k])
         f_best, s_best = (best, 0.0) if fit_scale else (1.0, best)
-    p_curve = predicted_curve(pred, g, f_best, s_best, fwhm, shape)
+    p_curve = curve(f_best, s_best)
     m_peaks = pick_peaks(g, m_curve, prominence)
     p_peaks = pick_peaks(g, p_curve, prominence)
     rows = []
@@ -237,6 +284,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     scores = all_scores(m_curve, p_curve)
     settings = {"range_cm1": [lo, hi], "step_cm1": step_cm1, "fwhm_cm1": fwhm, "line_shape": shape,
                 "baseline": baseline, "fit_scale": fit_scale, "fit_shift": fit_shift,
-                "tolerance_cm1": tolerance_cm1, "prominence": prominence}
+                "tolerance_cm1": tolerance_cm1, "prominence": prominence, "gas_phase": gas_phase,
+                "smooth_measured_cm1": smooth_measured_cm1, "intensity_power": intensity_power}
     return Comparison(pred.smiles, score_name, scores[score_name], scores, f_best, s_best, g, m_curve, p_curve,
                       tuple(rows), settings)

@@ -145,6 +145,9 @@ def comparison_summary(comp) -> str:
             f"{s['spearman']:.3f}, cosine {s['cosine']:.3f}, overlap {s['overlap']:.3f})")
     if comp.settings.get("fit_scale") or comp.settings.get("fit_shift"):
         text += f"\n  fitted: extra scale {comp.extra_scale:.4f}, shift {comp.shift_cm1:+.1f} cm-1"
+    st = comp.settings
+    text += (f"\n  compared as (absorbance)^{st.get('intensity_power', 1.0):g}"
+             + (", predicted bands with gas-phase rotational contours" if st.get("gas_phase") else ""))
     n = sum(m.matched for m in comp.matches)
     nm = sum(m.measured_cm1 is not None for m in comp.matches)
     return text + f"\n  peaks: {n} of {nm} measured peaks matched within {comp.settings['tolerance_cm1']:g} cm-1"

@@ -34,6 +34,7 @@ class MeasuredSpectrum:
         source: file name or description.
         title: the file's title, if any.
         notes: conversions and guesses made while reading.
+        phase: "gas" when the file says the sample was a gas or vapour (JCAMP-DX ##STATE), else "".
     """
 
     wavenumbers_cm1: np.ndarray
@@ -42,6 +43,7 @@ class MeasuredSpectrum:
     source: str = ""
     title: str = ""
     notes: tuple[str, ...] = ()
+    phase: str = ""
 
     def with_note(self, note: str) -> "MeasuredSpectrum":
         return dataclasses.replace(self, notes=self.notes + (note,))
@@ -166,7 +168,11 @@ def load_spectrum(path: str | Path, kind: str | None = None, block: int | None =
             y, kind, ynotes = _classify_yunits(blk.labels.get("YUNITS", ""), y, str(path))
         else:
             ynotes = [f"Y taken as {kind} as requested"]
-        return finish(x, y, kind, str(path), blk.title(), xnotes + ynotes)
+        state = blk.labels.get("STATE", "").strip().lower()
+        spec = finish(x, y, kind, str(path), blk.title(), xnotes + ynotes)
+        if state.startswith(("gas", "vapor", "vapour")):
+            spec = dataclasses.replace(spec, phase="gas")
+        return spec
     x, y, notes = read_delimited(p)
     if kind is None:
         kind, guess = guess_kind(y)

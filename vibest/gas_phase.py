@@ -1,0 +1,125 @@
+"""Gas-phase band contours: rotational P/Q/R envelopes of predicted bands (spectrum stage).
+
+At room temperature a gas-phase band is not a single line but the envelope of its rotational
+lines. For a rigid rotor with rotational constant B (cm^-1) the P and R branch lines at offset
+x ~ 2BJ carry intensity ~ (2J + 1) exp(-B J (J + 1) hc / kT); in the classical limit the
+envelope of each branch is
+
+    E(x) ~ |x| exp(-x^2 / (2 s^2)),   s^2 = 2 B kT / hc,
+
+with maxima at x = +-s, i.e. a P-R separation of sqrt(8 B kT / hc) = 2.3583 sqrt(B T) cm^-1
+(the Gerhard-Dennison result). A Q branch, where present, sits at the band centre.
+
+vibest's model (an approximation, documented as such):
+* B is the mean of the three rotational constants of the optimised geometry (a single B for
+  linear molecules), from the principal moments of inertia (scipy.constants for h, c, k).
+* Transition dipole direction decides the Q branch of linear molecules: parallel bands (dipole
+  derivative along the axis) have none, perpendicular ones put half the intensity in Q. For
+  non-linear molecules a fixed fraction ``q_fraction_nonlinear`` (default 1/3) goes to Q.
+* Each branch is then broadened with the chosen line shape and FWHM (instrument resolution and
+  unresolved structure); the band keeps its integrated intensity.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import constants as sc
+
+from .spectrum import Spectrum, line_shape_values
+
+
+def band_contour_inputs(pred) -> tuple[float, np.ndarray]:
+    """(effective B in cm^-1, Q fraction per band) of a prediction (or the first member of an ensemble)."""
+    from .rigid_body import is_linear
+
+    member = pred.members[0].prediction if hasattr(pred, "members") else pred
+    rec = member.record
+    b = effective_b_cm1(rec.numbers, rec.positions_angstrom)
+    dirs = member.modes.displacements.reshape(member.modes.count, -1) @ rec.dipole_derivatives_e
+    q = q_fractions(rec.numbers, rec.positions_angstrom, dirs, is_linear(rec.positions_angstrom))
+    if hasattr(pred, "members"):
+        q = np.concatenate([np.full(m.prediction.modes.count, q.mean() if len(q) else 0.0) for m in pred.members])
+    return b, q
+
+#: kT/hc at temperature T, in cm^-1 per K
+_KT_HC_PER_K = sc.k / (sc.h * sc.c * 100.0)
+DEFAULT_TEMPERATURE_K = 298.15
+DEFAULT_Q_FRACTION = 1.0 / 3.0
+
+
+def rotational_constants_cm1(numbers, positions_angstrom, masses_amu=None) -> np.ndarray:
+    """Rotational constants A >= B >= C (cm^-1); zero moments (linear axis) give inf."""
+    from ase.data import atomic_masses
+
+    m = np.asarray(masses_amu if masses_amu is not None else atomic_masses[np.asarray(numbers)], dtype=float)
+    x = np.asarray(positions_angstrom, dtype=float)
+    x = x - (m[:, None] * x).sum(0) / m.sum()
+    inertia = np.zeros((3, 3))
+    for mi, r in zip(m, x):
+        inertia += mi * (r @ r * np.eye(3) - np.outer(r, r))
+    moments = np.linalg.eigvalsh(inertia) * sc.atomic_mass * 1e-20  # kg m^2
+    with np.errstate(divide="ignore"):
+        b = sc.h / (8 * np.pi ** 2 * sc.c * 100.0 * moments)
+    return np.sort(np.where(moments > 1e-50, b, np.inf))[::-1]
+
+
+def effective_b_cm1(numbers, positions_angstrom) -> float:
+    """One B for the envelope: the mean of the finite rotational constants (cm^-1)."""
+    b = rotational_constants_cm1(numbers, positions_angstrom)
+    finite = b[np.isfinite(b)]
+    return float(finite.mean()) if len(finite) else 0.0
+
+
+def branch_profile(offsets_cm1, b_cm1: float, temperature_K: float = DEFAULT_TEMPERATURE_K) -> np.ndarray:
+    """P+R envelope |x| exp(-x^2/2s^2), unit area over ``offsets_cm1`` (uniform grid)."""
+    x = np.asarray(offsets_cm1, dtype=float)
+    s2 = 2.0 * b_cm1 * _KT_HC_PER_K * temperature_K
+    e = np.abs(x) * np.exp(-x ** 2 / (2.0 * s2))
+    area = e.sum() * (x[1] - x[0]) if len(x) > 1 else 0.0
+    return e / area if area > 0 else e
+
+
+def q_fractions(numbers, positions_angstrom, dipole_derivatives_mode, linear: bool,
+                q_nonlinear: float = DEFAULT_Q_FRACTION) -> np.ndarray:
+    """Fraction of each band's intensity in its Q branch (see module docstring).
+
+    ``dipole_derivatives_mode``: (modes, 3) transition dipole directions in the molecule frame."""
+    d = np.asarray(dipole_derivatives_mode, dtype=float)
+    if not linear:
+        return np.full(len(d), float(q_nonlinear))
+    from ase.data import atomic_masses
+
+    x = np.asarray(positions_angstrom, dtype=float)
+    m = atomic_masses[np.asarray(numbers)]
+    x = x - (m[:, None] * x).sum(0) / m.sum()
+    axis = x[np.argmax(np.linalg.norm(x, axis=1))]
+    axis = axis / np.linalg.norm(axis)
+    norm = np.linalg.norm(d, axis=1)
+    parallel = np.divide(np.abs(d @ axis), norm, out=np.ones(len(d)), where=norm > 0)
+    return np.where(parallel > 0.7, 0.0, 0.5)
+
+
+def envelope_spectrum(wavenumbers_cm1, intensities_km_mol, b_cm1: float, q_fraction, fwhm_cm1: float,
+                      line_shape: str, grid_cm1, temperature_K: float = DEFAULT_TEMPERATURE_K) -> Spectrum:
+    """Bands with rotational contours on ``grid_cm1``: (1 - q) A (branch envelope * line shape) + q A (line shape)."""
+    x = np.asarray(grid_cm1, dtype=float)
+    nu = np.asarray(wavenumbers_cm1, dtype=float)
+    inten = np.asarray(intensities_km_mol, dtype=float)
+    q = np.broadcast_to(np.asarray(q_fraction, dtype=float), nu.shape)
+    step = float(x[1] - x[0]) if len(x) > 1 else 1.0
+    y = np.zeros_like(x)
+    if b_cm1 <= 0 or not np.isfinite(b_cm1):
+        for c, a in zip(nu[nu > 0], inten[nu > 0]):
+            y += a * line_shape_values(x, c, fwhm_cm1, line_shape)
+        return Spectrum(x, y, line_shape, float(fwhm_cm1))
+    s = np.sqrt(2.0 * b_cm1 * _KT_HC_PER_K * temperature_K)
+    half = max(6.0 * s + 5.0 * fwhm_cm1, 10 * step)
+    offsets = np.arange(-half, half + step / 2, step)
+    kernel_line = line_shape_values(offsets, 0.0, fwhm_cm1, line_shape) * step
+    branches = np.convolve(branch_profile(offsets, b_cm1, temperature_K), kernel_line, mode="same")
+    for c, a, qq in zip(nu, inten, q):
+        if c <= 0:
+            continue
+        contour = np.interp(x - c, offsets, branches, left=0.0, right=0.0)
+        y += a * ((1.0 - qq) * contour + qq * line_shape_values(x, c, fwhm_cm1, line_shape))
+    return Spectrum(x, y, line_shape, float(fwhm_cm1))
