@@ -15,7 +15,6 @@ import numpy as np
 import pytest
 from rdkit import Chem
 
-from vibest.analysis.assignment import assign_modes
 from vibest.analysis.calibration import (error_statistics, fit_uniform, pooled, predicted_wavenumbers, prepare_case,
                                          reference_molecules, split_train_test)
 from vibest.analysis.harmonic import harmonic_analysis

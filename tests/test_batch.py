@@ -36,7 +36,7 @@ def _records(store: RecordStore, smiles_list):
 def test_local_pool_matches_in_process_and_rerun_skips(tmp_path):
     rows = SMALL + [("broken", "C1CC"), ("methanol again", "OC")]
     pooled = predict_many(rows, store=tmp_path / "pool.sqlite", workers=2)
-    serial = predict_many(rows, store=tmp_path / "serial.sqlite", workers=1)
+    predict_many(rows, store=tmp_path / "serial.sqlite", workers=1)
     assert [e.status for e in pooled] == ["computed"] * 5 + ["failed", "computed"]
     assert "cannot parse" in pooled[5].reason
     assert [e.row for e in pooled] == list(range(1, 8)) and pooled[6].canonical_smiles == "CO"

@@ -35,6 +35,12 @@ IMAGINARY_THRESHOLD_CM1 = 20.0
 #: With the default worker count, a Hessian expected to take less than this on one core (s)
 #: runs in-process: starting worker processes would cost more than it saves.
 SERIAL_HESSIAN_SECONDS = 2.0
+#: With worker processes already running (started before the optimisation, or by an earlier
+#: molecule), a Hessian expected to take more than this on one core (s) uses them.
+WARM_POOL_HESSIAN_SECONDS = 0.1
+#: Molecules with at least this many atoms start the worker pool before their optimisation
+#: (smaller ones would only compete with the starting workers for the cores).
+PRESTART_MIN_ATOMS = 15
 CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical model; confirm any "
            "identification with reference standards and a validated method.")
 
@@ -231,6 +237,10 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
     x = molecule.positions_angstrom / Bohr
     engine = make_engine(numbers, x, molecule.charge, molecule.uhf, options.engine)
     workers = options.workers or default_workers()
+    if workers > 1 and len(numbers) >= PRESTART_MIN_ATOMS:
+        from .calculation.workers import prestart
+
+        prestart(workers)  # worker start-up overlaps the optimisation
     timings = {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
                "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
     attempt = 0
@@ -253,7 +263,10 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
             ev = engine.evaluate(x)
             timings["optimization_gradients"] += 1
         per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
-        use = workers if options.workers or 6 * len(numbers) * per_gradient > SERIAL_HESSIAN_SECONDS else 1
+        from .calculation.workers import pool_is_ready
+
+        threshold = WARM_POOL_HESSIAN_SECONDS if pool_is_ready(workers) else SERIAL_HESSIAN_SECONDS
+        use = workers if options.workers or 6 * len(numbers) * per_gradient > threshold else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
                                         progress=lambda d, t: _notify(progress, "hessian", d, t))

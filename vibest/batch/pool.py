@@ -18,7 +18,8 @@ import sys
 import threading
 from typing import Iterable, Iterator
 
-from ..calculation.workers import THREAD_VARIABLES
+from ..calculation.worker_setup import close_process
+from ..calculation.workers import worker_environment
 from .task import TaskOutcome, run_task
 
 Job = tuple  # (job_id, smiles, CalculationOptions)
@@ -37,11 +38,8 @@ class LocalPool:
         self._stop = threading.Event()
 
     def _start(self) -> subprocess.Popen:
-        env = dict(os.environ)
-        for v in THREAD_VARIABLES:
-            env[v] = "1"
         proc = subprocess.Popen([sys.executable, "-m", "vibest.batch.worker_main"], stdin=subprocess.PIPE,
-                                stdout=subprocess.PIPE, env=env)
+                                stdout=subprocess.PIPE, env=worker_environment())
         with self._lock:
             self._procs.add(proc)
         return proc
@@ -55,16 +53,7 @@ class LocalPool:
                 proc.stdin.close()
         except (OSError, ValueError):
             proc.kill()
-        try:
-            proc.wait(timeout=10)
-        except subprocess.TimeoutExpired:  # pragma: no cover
-            proc.kill()
-            proc.wait()
-        for pipe in (proc.stdin, proc.stdout):
-            try:
-                pipe.close()
-            except (OSError, ValueError):
-                pass
+        close_process(proc, 10.0)
         with self._lock:
             self._procs.discard(proc)
 

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import csv
 import re
-import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterable

@@ -1,4 +1,9 @@
-"""Entry point of one Hessian worker process (see :mod:`vibest.calculation.workers`)."""
+"""Entry point of one persistent Hessian worker process (see :mod:`vibest.calculation.workers`).
+
+Serves jobs until it reads "exit" or its input closes; exits by itself within a second when the
+coordinating process disappears. Stray prints of libraries go to stderr, never into the result
+stream. Ctrl-C is left to the coordinating process.
+"""
 
 from __future__ import annotations
 
@@ -7,21 +12,39 @@ import sys
 
 
 def _main() -> None:
+    from vibest.calculation.worker_setup import detach
+
+    results = detach()
     from vibest.calculation.engine import make_engine
     from vibest.calculation.hessian import evaluate_block
 
-    stdout = sys.stdout.buffer
-    try:
-        numbers, x0, charge, uhf, settings, guess, step, tasks = pickle.load(sys.stdin.buffer)
-        engine = make_engine(numbers, x0, charge, uhf, settings)
-        for task in tasks:
-            (item,) = evaluate_block(engine, x0, guess, [task], step)
-            pickle.dump(("result", item), stdout)
-            stdout.flush()
-        pickle.dump(("done", None), stdout)
-    except Exception as exc:
-        pickle.dump(("error", f"{type(exc).__name__}: {exc}"), stdout)
-    stdout.flush()
+    pickle.dump(("ready", None), results)  # imports done: the pool may count on this worker
+    results.flush()
+
+    jobs = sys.stdin.buffer
+    while True:
+        try:
+            header = pickle.load(jobs)
+        except EOFError:
+            return
+        if header == "exit" or header is None:
+            return
+        try:
+            numbers, x0, charge, uhf, settings, guess, step = header
+            engine = make_engine(numbers, x0, charge, uhf, settings)
+            while True:
+                task = pickle.load(jobs)
+                if task is None:
+                    break
+                (item,) = evaluate_block(engine, x0, guess, [task], step)
+                pickle.dump(("result", item), results)
+                results.flush()
+            pickle.dump(("done", None), results)
+            results.flush()
+        except Exception as exc:
+            pickle.dump(("error", f"{type(exc).__name__}: {exc}"), results)
+            results.flush()
+            return
 
 
 if __name__ == "__main__":

@@ -1,73 +1,194 @@
-"""Worker processes for independent single points (Hessian displacements).
+"""A persistent pool of worker processes for independent single points (Hessian displacements).
 
 Each worker is a fresh interpreter (``python -m vibest.calculation.worker_main``) with one
 OpenMP/BLAS thread, so N workers use N cores without over-subscription. Workers never import
 the caller's main script (unlike multiprocessing's spawn), so they are safe from any script.
-The job goes in as one pickle on stdin; results come back as one pickle per displacement on
-stdout, followed by a final ``("done", None)`` or ``("error", message)``.
+
+The pool lives for the whole process: the first Hessian (or :func:`prestart`, which
+:func:`vibest.predict.compute_record` calls before the geometry optimisation) starts the
+workers, and every later Hessian reuses them, so their start-up (importing tblite, ~0.5-1 s) is
+paid once and hidden behind the optimisation. Tasks are handed out one or two at a time
+(dynamic load balancing); each result comes back as soon as it is done.
+
+Protocol per job: a header pickle ``(numbers, x0, charge, uhf, settings, guess_path, step)``,
+then task pickles ``(k, sign)`` and a final ``None``; the worker answers ``("result", item)``
+per task and ``("done", None)`` at the end, or ``("error", message)`` and exits.
 """
 
 from __future__ import annotations
 
+import atexit
 import os
 import pickle
 import queue
+import select
 import subprocess
 import sys
 import threading
+from collections import deque
 
 import numpy as np
 
 from ..errors import CalculationError
+from .worker_setup import close_process
 
 #: Environment variables that set thread counts of OpenMP/BLAS in worker processes.
 THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+#: Tasks in flight per worker (hides the pipe round trip).
+IN_FLIGHT = 2
 
 
-def _reader(proc: subprocess.Popen, out: queue.Queue) -> None:
-    try:
-        while True:
-            try:
-                item = pickle.load(proc.stdout)
-            except EOFError:
-                out.put(("error", "worker process ended unexpectedly"))
-                return
-            out.put(item)
-            if item[0] in ("done", "error"):
-                return
-    except Exception as exc:  # pragma: no cover - broken pipe etc.
-        out.put(("error", f"worker communication failed: {exc}"))
-
-
-def run_in_workers(numbers, x0, charge, uhf, settings, guess_path, step, tasks, workers: int):
-    """Yield (k, sign, gradient, dipole) for every task, computed in ``workers`` processes."""
+def worker_environment() -> dict:
     env = dict(os.environ)
     for v in THREAD_VARIABLES:
         env[v] = "1"
-    procs = []
-    out: queue.Queue = queue.Queue()
-    try:
-        for w in range(workers):
-            proc = subprocess.Popen([sys.executable, "-m", "vibest.calculation.worker_main"], stdin=subprocess.PIPE,
-                                    stdout=subprocess.PIPE, env=env)
-            job = (np.asarray(numbers), np.asarray(x0), charge, uhf, settings, guess_path, step, tasks[w::workers])
-            pickle.dump(job, proc.stdin)
-            proc.stdin.close()
-            procs.append(proc)
-            threading.Thread(target=_reader, args=(proc, out), daemon=True).start()
-        finished = 0
-        while finished < workers:
-            kind, payload = out.get()
-            if kind == "result":
-                yield payload
-            elif kind == "done":
-                finished += 1
-            else:
-                raise CalculationError(f"Hessian worker failed: {payload}")
-    finally:
-        for proc in procs:
-            if proc.poll() is None:
-                proc.kill()
-            proc.wait()
-            if proc.stdout:
-                proc.stdout.close()
+    return env
+
+
+class WorkerPool:
+    """``size`` persistent single-threaded worker processes."""
+
+    def __init__(self, size: int):
+        self.size = int(size)
+        self.procs = [subprocess.Popen([sys.executable, "-m", "vibest.calculation.worker_main"],
+                                       stdin=subprocess.PIPE, stdout=subprocess.PIPE, env=worker_environment())
+                      for _ in range(self.size)]
+        self.lock = threading.Lock()
+        self._ready = [False] * self.size
+
+    def alive(self) -> bool:
+        return all(p.poll() is None for p in self.procs)
+
+    def _read_ready(self, k: int, timeout_s: float | None) -> bool:
+        """Consume worker k's start-up message if it is there (wait up to ``timeout_s``; None: block)."""
+        if self._ready[k]:
+            return True
+        proc = self.procs[k]
+        if timeout_s is not None and not select.select([proc.stdout], [], [], timeout_s)[0]:
+            return False
+        kind, _ = pickle.load(proc.stdout)
+        self._ready[k] = kind == "ready"
+        return self._ready[k]
+
+    def ready(self) -> bool:
+        """Whether every worker has finished starting (does not wait)."""
+        try:
+            return all(self._read_ready(k, 0.0) for k in range(self.size))
+        except (EOFError, OSError, pickle.UnpicklingError):
+            return False
+
+    def close(self) -> None:
+        for p in self.procs:
+            try:
+                if p.poll() is None:
+                    pickle.dump("exit", p.stdin)
+                    p.stdin.close()
+            except (OSError, ValueError):
+                pass
+        for p in self.procs:
+            close_process(p, 5.0)
+
+    def kill(self) -> None:
+        for p in self.procs:
+            if p.poll() is None:
+                p.kill()
+        self.close()
+
+    def _serve(self, k: int, header, pending: deque, guard: threading.Lock, out: queue.Queue) -> None:
+        proc = self.procs[k]
+        try:
+            self._read_ready(k, None)
+            pickle.dump(header, proc.stdin)
+            in_flight = 0
+            finished = False
+            while True:
+                while not finished and in_flight < IN_FLIGHT:
+                    with guard:
+                        task = pending.popleft() if pending else None
+                    if task is None:
+                        pickle.dump(None, proc.stdin)
+                        finished = True
+                    else:
+                        pickle.dump(task, proc.stdin)
+                        in_flight += 1
+                proc.stdin.flush()
+                kind, payload = pickle.load(proc.stdout)
+                if kind == "result":
+                    in_flight -= 1
+                    out.put(("result", payload))
+                elif kind == "done":
+                    out.put(("done", None))
+                    return
+                else:
+                    out.put(("error", payload))
+                    return
+        except (EOFError, OSError, pickle.UnpicklingError) as exc:
+            out.put(("error", f"worker process ended unexpectedly ({type(exc).__name__})"))
+
+    def run(self, header, tasks):
+        """Yield the result of every task (in completion order)."""
+        with self.lock:
+            pending = deque(tasks)
+            guard = threading.Lock()
+            out: queue.Queue = queue.Queue()
+            threads = [threading.Thread(target=self._serve, args=(k, header, pending, guard, out), daemon=True)
+                       for k in range(self.size)]
+            for t in threads:
+                t.start()
+            finished = 0
+            try:
+                while finished < len(threads):
+                    kind, payload = out.get()
+                    if kind == "result":
+                        yield payload
+                    elif kind == "done":
+                        finished += 1
+                    else:
+                        raise CalculationError(f"Hessian worker failed: {payload}")
+            except BaseException:
+                self.kill()  # a broken or abandoned job: the next Hessian starts a fresh pool
+                raise
+
+
+_POOL: WorkerPool | None = None
+_POOL_LOCK = threading.Lock()
+
+
+def get_pool(size: int) -> WorkerPool:
+    """The process-wide pool with ``size`` workers (started, or restarted if dead or of another size)."""
+    global _POOL
+    with _POOL_LOCK:
+        if _POOL is None or _POOL.size != size or not _POOL.alive():
+            if _POOL is not None:
+                _POOL.kill()
+            _POOL = WorkerPool(size)
+        return _POOL
+
+
+def prestart(size: int) -> None:
+    """Start the pool now (non-blocking), so that its start-up overlaps other work."""
+    if size > 1:
+        get_pool(size)
+
+
+def pool_is_ready(size: int) -> bool:
+    """Whether a pool of ``size`` workers is running and done starting."""
+    return _POOL is not None and _POOL.size == size and _POOL.alive() and _POOL.ready()
+
+
+def shutdown() -> None:
+    """Stop the pool (also done at interpreter exit)."""
+    global _POOL
+    with _POOL_LOCK:
+        if _POOL is not None:
+            _POOL.close()
+            _POOL = None
+
+
+atexit.register(shutdown)
+
+
+def run_in_workers(numbers, x0, charge, uhf, settings, guess_path, step, tasks, workers: int):
+    """Yield (k, sign, gradient, dipole) for every task, computed by the pool's ``workers`` processes."""
+    header = (np.asarray(numbers), np.asarray(x0), charge, uhf, settings, guess_path, step)
+    yield from get_pool(workers).run(header, tasks)
