@@ -39,8 +39,8 @@ SERIAL_HESSIAN_SECONDS = 2.0
 #: molecule), a Hessian expected to take more than this on one core (s) uses them.
 WARM_POOL_HESSIAN_SECONDS = 0.1
 #: Molecules with at least this many atoms start the worker pool before their optimisation
-#: (smaller ones would only compete with the starting workers for the cores).
-PRESTART_MIN_ATOMS = 15
+#: (measured with benchmarks/speed.py: 6 gave a higher median speed-up than 15).
+PRESTART_MIN_ATOMS = 6
 CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical model; confirm any "
            "identification with reference standards and a validated method.")
 
