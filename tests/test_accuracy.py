@@ -81,7 +81,7 @@ def test_point_group_and_mode_symmetry(smiles, total, expected):
     if total is not None:
         assert len(ops) + 1 == total
     modes = harmonic_analysis(rec.numbers, rec.positions_angstrom, rec.hessian_hartree_bohr2)
-    got = collections.Counter(s.key for s in mode_symmetries(ops, modes.modes_mass_weighted, modes.wavenumbers_cm1))
+    got = collections.Counter(s.key for s in mode_symmetries(ops, modes.modes_mass_weighted))
     assert dict(got) == expected
 
 

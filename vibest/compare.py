@@ -137,17 +137,18 @@ class Comparison:
 
 def predicted_curve(pred: Prediction, grid_cm1, extra_scale: float = 1.0, shift_cm1: float = 0.0,
                     fwhm_cm1: float | None = None, line_shape: str | None = None, gas_phase: bool = False,
-                    temperature_K: float = 298.15) -> np.ndarray:
+                    temperature_K: float = 298.15, contour: tuple | None = None) -> np.ndarray:
     """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift, max 1.
 
-    With ``gas_phase`` each band gets a rotational P/Q/R contour (:mod:`vibest.gas_phase`)."""
+    With ``gas_phase`` each band gets a rotational P/Q/R contour (:mod:`vibest.gas_phase`);
+    ``contour`` is its (B, Q fractions) when already known."""
     nu = pred.wavenumbers_cm1 * extra_scale + shift_cm1
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
     if gas_phase:
         from .gas_phase import band_contour_inputs, envelope_spectrum
 
-        b, q = band_contour_inputs(pred)
+        b, q = contour if contour is not None else band_contour_inputs(pred)
         s = envelope_spectrum(nu, pred.intensities_km_mol, b, q, fwhm, shape, grid_cm1, temperature_K)
     else:
         s = broaden(nu, pred.intensities_km_mol, fwhm, shape, grid_cm1)
@@ -246,9 +247,14 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     m_curve = m_curve ** intensity_power
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
+    contour = None
+    if gas_phase:
+        from .gas_phase import band_contour_inputs
+
+        contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
 
     def curve(f, s):
-        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase) ** intensity_power
+        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase, contour=contour) ** intensity_power
 
     def value(f, s):
         return score(m_curve, curve(f, s), score_name)

@@ -23,6 +23,7 @@ from .analysis.internal_space import InternalSpace
 from .analysis.scaling import ScaleModel, default_scale_model, named_scale_model, user_scale_model
 from .calculation.engine import EngineSettings, make_engine
 from .calculation.hessian import default_workers, finite_difference_hessian
+from .calculation.workers import pool_is_ready, prestart
 from .calculation.optimizer import OptimizerSettings, optimize
 from .analysis.groups import band_label, find_groups
 from .calculation.record import HessianRecord, record_molecule
@@ -238,8 +239,6 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
     engine = make_engine(numbers, x, molecule.charge, molecule.uhf, options.engine)
     workers = options.workers or default_workers()
     if workers > 1 and len(numbers) >= PRESTART_MIN_ATOMS:
-        from .calculation.workers import prestart
-
         prestart(workers)  # worker start-up overlaps the optimisation
     timings = {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
                "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
@@ -263,8 +262,6 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
             ev = engine.evaluate(x)
             timings["optimization_gradients"] += 1
         per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
-        from .calculation.workers import pool_is_ready
-
         threshold = WARM_POOL_HESSIAN_SECONDS if pool_is_ready(workers) else SERIAL_HESSIAN_SECONDS
         use = workers if options.workers or 6 * len(numbers) * per_gradient > threshold else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,

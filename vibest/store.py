@@ -216,11 +216,14 @@ class RecordStore:
     def has(self, key: str) -> bool:
         return self._connect().execute("SELECT 1 FROM records WHERE key = ?", (key,)).fetchone() is not None
 
-    def put(self, smiles: str, options: CalculationOptions, record: HessianRecord) -> str:
-        """Store ``record`` (replacing any row with the same key, and clearing a stored failure); returns the key."""
+    def put(self, smiles: str, options: CalculationOptions, record: HessianRecord,
+            identity: tuple[str, str] | None = None) -> str:
+        """Store ``record`` (replacing any row with the same key, and clearing a stored failure); returns the key.
+
+        ``identity``: the (canonical SMILES, InChIKey) of ``smiles`` when the caller has them already."""
         from . import __version__
 
-        canonical, inchikey = structure_identity(smiles)
+        canonical, inchikey = identity or structure_identity(smiles)
         key = self.key_of(canonical, inchikey, options)
         blob = _encode(record)
         conn = self._connect()
@@ -233,10 +236,11 @@ class RecordStore:
         return key
 
     # -- failures --------------------------------------------------------------------------
-    def put_failure(self, smiles: str, options: CalculationOptions, reason: str) -> str:
+    def put_failure(self, smiles: str, options: CalculationOptions, reason: str,
+                    identity: tuple[str, str] | None = None) -> str:
         """Record that ``smiles`` failed with ``options`` (kept until it succeeds or is retried)."""
         try:
-            canonical, inchikey = structure_identity(smiles)
+            canonical, inchikey = identity or structure_identity(smiles)
         except InputError:
             canonical, inchikey = smiles, ""
         key = self.key_of(canonical, inchikey, options)

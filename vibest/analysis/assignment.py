@@ -135,7 +135,7 @@ def assign_modes(numbers, positions_angstrom, modes, composition, experimental_c
         ops = symmetry_operations(numbers, positions_angstrom)
         if ops:
             centro = any(op.is_inversion for op in ops)
-            computed = [s.key for s in mode_symmetries(ops, modes.modes_mass_weighted, w)]
+            computed = [s.key for s in mode_symmetries(ops, modes.modes_mass_weighted)]
             tabulated = [label_symmetry(lab, d, centro).key for lab, d in zip(symmetry_labels, degeneracies)]
             need: dict = {}
             for key in tabulated:

@@ -228,23 +228,26 @@ def uniform_scale_model() -> ScaleModel:
                       "benchmarks/fit_scale_factor.py")
 
 
-def per_coordinate_scale_model() -> ScaleModel:
+def _shipped_fit(name: str) -> tuple[dict, float]:
+    """(the shipped fit of model ``name``, the shipped uniform factor); InputError if not shipped."""
     data = _shipped()
-    fit = data.get(PER_COORDINATE)
+    fit = data.get(name)
     if fit is None:
-        raise InputError("no per-coordinate scale factors are shipped with this installation")
-    return ScaleModel(float(data["uniform"]["factor"]), PER_COORDINATE,
+        raise InputError(f"no {name} scale factors are shipped with this installation")
+    return fit, float(data["uniform"]["factor"])
+
+
+def per_coordinate_scale_model() -> ScaleModel:
+    fit, uniform = _shipped_fit(PER_COORDINATE)
+    return ScaleModel(uniform, PER_COORDINATE,
                       f"scaled force field fitted on {fit['train_molecules']} molecules, "
                       "benchmarks/fit_scale_factor.py",
                       {k: float(v) for k, v in fit["force_constant_factors"].items()})
 
 
 def region_scale_model() -> ScaleModel:
-    data = _shipped()
-    fit = data.get(REGION)
-    if fit is None:
-        raise InputError("no region scale factors are shipped with this installation")
-    return ScaleModel(float(data["uniform"]["factor"]), REGION,
+    fit, uniform = _shipped_fit(REGION)
+    return ScaleModel(uniform, REGION,
                       f"region factors fitted on {fit['train_molecules']} molecules, benchmarks/fit_scale_factor.py",
                       region_factors=tuple(float(v) for v in fit["region_factors"]))
 

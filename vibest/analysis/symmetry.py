@@ -110,15 +110,6 @@ def _overlaps(ops: list[SymmetryOperation], modes: np.ndarray) -> np.ndarray:
     return out
 
 
-def mode_characters(ops: list[SymmetryOperation], modes_mass_weighted: np.ndarray) -> np.ndarray:
-    """c[m, r] = <l_m, R_r l_m> for every mode m and operation r (modes (M, N, 3), unit norm)."""
-    modes = np.asarray(modes_mass_weighted, dtype=float)
-    if not ops:
-        return np.ones((len(modes), 0))
-    o = _overlaps(ops, modes)
-    return np.einsum("rmm->mr", o)
-
-
 @dataclass(frozen=True)
 class ModeSymmetry:
     """Convention-free symmetry class of one mode: degeneracy, totally symmetric or not, parity
@@ -133,7 +124,7 @@ class ModeSymmetry:
         return (self.degeneracy, self.totally_symmetric, self.parity)
 
 
-def mode_symmetries(ops: list[SymmetryOperation], modes_mass_weighted: np.ndarray, wavenumbers_cm1=None,
+def mode_symmetries(ops: list[SymmetryOperation], modes_mass_weighted: np.ndarray,
                     threshold: float = 0.9, coupling: float = 0.2) -> list[ModeSymmetry]:
     """Symmetry class of every mode. The degenerate partners of mode m are the modes k that some
     operation mixes into it (|<l_k, R l_m>| > ``coupling``); its degeneracy is 1 + their number."""

@@ -171,6 +171,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
 
     # Structures and keys; duplicates of one structure are computed once.
     jobs: dict[str, list[tuple[int, Candidate, str]]] = {}
+    identities: dict[str, tuple[str, str]] = {}
     for row, cand in enumerate(cands, start=1):
         try:
             canonical, inchikey = structure_identity(cand.smiles)
@@ -178,6 +179,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
             finish(row, BatchEntry(row, cand.name, cand.smiles, "", "failed", str(exc)))
             continue
         key = store.key_of(canonical, inchikey, calc)
+        identities[key] = (canonical, inchikey)
         jobs.setdefault(key, []).append((row, cand, canonical))
 
     todo: list[tuple[int, str, CalculationOptions]] = []
@@ -208,7 +210,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
             key = by_job[outcome.job_id]
             rows = jobs[key]
             if outcome.record is not None:
-                store.put(rows[0][1].smiles, calc, outcome.record)
+                store.put(rows[0][1].smiles, calc, outcome.record, identity=identities[key])
                 for row, cand, canonical in rows:
                     try:
                         entry = _summarise(cand, row, canonical, "computed", outcome.record, spec, key_band_count,
@@ -217,7 +219,8 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
                         entry = BatchEntry(row, cand.name, cand.smiles, canonical, "failed", f"analysis: {exc}")
                     finish(row, entry)
             else:
-                store.put_failure(rows[0][1].smiles, calc, outcome.reason or "unknown failure")
+                store.put_failure(rows[0][1].smiles, calc, outcome.reason or "unknown failure",
+                                  identity=identities[key])
                 for row, cand, canonical in rows:
                     finish(row, BatchEntry(row, cand.name, cand.smiles, canonical, "failed", outcome.reason or "",
                                            seconds=outcome.seconds))

@@ -13,19 +13,12 @@ import sys
 
 
 def _main() -> None:
-    from vibest.calculation.worker_setup import detach
+    from vibest.calculation.worker_setup import detach, jobs
 
     results = detach()
     from vibest.batch.task import run_task
 
-    jobs = sys.stdin.buffer
-    while True:
-        try:
-            job = pickle.load(jobs)
-        except EOFError:
-            return
-        if job is None:
-            return
+    for job in jobs(sys.stdin.buffer):
         pickle.dump(run_task(*job), results)
         results.flush()
 

@@ -12,7 +12,7 @@ import sys
 
 
 def _main() -> None:
-    from vibest.calculation.worker_setup import detach
+    from vibest.calculation.worker_setup import detach, jobs
 
     results = detach()
     from vibest.calculation.engine import make_engine
@@ -21,19 +21,13 @@ def _main() -> None:
     pickle.dump(("ready", None), results)  # imports done: the pool may count on this worker
     results.flush()
 
-    jobs = sys.stdin.buffer
-    while True:
-        try:
-            header = pickle.load(jobs)
-        except EOFError:
-            return
-        if header == "exit" or header is None:
-            return
+    stream = sys.stdin.buffer
+    for header in jobs(stream):
         try:
             numbers, x0, charge, uhf, settings, guess, step = header
             engine = make_engine(numbers, x0, charge, uhf, settings)
             while True:
-                task = pickle.load(jobs)
+                task = pickle.load(stream)
                 if task is None:
                     break
                 (item,) = evaluate_block(engine, x0, guess, [task], step)

@@ -30,6 +30,20 @@ def detach():
     return results
 
 
+def jobs(stream):
+    """Objects pickled to ``stream`` by the coordinator, until it closes or sends None or "exit"."""
+    import pickle
+
+    while True:
+        try:
+            job = pickle.load(stream)
+        except EOFError:
+            return
+        if job is None or (isinstance(job, str) and job == "exit"):
+            return
+        yield job
+
+
 def close_process(proc, timeout_s: float = 10.0) -> None:
     """Wait for a child process (killing it after ``timeout_s``) and close its pipes."""
     import subprocess
