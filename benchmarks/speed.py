@@ -5,7 +5,10 @@ settings (GFN2-xTB, accuracy 0.01, electronic temperature 300 K):
   1. reference: ASE BFGS to the same convergence (largest atomic force below vibest's default,
      5e-5 Eh/Bohr = 2.57e-3 eV/Angstrom) + ase.vibrations.Infrared (central differences,
      step 0.005 Bohr, serial);
-  2. vibest: compute_record (RFO/BFGS optimiser with Lindh model Hessian, parallel Hessian).
+  2. vibest: compute_record (RFO/BFGS optimiser in redundant internal coordinates with Lindh's
+     model Hessian, parallel Hessian, one OpenMP thread per process).
+The reference path runs with the OpenMP threads tblite gets by default (OMP_NUM_THREADS, here
+printed in the header), as a user's script would.
 Prints per molecule: atoms, optimisation gradients and seconds, Hessian seconds, totals, ratio,
 energy difference, largest harmonic frequency difference; then medians, Hessian parallel
 efficiency and the "limit" figure (optimisation gradients + 6N) x median restarted gradient time
@@ -31,7 +34,7 @@ from ase.vibrations import Infrared
 from tblite.ase import TBLite
 
 from vibest.analysis.harmonic import harmonic_analysis
-from vibest.calculation.engine import make_engine
+from vibest.calculation.engine import calculation_threads, make_engine
 from vibest.calculation.hessian import default_workers, finite_difference_hessian
 from vibest.predict import CalculationOptions, compute_record
 from vibest.structure import build_molecule
@@ -85,11 +88,12 @@ def reference_path(mol, step_bohr: float):
 def restarted_gradient_seconds(mol, record) -> tuple[float, float]:
     """Serial Hessian of the final geometry: seconds per restarted gradient, and total seconds."""
     x = record.positions_angstrom / Bohr
-    eng = make_engine(mol.numbers, x, mol.charge, mol.uhf)
-    eng.evaluate(x)
-    t = time.perf_counter()
-    res = finite_difference_hessian(eng, mol.numbers, x, step_bohr=0.005, workers=1)
-    total = time.perf_counter() - t
+    with calculation_threads():  # one thread, as in vibest's Hessian workers
+        eng = make_engine(mol.numbers, x, mol.charge, mol.uhf)
+        eng.evaluate(x)
+        t = time.perf_counter()
+        res = finite_difference_hessian(eng, mol.numbers, x, step_bohr=0.005, workers=1)
+        total = time.perf_counter() - t
     return total / res.gradient_calls, total
 
 
@@ -99,7 +103,8 @@ def main() -> None:
     args = ap.parse_args()
     cores = default_workers()
     mols = MOLECULES[:6] if args.quick else MOLECULES
-    print(f"cores {cores}; convergence {FMAX_HARTREE_BOHR:g} Eh/Bohr; Hessian step 0.005 Bohr\n")
+    print(f"cores {cores}; convergence {FMAX_HARTREE_BOHR:g} Eh/Bohr; Hessian step 0.005 Bohr; reference path "
+          f"OMP_NUM_THREADS={os.environ.get('OMP_NUM_THREADS', '(unset: all cores)')}\n")
     head = (f"{'molecule':<28} {'N':>3} | {'ref grads':>9} {'opt s':>6} {'hess s':>6} {'total':>7} | "
             f"{'vb grads':>8} {'opt s':>6} {'ovh%':>5} {'hess s':>6} {'total':>6} | {'ratio':>5} {'dE Eh':>8} {'dnu':>5}")
     print(head)

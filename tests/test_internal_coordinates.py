@@ -30,3 +30,54 @@ def test_linear_chain_gets_two_linear_bends():
     prims = primitives_from_bonds(x, [(0, 1), (1, 2)])
     kinds = [p.kind for p in prims]
     assert kinds.count(LINEAR_BEND) == 2 and kinds.count(BEND) == 0
+
+
+def test_redundant_set_values_agree_with_ase_and_b_matrix_with_finite_differences():
+    """The optimiser's vectorised coordinates: values against ASE's Atoms.get_distance / get_angle /
+    get_dihedral (general-purpose reference), B matrix against central differences (exact calculus)."""
+    from ase import Atoms
+    from ase.units import Bohr
+
+    from vibest.calculation import redundant_internals
+    from vibest.structure import build_molecule
+
+    mol = build_molecule("CC(O)C(=O)NC")
+    x = mol.positions_angstrom / Bohr
+    ic = redundant_internals.build(mol.numbers, x)
+    assert ic is not None and len(ic.torsions) > 0
+    q = ic.values(x)
+    atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
+    nb, na = len(ic.bonds), len(ic.bends)
+    for k, (i, j) in enumerate(ic.bonds):
+        assert q[k] * Bohr == pytest.approx(atoms.get_distance(i, j), abs=1e-10)
+    for k, (i, j, m) in enumerate(ic.bends):
+        assert np.degrees(q[nb + k]) == pytest.approx(atoms.get_angle(i, j, m), abs=1e-8)
+    for k, t in enumerate(ic.torsions):
+        ref = atoms.get_dihedral(*t)  # degrees in [0, 360)
+        diff = (np.degrees(q[nb + na + k]) - ref + 180.0) % 360.0 - 180.0
+        assert abs(diff) < 1e-8
+    bmat = ic.b_matrix(x)
+    h = 1e-6
+    num = np.zeros_like(bmat)
+    for c in range(x.size):
+        xp, xm = x.copy().ravel(), x.copy().ravel()
+        xp[c] += h
+        xm[c] -= h
+        num[:, c] = ic.difference(ic.values(xp.reshape(-1, 3)), ic.values(xm.reshape(-1, 3))) / (2 * h)
+    np.testing.assert_allclose(bmat, num, atol=1e-6)
+    # the set describes every internal motion: rank 3N - 6
+    assert np.linalg.matrix_rank(bmat, tol=1e-6) == x.size - 6
+
+
+def test_redundant_set_joins_fragments_and_refuses_linear_geometries():
+    from ase.units import Bohr
+
+    from vibest.calculation import redundant_internals
+
+    # two water molecules 3 Angstrom apart: one inter-fragment bond joins them
+    w = np.array([[0.0, 0.0, 0.0], [0.96, 0.0, 0.0], [-0.24, 0.93, 0.0]])
+    x = np.vstack([w, w + [3.0, 0.0, 0.0]]) / Bohr
+    ic = redundant_internals.build([8, 1, 1, 8, 1, 1], x)
+    assert ic is not None and len(ic.bonds) == 5
+    linear = np.array([[0.0, 0, 0], [1.16, 0, 0], [-1.16, 0, 0]]) / Bohr
+    assert redundant_internals.build([6, 8, 8], linear) is None

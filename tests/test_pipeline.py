@@ -8,7 +8,7 @@ from ase.units import Bohr, Hartree
 from vibest.analysis.harmonic import harmonic_analysis
 from vibest.calculation.engine import EngineSettings, make_engine
 from vibest.calculation.hessian import finite_difference_hessian
-from vibest.calculation.optimizer import optimize
+from vibest.calculation.optimizer import OptimizerSettings, optimize
 from vibest.calculation.record import HessianRecord
 from vibest.predict import CalculationOptions, analyse, compute_record, predict
 from vibest.structure import build_molecule
@@ -16,20 +16,61 @@ from vibest.structure import build_molecule
 from .conftest import record_of
 
 
-def test_optimiser_reaches_the_same_minimum_as_ase_bfgs():
+@pytest.mark.parametrize("coordinates", ["internal", "cartesian"])
+def test_optimiser_reaches_the_same_minimum_as_ase_bfgs(coordinates):
     """Same minimum as ASE's BFGS (general-purpose reference) with the same tblite settings."""
     from ase.optimize import BFGS
     from tblite.ase import TBLite
 
     mol = build_molecule("CC(=O)O")
     x = mol.positions_angstrom / Bohr
-    res = optimize(make_engine(mol.numbers, x), mol.numbers, x)
+    res = optimize(make_engine(mol.numbers, x), mol.numbers, x, OptimizerSettings(coordinates=coordinates))
     assert res.converged and res.max_force_hartree_bohr < 5e-5
+    assert res.coordinates == coordinates
     atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
     atoms.calc = TBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
     BFGS(atoms, logfile=None).run(fmax=5e-5 * Hartree / Bohr, steps=1000)
     assert res.energy_hartree == pytest.approx(atoms.get_potential_energy() / Hartree, abs=1e-6)
     assert res.gradient_calls < 60
+
+
+def test_internal_optimiser_on_a_flexible_molecule_matches_ase_bfgs():
+    """1-butanol from its MMFF start: the redundant-internal optimiser and ASE's BFGS (general-purpose
+    reference, same tblite settings) reach the same minimum; the internal steps are really used."""
+    from ase.optimize import BFGS
+    from tblite.ase import TBLite
+
+    mol = build_molecule("CCCCO")
+    x = mol.positions_angstrom / Bohr
+    res = optimize(make_engine(mol.numbers, x), mol.numbers, x)
+    assert res.converged and res.coordinates == "internal"
+    atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
+    atoms.calc = TBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    BFGS(atoms, logfile=None).run(fmax=5e-5 * Hartree / Bohr, steps=1000)
+    assert res.energy_hartree == pytest.approx(atoms.get_potential_energy() / Hartree, abs=1e-6)
+    # same structure: interatomic distances agree (Angstrom)
+    d_vb = np.linalg.norm(res.positions_bohr[:, None] - res.positions_bohr[None], axis=-1) * Bohr
+    d_ase = np.linalg.norm(atoms.positions[:, None] - atoms.positions[None], axis=-1)
+    assert np.abs(d_vb - d_ase).max() < 0.01
+
+
+@pytest.mark.parametrize("smiles", ["CC#N", "O=C=O", "C=O"])
+def test_molecules_outside_the_internal_set_are_optimised_in_cartesians(smiles):
+    """Near-linear bends (nitrile, CO2) and a planar 4-atom molecule without torsions cannot be
+    described by bonds, bends and torsions: the optimiser says so and uses Cartesians."""
+    mol = build_molecule(smiles)
+    x = mol.positions_angstrom / Bohr
+    res = optimize(make_engine(mol.numbers, x), mol.numbers, x)
+    assert res.converged and res.coordinates == "cartesian"
+
+
+def test_unknown_optimiser_coordinates_are_refused():
+    from vibest.errors import InputError
+
+    mol = build_molecule("O")
+    x = mol.positions_angstrom / Bohr
+    with pytest.raises(InputError, match="coordinates"):
+        optimize(make_engine(mol.numbers, x), mol.numbers, x, OptimizerSettings(coordinates="polar"))
 
 
 @pytest.mark.slow

@@ -27,7 +27,7 @@ from rdkit import Chem
 from rdkit.Chem import rdMolAlign, rdMolDescriptors
 from scipy import constants as sc
 
-from .calculation.engine import make_engine
+from .calculation.engine import calculation_threads, make_engine
 from .calculation.optimizer import optimize
 from .errors import InputError
 from .predict import (CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record,
@@ -200,8 +200,9 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
             progress("conformers", idx, len(kept), f"optimising conformer {idx + 1}/{len(kept)}")
         x = np.array(mol_h.GetConformer(c).GetPositions()) / Bohr
         t0 = time.perf_counter()
-        eng = make_engine(template.numbers, x, template.charge, template.uhf, calc.engine)
-        opt = optimize(eng, template.numbers, x, calc.optimizer)
+        with calculation_threads():
+            eng = make_engine(template.numbers, x, template.charge, template.uhf, calc.engine)
+            opt = optimize(eng, template.numbers, x, calc.optimizer)
         refined.append((opt.energy_hartree, opt.positions_bohr * Bohr, opt.gradient_calls, time.perf_counter() - t0))
     refined.sort(key=lambda r: r[0])
     unique: list[tuple[float, np.ndarray, int, float]] = []

@@ -35,30 +35,49 @@ def stretch_b(x: np.ndarray, i: int, j: int) -> tuple[float, dict[int, np.ndarra
     return r, {i: u, j: -u}
 
 
-def bend_b(x: np.ndarray, i: int, j: int, k: int) -> tuple[float, dict[int, np.ndarray]]:
+def bend_vectors(x: np.ndarray, i, j, k) -> tuple[np.ndarray, np.ndarray]:
+    """B vectors of many bends i-j-k at once (index arrays, apex j): (T, 3, 3) for atoms
+    (i, j, k), and the angles in degrees (T,)."""
     u, v = x[i] - x[j], x[k] - x[j]
-    lu, lv = np.linalg.norm(u), np.linalg.norm(v)
+    lu = np.sqrt((u * u).sum(-1, keepdims=True))
+    lv = np.sqrt((v * v).sum(-1, keepdims=True))
     u, v = u / lu, v / lv
-    cos = float(np.clip(u @ v, -1.0, 1.0))
-    sin = max(np.sqrt(1.0 - cos * cos), 1e-8)
+    cos = np.clip((u * v).sum(-1, keepdims=True), -1.0, 1.0)
+    sin = np.maximum(np.sqrt(1.0 - cos ** 2), 1e-8)
     bi = (cos * u - v) / (lu * sin)
     bk = (cos * v - u) / (lv * sin)
-    return float(np.arccos(cos)), {i: bi, k: bk, j: -(bi + bk)}
+    return np.stack([bi, -(bi + bk), bk], axis=1), np.degrees(np.arccos(cos[:, 0]))
+
+
+def torsion_vectors(x: np.ndarray, i, j, k, l) -> np.ndarray:
+    """B vectors of many torsions i-j-k-l at once (index arrays): (T, 4, 3) for atoms (i, j, k, l)
+    (Blondel & Karplus, J. Comput. Chem. 17, 1132 (1996))."""
+    f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
+    a, b = np.cross(f, g), np.cross(h, g)
+    aa = np.maximum((a * a).sum(-1, keepdims=True), 1e-16)
+    bb = np.maximum((b * b).sum(-1, keepdims=True), 1e-16)
+    lg = np.sqrt((g * g).sum(-1, keepdims=True))
+    fg = (f * g).sum(-1, keepdims=True) / (aa * lg)
+    hg = (h * g).sum(-1, keepdims=True) / (bb * lg)
+    di = -lg / aa * a
+    dl = lg / bb * b
+    dj = lg / aa * a + fg * a - hg * b
+    dk = -lg / bb * b - fg * a + hg * b
+    return np.stack([di, dj, dk, dl], axis=1)
+
+
+def bend_b(x: np.ndarray, i: int, j: int, k: int) -> tuple[float, dict[int, np.ndarray]]:
+    vecs, ang = bend_vectors(x, np.array([i]), np.array([j]), np.array([k]))
+    return float(np.radians(ang[0])), {i: vecs[0, 0], k: vecs[0, 2], j: vecs[0, 1]}
 
 
 def torsion_b(x: np.ndarray, i: int, j: int, k: int, l: int) -> tuple[float, dict[int, np.ndarray]]:
-    """Dihedral angle i-j-k-l and its gradient (Blondel & Karplus, J. Comput. Chem. 17, 1132 (1996))."""
+    """Dihedral angle i-j-k-l and its gradient."""
     f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
     a, b = np.cross(f, g), np.cross(h, g)
-    aa, bb = max(a @ a, 1e-16), max(b @ b, 1e-16)
-    lg = np.linalg.norm(g)
-    phi = float(np.arctan2(np.cross(b, a) @ g / lg, a @ b))
-    di = -lg / aa * a
-    dl = lg / bb * b
-    fg, hg = f @ g / (aa * lg), h @ g / (bb * lg)
-    dj = lg / aa * a + fg * a - hg * b
-    dk = -lg / bb * b - fg * a + hg * b
-    return phi, {i: di, j: dj, k: dk, l: dl}
+    phi = float(np.arctan2(np.cross(b, a) @ g / np.linalg.norm(g), a @ b))
+    vecs = torsion_vectors(x, np.array([i]), np.array([j]), np.array([k]), np.array([l]))[0]
+    return phi, {i: vecs[0], j: vecs[1], k: vecs[2], l: vecs[3]}
 
 
 def out_of_plane_b(x: np.ndarray, i: int, j: int, k: int, l: int) -> tuple[float, dict[int, np.ndarray]]:

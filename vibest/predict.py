@@ -21,7 +21,7 @@ from .analysis.composition import ModeComposition, mode_composition
 from .analysis.harmonic import HarmonicModes, harmonic_analysis, rayleigh_wavenumbers
 from .analysis.internal_space import InternalSpace
 from .analysis.scaling import ScaleModel, default_scale_model, named_scale_model, user_scale_model
-from .calculation.engine import EngineSettings, make_engine
+from .calculation.engine import EngineSettings, calculation_threads, make_engine
 from .calculation.hessian import default_workers, finite_difference_hessian
 from .calculation.workers import pool_is_ready, prestart
 from .calculation.optimizer import OptimizerSettings, optimize
@@ -231,8 +231,15 @@ def compute_record(molecule: Molecule, options: CalculationOptions = Calculation
 
     Returns the record, whether the optimisation converged, and notes. Imaginary modes above
     :data:`IMAGINARY_THRESHOLD_CM1` trigger a displacement along the mode and a new
-    optimisation, at most ``options.max_imaginary_retries`` times.
+    optimisation, at most ``options.max_imaginary_retries`` times. This process computes with
+    one OpenMP/BLAS thread (:data:`vibest.calculation.engine.CALCULATION_THREADS`).
     """
+    with calculation_threads():
+        return _compute_record(molecule, options, progress)
+
+
+def _compute_record(molecule: Molecule, options: CalculationOptions,
+                    progress: Progress | None) -> tuple[HessianRecord, bool, list[str]]:
     notes: list[str] = []
     numbers = molecule.numbers
     x = molecule.positions_angstrom / Bohr

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import os
 import tempfile
+from contextlib import contextmanager
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -208,3 +209,20 @@ def scratch_file(suffix: str) -> str:
     fd, path = tempfile.mkstemp(suffix=suffix, prefix="vibest-")
     os.close(fd)
     return path
+
+
+#: OpenMP/BLAS threads of the process that optimises geometries. On the 2-core machine of
+#: benchmarks/speed.py, tblite with 2 OpenMP threads took 0.119 s per optimisation gradient of a
+#: 53-atom molecule against 0.065 s with one (and was no faster for 92 or 188 atoms), so each
+#: process computes with one thread and parallelism comes from worker processes.
+CALCULATION_THREADS = 1
+
+
+@contextmanager
+def calculation_threads(count: int = CALCULATION_THREADS):
+    """Limit this process's OpenMP and BLAS thread pools to ``count`` while the block runs
+    (threadpoolctl; the previous limits come back afterwards)."""
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=int(count)):
+        yield

@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..internal_coordinates import bend_vectors, torsion_vectors
+
 K_STRETCH, K_BEND, K_TORSION = 0.45, 0.15, 0.005
 #: alpha_ij (Bohr^-2) and r_ref,ij (Bohr) by periodic-table rows (1, 2, 3).
 ALPHA = np.array([[1.0000, 0.3949, 0.3949], [0.3949, 0.2800, 0.2800], [0.3949, 0.2800, 0.2800]])
@@ -30,32 +32,6 @@ def _norm(v):
     return np.linalg.norm(v, axis=-1, keepdims=True)
 
 
-def _bend_vectors(x, i, j, k):
-    u, v = x[i] - x[j], x[k] - x[j]
-    lu, lv = _norm(u), _norm(v)
-    u, v = u / lu, v / lv
-    cos = np.clip((u * v).sum(-1, keepdims=True), -1.0, 1.0)
-    sin = np.maximum(np.sqrt(1.0 - cos ** 2), 1e-8)
-    bi = (cos * u - v) / (lu * sin)
-    bk = (cos * v - u) / (lv * sin)
-    return np.stack([bi, -(bi + bk), bk], axis=1), np.degrees(np.arccos(cos[:, 0]))
-
-
-def _torsion_vectors(x, i, j, k, l):
-    f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
-    a, b = np.cross(f, g), np.cross(h, g)
-    aa = np.maximum((a * a).sum(-1, keepdims=True), 1e-16)
-    bb = np.maximum((b * b).sum(-1, keepdims=True), 1e-16)
-    lg = _norm(g)
-    fg = (f * g).sum(-1, keepdims=True) / (aa * lg)
-    hg = (h * g).sum(-1, keepdims=True) / (bb * lg)
-    di = -lg / aa * a
-    dl = lg / bb * b
-    dj = lg / aa * a + fg * a - hg * b
-    dk = -lg / bb * b - fg * a + hg * b
-    return np.stack([di, dj, dk, dl], axis=1)
-
-
 def _accumulate(h4, atoms: np.ndarray, vecs: np.ndarray, k: np.ndarray) -> None:
     """h4[a_p, a_q] += k b_p b_q^T for every term (atoms: (T, m), vecs: (T, m, 3))."""
     m = atoms.shape[1]
@@ -65,14 +41,32 @@ def _accumulate(h4, atoms: np.ndarray, vecs: np.ndarray, k: np.ndarray) -> None:
             np.add.at(h4, (atoms[:, p], atoms[:, q]), blocks)
 
 
-def lindh_hessian(numbers, positions_bohr) -> np.ndarray:
-    """Model Hessian (3N, 3N) in Eh/Bohr^2 for positions in Bohr."""
+def lindh_rho(numbers, positions_bohr) -> np.ndarray:
+    """Lindh's pair factors rho_ij = exp(alpha_ij (r_ref,ij^2 - r_ij^2)), (N, N), zero diagonal."""
     x = np.asarray(positions_bohr, dtype=float)
-    n = len(x)
     rows = np.array([_row(int(z)) for z in numbers])
     d2 = ((x[:, None, :] - x[None, :, :]) ** 2).sum(-1)
     rho = np.exp(ALPHA[rows[:, None], rows[None, :]] * (R_REF[rows[:, None], rows[None, :]] ** 2 - d2))
     np.fill_diagonal(rho, 0.0)
+    return rho
+
+
+def lindh_diagonal(numbers, positions_bohr, bonds: np.ndarray, bends: np.ndarray, torsions: np.ndarray) -> np.ndarray:
+    """Lindh's force constants of given primitives (Eh/Bohr^2, Eh/rad^2), in the order bonds,
+    bends, torsions: the model restricted to one internal set, as a diagonal Hessian there."""
+    rho = lindh_rho(numbers, positions_bohr)
+    kb = K_STRETCH * rho[bonds[:, 0], bonds[:, 1]]
+    ka = K_BEND * rho[bends[:, 0], bends[:, 1]] * rho[bends[:, 1], bends[:, 2]]
+    t = torsions
+    kt = K_TORSION * rho[t[:, 0], t[:, 1]] * rho[t[:, 1], t[:, 2]] * rho[t[:, 2], t[:, 3]]
+    return np.concatenate([kb, ka, kt])
+
+
+def lindh_hessian(numbers, positions_bohr) -> np.ndarray:
+    """Model Hessian (3N, 3N) in Eh/Bohr^2 for positions in Bohr."""
+    x = np.asarray(positions_bohr, dtype=float)
+    n = len(x)
+    rho = lindh_rho(numbers, x)
     h4 = np.zeros((n, n, 3, 3))
     near = [np.nonzero(rho[i] > RHO_CUTOFF)[0] for i in range(n)]
     # stretches
@@ -86,7 +80,7 @@ def lindh_hessian(numbers, positions_bohr) -> np.ndarray:
            if rho[i, j] * rho[j, k] >= RHO_CUTOFF]
     if tri:
         t = np.array(tri)
-        vecs, ang = _bend_vectors(x, t[:, 0], t[:, 1], t[:, 2])
+        vecs, ang = bend_vectors(x, t[:, 0], t[:, 1], t[:, 2])
         keep = ang <= LINEAR_DEG
         _accumulate(h4, t[keep], vecs[keep], K_BEND * rho[t[keep, 0], t[keep, 1]] * rho[t[keep, 1], t[keep, 2]])
     # torsions
@@ -95,12 +89,12 @@ def lindh_hessian(numbers, positions_bohr) -> np.ndarray:
              for l in near[k] if l != i and l != j and rho[i, j] * rho[j, k] * rho[k, l] >= RHO_CUTOFF]
     if quads:
         q = np.array(quads)
-        _, a1 = _bend_vectors(x, q[:, 0], q[:, 1], q[:, 2])
-        _, a2 = _bend_vectors(x, q[:, 1], q[:, 2], q[:, 3])
+        _, a1 = bend_vectors(x, q[:, 0], q[:, 1], q[:, 2])
+        _, a2 = bend_vectors(x, q[:, 1], q[:, 2], q[:, 3])
         keep = (a1 <= LINEAR_DEG) & (a2 <= LINEAR_DEG)
         q = q[keep]
         if len(q):
             kt = K_TORSION * rho[q[:, 0], q[:, 1]] * rho[q[:, 1], q[:, 2]] * rho[q[:, 2], q[:, 3]]
-            _accumulate(h4, q, _torsion_vectors(x, q[:, 0], q[:, 1], q[:, 2], q[:, 3]), kt)
+            _accumulate(h4, q, torsion_vectors(x, q[:, 0], q[:, 1], q[:, 2], q[:, 3]), kt)
     h = h4.transpose(0, 2, 1, 3).reshape(3 * n, 3 * n)
     return 0.5 * (h + h.T)

@@ -1,11 +1,20 @@
-"""Geometry optimiser: rational-function (RFO) quasi-Newton steps in Cartesian coordinates.
+"""Geometry optimiser: rational-function (RFO) quasi-Newton steps with BFGS updates.
 
-The start curvature is Lindh's model Hessian; it is improved by BFGS updates from every
-gradient. Translations and rotations are projected out of gradient and Hessian, so steps stay
-in the 3N-6 internal space; a trust radius controls step length from the ratio of actual to
-predicted energy change. References: A. Banerjee, N. Adams, J. Simons, R. Shepard,
-J. Phys. Chem. 89, 52 (1985) (RFO); J. Nocedal & S. Wright, *Numerical Optimization* (2006),
-ch. 4 and 6 (trust region, BFGS).
+Two coordinate systems, the same step logic:
+
+* ``internal`` (default): redundant internal coordinates (bonds, bends, torsions;
+  :mod:`vibest.calculation.redundant_internals`; C. Peng, P. Y. Ayala, H. B. Schlegel,
+  M. J. Frisch, J. Comput. Chem. 17, 49 (1996)). Steps are taken in the non-redundant
+  (delocalised) space spanned by the Wilson B matrix, the Hessian is kept and BFGS-updated in
+  the redundant coordinates, and each internal step is turned into Cartesians by the usual
+  iterative back-transformation. Molecules the set cannot describe (near-linear bends, tiny
+  planar molecules) and geometries that become near-linear fall back to Cartesians.
+* ``cartesian``: Cartesian coordinates with translations and rotations projected out.
+
+The start curvature is Lindh's model Hessian (for the internal optimiser, its force constants of
+the set's own primitives); a trust radius controls step length from the ratio of actual to predicted energy
+change. References: A. Banerjee, N. Adams, J. Simons, R. Shepard, J. Phys. Chem. 89, 52 (1985)
+(RFO); J. Nocedal & S. Wright, *Numerical Optimization* (2006), ch. 4 and 6 (trust region, BFGS).
 """
 
 from __future__ import annotations
@@ -15,10 +24,15 @@ from dataclasses import asdict, dataclass, field
 from typing import Callable
 
 import numpy as np
+import scipy.linalg
 
+from ..errors import InputError
 from ..rigid_body import rigid_body_basis
+from . import redundant_internals
 from .engine import Engine, Evaluation
-from .model_hessian import lindh_hessian
+from .model_hessian import lindh_diagonal, lindh_hessian
+
+COORDINATES = ("internal", "cartesian")
 
 
 @dataclass(frozen=True)
@@ -30,6 +44,9 @@ class OptimizerSettings:
         max_steps: give up after this many gradient evaluations.
         trust_radius_bohr: initial trust radius (Bohr, norm of the whole step).
         max_trust_radius_bohr: upper bound of the trust radius (Bohr).
+        coordinates: ``"internal"`` (redundant internals, default) or ``"cartesian"``. In
+            internals the trust radius bounds the norm of the step in the internal space
+            (Bohr and radians).
     """
 
     max_force_hartree_bohr: float = 5e-5
@@ -37,6 +54,7 @@ class OptimizerSettings:
     trust_radius_bohr: float = 0.3
     max_trust_radius_bohr: float = 1.0
     min_trust_radius_bohr: float = 1e-3
+    coordinates: str = "internal"
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -66,9 +84,12 @@ class OptimizationResult:
     #: The engine's evaluation at ``positions_bohr`` when it was the engine's last one (its
     #: wavefunction is then loaded), else None.
     final_evaluation: Evaluation | None = None
+    #: Coordinates the steps were taken in: "internal", "cartesian", or "internal, then cartesian".
+    coordinates: str = "cartesian"
 
     def to_dict(self) -> dict:
         return {
+            "coordinates": self.coordinates,
             "energy_hartree": self.energy_hartree,
             "max_force_hartree_bohr": self.max_force_hartree_bohr,
             "converged": self.converged,
@@ -86,17 +107,9 @@ def _max_atom_force(grad: np.ndarray) -> float:
 _RIGID_SHIFT = 1e3
 
 
-def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray, proj: np.ndarray) -> np.ndarray:
-    """RFO step (Banerjee et al. 1985) in the space orthogonal to the rigid-body vectors ``rigid``
-    (``proj`` = 1 - rigid rigid^T).
-
-    The projected Hessian P H P gets a large curvature along the rigid-body directions; one
-    eigendecomposition then serves both the projection and the augmented-Hessian root.
-    """
-    h = proj @ hess @ proj + _RIGID_SHIFT * (rigid @ rigid.T)
-    w, v = np.linalg.eigh(0.5 * (h + h.T))
-    internal = w < 0.5 * _RIGID_SHIFT
-    w, v = w[internal], v[:, internal]
+def _rfo_solve(w: np.ndarray, v: np.ndarray, grad: np.ndarray) -> np.ndarray:
+    """RFO step (Banerjee et al. 1985) for a Hessian with eigenvalues ``w`` and eigenvectors
+    ``v`` (columns) and gradient ``grad``, all in one space without redundant directions."""
     if np.all(w > 0):
         w = np.maximum(w, 1e-4)
     gq = v.T @ grad
@@ -110,6 +123,133 @@ def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray, proj: np.nd
     return v @ step_q
 
 
+def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray, proj: np.ndarray) -> np.ndarray:
+    """RFO step in the space orthogonal to the rigid-body vectors ``rigid`` (``proj`` = 1 - rigid rigid^T).
+
+    The projected Hessian P H P gets a large curvature along the rigid-body directions; one
+    eigendecomposition then serves both the projection and the augmented-Hessian root.
+    """
+    h = proj @ hess @ proj + _RIGID_SHIFT * (rigid @ rigid.T)
+    w, v = np.linalg.eigh(0.5 * (h + h.T))
+    internal = w < 0.5 * _RIGID_SHIFT
+    return _rfo_solve(w[internal], v[:, internal], grad)
+
+
+def _bfgs(hess: np.ndarray, step: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """BFGS update of ``hess`` from a step and its gradient change (unchanged when s.y <= 0)."""
+    sy = step @ y
+    if sy <= 1e-10:
+        return hess
+    hs = hess @ step
+    return hess + np.outer(y, y) / sy - np.outer(hs, hs) / (step @ hs)
+
+
+def _clip(step: np.ndarray, trust: float) -> tuple[np.ndarray, float]:
+    length = float(np.linalg.norm(step))
+    if length > trust:
+        return step * (trust / length), trust
+    return step, length
+
+
+class _CartesianSteps:
+    """Steps in Cartesians (Bohr) with rigid-body motions projected out."""
+
+    name = "cartesian"
+
+    def __init__(self, numbers, x: np.ndarray, g: np.ndarray):
+        self.x, self.g = x, g
+        self.hess = lindh_hessian(numbers, x)
+
+    def propose(self, trust: float):
+        n = len(self.x)
+        rb = rigid_body_basis(self.x)
+        self._proj = np.eye(3 * n) - rb @ rb.T
+        gp = self._proj @ self.g
+        step, length = _clip(_rfo_step(self.hess, gp, rb, self._proj), trust)
+        self._step = step
+        return self.x + step.reshape(n, 3), gp @ step + 0.5 * step @ self.hess @ step, length
+
+    def update(self, x_new: np.ndarray, g_new: np.ndarray, accept: bool) -> None:
+        self.hess = _bfgs(self.hess, self._step, self._proj @ (g_new - self.g))
+        if accept:
+            self.x, self.g = x_new, g_new
+
+
+class _InternalSteps:
+    """Steps in the delocalised space of a redundant internal set (Bohr and radians)."""
+
+    name = "internal"
+    #: Back-transformation: iterations and convergence (RMS Cartesian change, Bohr).
+    BACK_ITERATIONS, BACK_TOL_BOHR = 25, 1e-6
+
+    def __init__(self, internal: redundant_internals.InternalSet, numbers, x: np.ndarray, g: np.ndarray):
+        self.ic = internal
+        self.x, self.g = x, g
+        self.q, self._u, self._vs, self.gq = self._frame(x, g)
+        # Lindh's model restricted to the set's own primitives: diagonal and cheap; on the molecules
+        # of benchmarks/speed.py it needed as few or fewer gradients than the full Cartesian model
+        # transformed to internals
+        self.hess = np.diag(lindh_diagonal(numbers, x, internal.bonds, internal.bends, internal.torsions))
+
+    def _frame(self, x: np.ndarray, g: np.ndarray):
+        """Values q, basis U of the non-redundant space, the generalised inverse B^+ = V S^-1 U^T
+        (kept as its factors V S^-1 and U) and the internal gradient g_q = (B^+)^T g_x at ``x``."""
+        bmat = self.ic.b_matrix(x)
+        # B = U S V^T from the eigenvectors of B^T B (3N x 3N: cheaper than an SVD of B)
+        s2, v = np.linalg.eigh(bmat.T @ bmat)
+        keep = s2 > 1e-12 * s2[-1]
+        sv, v = np.sqrt(s2[keep]), v[:, keep]
+        u = (bmat @ v) / sv
+        vs = v / sv
+        return self.ic.values(x), u, vs, u @ (vs.T @ g)
+
+    def propose(self, trust: float):
+        u = self._u
+        hs = u.T @ self.hess @ u
+        gs = u.T @ self.gq
+        # RFO from one eigendecomposition of the augmented Hessian [[H, g], [g^T, 0]]
+        k = len(gs)
+        aug = np.zeros((k + 1, k + 1))
+        aug[:k, :k] = 0.5 * (hs + hs.T)
+        aug[:k, k] = aug[k, :k] = gs
+        _, vecs = scipy.linalg.eigh(aug, subset_by_index=[0, 0], check_finite=False)
+        lowest = vecs[:, 0]
+        raw = lowest[:k] / lowest[k] if abs(lowest[k]) > 1e-12 else -gs
+        ds, length = _clip(raw, trust)
+        predicted = gs @ ds + 0.5 * ds @ hs @ ds
+        x_new = self._back_transform(u @ ds)
+        if x_new is None or self.ic.max_bend_deg(x_new) > redundant_internals.LINEAR_DEG:
+            return None
+        return x_new, predicted, length
+
+    def _back_transform(self, dq: np.ndarray) -> np.ndarray | None:
+        """Cartesians whose internals are q + dq, by x <- x + B^+ (q_target - q(x)) with B^+ of
+        the start geometry; the first iterate when the iteration does not converge."""
+        target = self.q + dq
+        x = self.x.ravel().copy()
+        first, rest = None, dq
+        for _ in range(self.BACK_ITERATIONS):
+            dx = self._vs @ (self._u.T @ rest)
+            x = x + dx
+            if first is None:
+                first = x.copy()
+            if np.sqrt(np.mean(dx ** 2)) < self.BACK_TOL_BOHR:
+                break
+            new_rest = self.ic.difference(target, self.ic.values(x.reshape(-1, 3)))
+            if np.linalg.norm(new_rest) > np.linalg.norm(rest):
+                x = first
+                break
+            rest = new_rest
+        return x.reshape(-1, 3) if np.all(np.isfinite(x)) else None
+
+    def update(self, x_new: np.ndarray, g_new: np.ndarray, accept: bool) -> None:
+        q_new, u_new, vs_new, gq_new = self._frame(x_new, g_new)
+        self.hess = _bfgs(self.hess, self.ic.difference(q_new, self.q), gq_new - self.gq)
+        if accept:
+            self.x, self.g = x_new, g_new
+            self.q, self._u, self._vs, self.gq = q_new, u_new, vs_new, gq_new
+
+
 def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSettings = OptimizerSettings(),
              progress: Callable[[int, float, float], None] | None = None,
              first: Evaluation | None = None) -> OptimizationResult:
@@ -118,10 +258,11 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
     ``progress(step, energy_hartree, max_force)`` is called after each gradient.
     ``first`` may carry an evaluation already made at the start geometry.
     """
+    if settings.coordinates not in COORDINATES:
+        raise InputError(f"unknown optimiser coordinates {settings.coordinates!r}; choose one of {', '.join(COORDINATES)}")
     t0 = time.perf_counter()
     tg = 0.0
     x = np.asarray(positions_bohr, dtype=float).copy()
-    n = len(x)
     calls = 0
 
     def evaluate(pos):
@@ -136,38 +277,37 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
     last, last_is_final = ev, first is None
     e, g = ev.energy_hartree, ev.gradient_hartree_bohr.ravel()
     energies = [e]
-    hess = lindh_hessian(numbers, x)
+    steps = None
+    if settings.coordinates == "internal":
+        internal = redundant_internals.build(numbers, x)
+        if internal is not None:
+            steps = _InternalSteps(internal, numbers, x, g)
+    if steps is None:
+        steps = _CartesianSteps(numbers, x, g)
+    used = [steps.name]
     trust = settings.trust_radius_bohr
     converged = _max_atom_force(g) < settings.max_force_hartree_bohr
     if progress:
         progress(0, e, _max_atom_force(g))
     while not converged and calls < settings.max_steps:
-        rb = rigid_body_basis(x)
-        proj = np.eye(3 * n) - rb @ rb.T
-        gp = proj @ g
-        step = _rfo_step(hess, gp, rb, proj)
-        length = np.linalg.norm(step)
-        if length > trust:
-            step *= trust / length
-            length = trust
-        predicted = gp @ step + 0.5 * step @ hess @ step
-        x_new = x + step.reshape(n, 3)
+        proposal = steps.propose(trust)
+        if proposal is None:  # the internal set no longer describes the geometry
+            steps = _CartesianSteps(numbers, x, g)
+            used.append(steps.name)
+            proposal = steps.propose(trust)
+        x_new, predicted, length = proposal
         ev = evaluate(x_new)
         e_new, g_new = ev.energy_hartree, ev.gradient_hartree_bohr.ravel()
         actual = e_new - e
         ratio = actual / predicted if abs(predicted) > 1e-14 else 1.0
-        # BFGS update from this pair (skipped when the curvature condition fails).
-        y = proj @ (g_new - g)
-        sy = step @ y
-        if sy > 1e-10:
-            hs = hess @ step
-            hess = hess + np.outer(y, y) / sy - np.outer(hs, hs) / (step @ hs)
+        # Reject an uphill step: stay, with the updated Hessian and a smaller trust radius.
+        accept = not (actual > 1e-6 and trust > settings.min_trust_radius_bohr)
+        steps.update(x_new, g_new, accept)
         if ratio < 0.25:
             trust = max(0.25 * length, settings.min_trust_radius_bohr)
         elif ratio > 0.75 and length > 0.8 * trust:
             trust = min(2.0 * trust, settings.max_trust_radius_bohr)
-        if actual > 1e-6 and trust > settings.min_trust_radius_bohr:
-            # Reject an uphill step: stay, with the updated Hessian and a smaller trust radius.
+        if not accept:
             last_is_final = False
             if progress:
                 progress(calls, e, _max_atom_force(g))
@@ -183,5 +323,5 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         positions_bohr=x, energy_hartree=e, max_force_hartree_bohr=_max_atom_force(g),
         converged=bool(converged), gradient_calls=calls, seconds=time.perf_counter() - t0,
         gradient_seconds=tg, energies_hartree=energies,
-        final_evaluation=last if last_is_final else None,
+        final_evaluation=last if last_is_final else None, coordinates=", then ".join(used),
     )

@@ -1,0 +1,162 @@
+"""Redundant internal coordinates for geometry optimisation (vectorised values and Wilson B).
+
+The set holds every bond stretch (covalent radii, fragments joined by their closest pair),
+every bend of two bonds at one atom and every torsion about a bond (C. Peng, P. Y. Ayala,
+H. B. Schlegel, M. J. Frisch, J. Comput. Chem. 17, 49 (1996)). Near-linear bends have no
+usable torsions or bend derivative; a geometry that has one is not described by this set
+(:func:`build` returns None and the optimiser stays in Cartesians). Positions in Bohr, angles
+in radians.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from ase.data import covalent_radii
+from ase.units import Bohr
+
+from ..internal_coordinates import bend_vectors, torsion_vectors
+
+#: Atoms closer than this multiple of the sum of their covalent radii are bonded.
+BOND_FACTOR = 1.3
+#: Bends wider than this (degrees) count as linear: the set is not used for such a geometry.
+LINEAR_DEG = 172.0
+
+
+def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Row-wise cross product of (K, 3) arrays (np.cross costs more for these small arrays)."""
+    out = np.empty_like(a)
+    out[:, 0] = a[:, 1] * b[:, 2] - a[:, 2] * b[:, 1]
+    out[:, 1] = a[:, 2] * b[:, 0] - a[:, 0] * b[:, 2]
+    out[:, 2] = a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]
+    return out
+
+
+@dataclass(frozen=True)
+class InternalSet:
+    """Index arrays of the primitives: bonds (B, 2), bends (A, 3) apex in the middle, torsions (T, 4)."""
+
+    bonds: np.ndarray
+    bends: np.ndarray
+    torsions: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return len(self.bonds) + len(self.bends) + len(self.torsions)
+
+    @property
+    def periodic(self) -> np.ndarray:
+        """Mask of the coordinates whose differences wrap at 2 pi (the torsions)."""
+        mask = np.zeros(self.size, dtype=bool)
+        mask[len(self.bonds) + len(self.bends):] = True
+        return mask
+
+    def values(self, x: np.ndarray) -> np.ndarray:
+        """Coordinate values: bond lengths (Bohr), bends and torsions (rad)."""
+        b, a, t = self.bonds, self.bends, self.torsions
+        d = x[b[:, 0]] - x[b[:, 1]]
+        r = np.sqrt((d * d).sum(1))
+        u, v = x[a[:, 0]] - x[a[:, 1]], x[a[:, 2]] - x[a[:, 1]]
+        cos = (u * v).sum(1) / np.sqrt((u * u).sum(1) * (v * v).sum(1))
+        theta = np.arccos(np.clip(cos, -1.0, 1.0))
+        phi = np.zeros(len(t))
+        if len(t):
+            f, g, h = x[t[:, 0]] - x[t[:, 1]], x[t[:, 1]] - x[t[:, 2]], x[t[:, 3]] - x[t[:, 2]]
+            p, q = _cross(f, g), _cross(h, g)
+            lg = np.sqrt((g * g).sum(1))
+            phi = np.arctan2((_cross(q, p) * g).sum(1) / lg, (p * q).sum(1))
+        return np.concatenate([r, theta, phi])
+
+    def b_matrix(self, x: np.ndarray) -> np.ndarray:
+        """Wilson B matrix (size, 3N): derivatives of :meth:`values` by Cartesians (Bohr)."""
+        n = len(x)
+        out = np.zeros((self.size, n, 3))
+        b, a, t = self.bonds, self.bends, self.torsions
+        rows = np.arange(len(b))
+        u = x[b[:, 0]] - x[b[:, 1]]
+        u /= np.linalg.norm(u, axis=1, keepdims=True)
+        # within one row every atom appears once, so plain (not accumulating) assignment is exact
+        out[rows, b[:, 0]] = u
+        out[rows, b[:, 1]] = -u
+        if len(a):
+            vecs, _ = bend_vectors(x, a[:, 0], a[:, 1], a[:, 2])
+            rows = len(b) + np.arange(len(a))
+            for m in range(3):
+                out[rows, a[:, m]] = vecs[:, m]
+        if len(t):
+            vecs = torsion_vectors(x, t[:, 0], t[:, 1], t[:, 2], t[:, 3])
+            rows = len(b) + len(a) + np.arange(len(t))
+            for m in range(4):
+                out[rows, t[:, m]] = vecs[:, m]
+        return out.reshape(self.size, 3 * n)
+
+    def difference(self, q_new: np.ndarray, q_old: np.ndarray) -> np.ndarray:
+        """q_new - q_old with torsion differences wrapped into (-pi, pi]."""
+        d = q_new - q_old
+        per = self.periodic
+        d[per] = (d[per] + np.pi) % (2 * np.pi) - np.pi
+        return d
+
+    def max_bend_deg(self, x: np.ndarray) -> float:
+        if not len(self.bends):
+            return 0.0
+        return float(np.degrees(self.values(x)[len(self.bonds):len(self.bonds) + len(self.bends)].max()))
+
+
+def connectivity(numbers, x: np.ndarray) -> list[tuple[int, int]]:
+    """Bonded pairs by covalent radii; separate fragments joined by their closest atom pair."""
+    radii = covalent_radii[np.asarray(numbers, int)] / Bohr
+    d = np.linalg.norm(x[:, None] - x[None, :], axis=-1)
+    bonded = d < BOND_FACTOR * (radii[:, None] + radii[None, :])
+    np.fill_diagonal(bonded, False)
+    n = len(x)
+    while True:
+        label = np.full(n, -1)
+        for start in range(n):
+            if label[start] >= 0:
+                continue
+            stack = [start]
+            label[start] = start
+            while stack:
+                i = stack.pop()
+                for j in np.nonzero(bonded[i])[0]:
+                    if label[j] < 0:
+                        label[j] = start
+                        stack.append(j)
+        if len(set(label)) <= 1:
+            break
+        first = label == label[0]
+        sub = np.where(first[:, None] & ~first[None, :], d, np.inf)
+        i, j = np.unravel_index(np.argmin(sub), sub.shape)
+        bonded[i, j] = bonded[j, i] = True
+    ii, jj = np.nonzero(np.triu(bonded, 1))
+    return list(zip(ii.tolist(), jj.tolist()))
+
+
+def build(numbers, x: np.ndarray) -> InternalSet | None:
+    """The redundant set of a geometry (Bohr), or None when it has a near-linear bend or too few atoms."""
+    n = len(x)
+    if n < 3:
+        return None
+    bonds = connectivity(numbers, x)
+    nbrs: list[list[int]] = [[] for _ in range(n)]
+    for i, j in bonds:
+        nbrs[i].append(j)
+        nbrs[j].append(i)
+    bends = [(i, j, k) for j in range(n) for p, i in enumerate(nbrs[j]) for k in nbrs[j][p + 1:]]
+    if not bends:
+        return None
+    bends_arr = np.array(bends)
+    _, ang = bend_vectors(x, bends_arr[:, 0], bends_arr[:, 1], bends_arr[:, 2])
+    if ang.max() > LINEAR_DEG:
+        return None
+    torsions = [(i, j, k, l) for j, k in bonds for i in nbrs[j] if i != k for l in nbrs[k] if l not in (j, i)]
+    internal = InternalSet(np.array(bonds, int).reshape(-1, 2), bends_arr,
+                           np.array(torsions, int).reshape(-1, 4))
+    # a set that cannot describe every internal motion (e.g. planar molecules of 4 atoms without
+    # torsions in the set) is not used
+    rank = np.linalg.matrix_rank(internal.b_matrix(x), tol=1e-6)
+    if rank < 3 * n - 6:
+        return None
+    return internal
