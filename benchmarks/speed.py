@@ -54,6 +54,8 @@ MOLECULES = [
     ("piperazine amide (53 atoms)", "CN1CCN(CC1)c1ccc(cc1)C(=O)NC(C)c1ccccc1OC"),
 ]
 FMAX_HARTREE_BOHR = 5e-5
+#: Modes more imaginary than this (cm^-1) mean the geometry is a saddle point, not a minimum.
+IMAGINARY_CM1 = 20.0
 
 
 class CountingTBLite(TBLite):
@@ -78,11 +80,20 @@ def reference_path(mol, step_bohr: float):
         t1 = time.perf_counter()
         ir = Infrared(atoms, delta=step_bohr * Bohr, nfree=2, name=os.path.join(tmp, "ir"))
         ir.run()
-        freqs = np.sort(np.real(ir.get_frequencies()))
+        raw = ir.get_frequencies()
+        freqs = np.sort(np.real(raw))
+        imaginary = int(np.sum(np.abs(np.imag(raw)) > IMAGINARY_CM1))
         t_hess = time.perf_counter() - t1
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
-    return n_opt, t_opt, t_hess, energy, freqs
+    return n_opt, t_opt, t_hess, energy, freqs, imaginary, atoms.positions.copy()
+
+
+def _largest_distance_change(a, b) -> float:
+    """Largest change of any interatomic distance between two geometries (Angstrom; no alignment needed)."""
+    da = np.linalg.norm(a[:, None] - a[None], axis=-1)
+    db = np.linalg.norm(b[:, None] - b[None], axis=-1)
+    return float(np.abs(da - db).max())
 
 
 def restarted_gradient_seconds(mol, record) -> tuple[float, float]:
@@ -110,9 +121,10 @@ def main() -> None:
     print(head)
     print("-" * len(head))
     rows = []
+    flagged = []
     for name, smi in mols:
         mol = build_molecule(smi)
-        n_ref, t_ref_opt, t_ref_hess, e_ref, f_ref = reference_path(mol, 0.005)
+        n_ref, t_ref_opt, t_ref_hess, e_ref, f_ref, ref_imaginary, ref_positions = reference_path(mol, 0.005)
         t0 = time.perf_counter()
         record, converged, _ = compute_record(mol, CalculationOptions())
         t_vb = time.perf_counter() - t0
@@ -130,7 +142,14 @@ def main() -> None:
         rows.append(dict(n=mol.natoms, n_ref=n_ref, n_opt=n_opt, ratio=t_ref / t_vb, overhead=overhead,
                          limit=limit, total=t_vb, eff=eff, t_grad=t_grad, d_e=d_e, dnu=dnu,
                          workers=tm["hessian_workers"]))
-        flag = "" if abs(d_e) < 1e-6 else "  <- different minimum"
+        flag = ""
+        if abs(d_e) >= 1e-6:
+            d_geom = _largest_distance_change(record.positions_angstrom, ref_positions)
+            flag = f"  <- different end point: {'lower' if d_e < 0 else 'higher'} energy"
+            flag += f", largest interatomic distance change {d_geom:.3f} A"
+            if ref_imaginary:
+                flag += f"; the reference stopped at a saddle point ({ref_imaginary} imaginary mode(s))"
+            flagged.append((name, mol, record))
         print(f"{name:<28} {mol.natoms:>3} | {n_ref:>9} {t_ref_opt:6.2f} {t_ref_hess:6.2f} {t_ref:7.2f} | "
               f"{n_opt:>8} {tm['optimization_seconds']:6.2f} {100 * overhead:5.1f} {tm['hessian_seconds']:6.2f} "
               f"{t_vb:6.2f} | {t_ref / t_vb:5.1f} {d_e:+8.1e} {dnu:5.2f}{flag}", flush=True)
@@ -148,6 +167,19 @@ def main() -> None:
           f"(limit = (opt gradients + 6N) x restarted gradient time / {cores} cores)")
     print(f"largest |dE| {max(abs(r['d_e']) for r in rows):.1e} Eh; largest frequency difference "
           f"{max(r['dnu'] for r in rows):.2f} cm-1")
+    same = [r["dnu"] for r in rows if abs(r["d_e"]) < 1e-6]
+    if same:
+        print(f"on the {len(same)} molecules with the same minimum (|dE| < 1e-6 Eh): largest frequency difference "
+              f"{max(same):.2f} cm-1")
+    if flagged:
+        print("\nmolecules whose end points differ: the reference (ASE BFGS + Infrared) restarted from vibest's "
+              "geometry, to separate the minimum found from the numerics of the Hessian:")
+        for name, mol, record in flagged:
+            n_ref, _, _, e_ref, f_ref, imag, _ = reference_path(mol.with_positions(record.positions_angstrom), 0.005)
+            modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2)
+            dnu = float(np.abs(np.sort(modes.wavenumbers_cm1) - f_ref[-modes.count:]).max())
+            print(f"  {name:<28} reference gradients {n_ref:>4}, dE {record.energy_hartree - e_ref:+.1e} Eh, "
+                  f"largest frequency difference {dnu:.2f} cm-1, reference imaginary modes {imag}")
 
 
 if __name__ == "__main__":

@@ -92,6 +92,31 @@ def test_parallel_hessian_equals_serial():
     np.testing.assert_allclose(w[0].intensities_km_mol, w[1].intensities_km_mol, rtol=1e-4, atol=1e-3)
 
 
+@pytest.mark.slow
+def test_hessian_while_the_pool_starts_equals_serial():
+    """A pool started just now: this process computes displacements until the workers are up
+    (no idle wait); the result is the serial one to SCF noise."""
+    from vibest.calculation import workers as pool
+
+    mol = build_molecule("CC(=O)Nc1ccc(O)cc1")  # ~1 s of displacements: longer than the workers' start
+    x = mol.positions_angstrom / Bohr
+    eng = make_engine(mol.numbers, x)
+    eng.evaluate(x)
+    serial = finite_difference_hessian(eng, mol.numbers, x, workers=1)
+    pool.shutdown()
+    eng.evaluate(x)
+    before = eng.count
+    mixed = finite_difference_hessian(eng, mol.numbers, x, workers=2)
+    local = eng.count - before
+    assert 0 < local < 6 * mol.natoms  # some displacements here, the rest in the workers
+    # SCF noise (accuracy 0.01; threads reduce in another order) of ~5e-9 Eh/Bohr in a gradient
+    # is ~5e-7 Eh/Bohr^2 after dividing by 2h; far below anything visible in a spectrum
+    np.testing.assert_allclose(mixed.hessian_hartree_bohr2, serial.hessian_hartree_bohr2, atol=2e-6)
+    np.testing.assert_allclose(mixed.dipole_derivatives_e, serial.dipole_derivatives_e, atol=2e-5)
+    w = [harmonic_analysis(mol.numbers, mol.positions_angstrom, r.hessian_hartree_bohr2) for r in (serial, mixed)]
+    np.testing.assert_allclose(w[0].wavenumbers_cm1, w[1].wavenumbers_cm1, atol=0.05)
+
+
 def test_hessian_symmetric_and_translation_invariant():
     h = record_of("C=O").hessian_hartree_bohr2
     np.testing.assert_array_equal(h, h.T)

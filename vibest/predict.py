@@ -33,15 +33,15 @@ from .structure import Molecule, build_molecule
 
 #: Imaginary modes weaker than this (cm^-1, absolute) are treated as numerical noise.
 IMAGINARY_THRESHOLD_CM1 = 20.0
-#: With the default worker count, a Hessian expected to take less than this on one core (s)
-#: runs in-process: starting worker processes would cost more than it saves.
-SERIAL_HESSIAN_SECONDS = 2.0
-#: With worker processes already running (started before the optimisation, or by an earlier
-#: molecule), a Hessian expected to take more than this on one core (s) uses them.
-WARM_POOL_HESSIAN_SECONDS = 0.1
-#: Molecules with at least this many atoms start the worker pool before their optimisation
-#: (measured with benchmarks/speed.py: 6 gave a higher median speed-up than 15).
-PRESTART_MIN_ATOMS = 6
+#: With the default worker count, a Hessian expected to take more than this on one core (s)
+#: runs in the worker pool. The pool is started right after the first gradient, so that its
+#: start-up (~0.3 s on the 2-core benchmark machine) overlaps the optimisation, and this process
+#: computes displacements itself until the workers are up; once running, the pool serves every
+#: later molecule. Smaller Hessians run in-process.
+POOL_HESSIAN_SECONDS = 0.1
+#: A restarted gradient of a displaced geometry costs about this fraction of a gradient from
+#: scratch or of an optimisation step (measured on benchmarks/speed.py molecules: 0.5-0.8).
+RESTARTED_GRADIENT_FRACTION = 0.6
 CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical model; confirm any "
            "identification with reference standards and a validated method.")
 
@@ -245,7 +245,17 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
     x = molecule.positions_angstrom / Bohr
     engine = make_engine(numbers, x, molecule.charge, molecule.uhf, options.engine)
     workers = options.workers or default_workers()
-    if workers > 1 and len(numbers) >= PRESTART_MIN_ATOMS:
+    t_first = time.perf_counter()
+    first = engine.evaluate(x)
+    t_first = time.perf_counter() - t_first
+
+    def expected_serial_hessian_seconds(per_gradient: float) -> float:
+        return 6 * len(numbers) * RESTARTED_GRADIENT_FRACTION * per_gradient
+
+    started = workers > 1 and (bool(options.workers)
+                               or pool_is_ready(workers)
+                               or expected_serial_hessian_seconds(t_first) > POOL_HESSIAN_SECONDS)
+    if started:
         prestart(workers)  # worker start-up overlaps the optimisation
     timings = {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
                "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
@@ -255,10 +265,11 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
             _notify(progress, "optimisation", step, options.optimizer.max_steps,
                     f"E = {energy:.8f} Eh, max force {force:.1e} Eh/Bohr")
 
-        opt = optimize(engine, numbers, x, options.optimizer, progress=opt_progress)
-        timings["optimization_gradients"] += opt.gradient_calls
-        timings["optimization_seconds"] += opt.seconds
-        timings["optimization_gradient_seconds"] += opt.gradient_seconds
+        opt = optimize(engine, numbers, x, options.optimizer, progress=opt_progress, first=first)
+        timings["optimization_gradients"] += opt.gradient_calls + (first is not None)
+        timings["optimization_seconds"] += opt.seconds + (t_first if first is not None else 0.0)
+        timings["optimization_gradient_seconds"] += opt.gradient_seconds + (t_first if first is not None else 0.0)
+        first = None
         if not opt.converged:
             notes.append(f"geometry optimisation did not converge in {opt.gradient_calls} gradients "
                          f"(max force {opt.max_force_hartree_bohr:.1e} Eh/Bohr); frequencies may be unreliable")
@@ -269,8 +280,8 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
             ev = engine.evaluate(x)
             timings["optimization_gradients"] += 1
         per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
-        threshold = WARM_POOL_HESSIAN_SECONDS if pool_is_ready(workers) else SERIAL_HESSIAN_SECONDS
-        use = workers if options.workers or 6 * len(numbers) * per_gradient > threshold else 1
+        use = workers if options.workers or (started and expected_serial_hessian_seconds(per_gradient)
+                                             > POOL_HESSIAN_SECONDS) else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
                                         progress=lambda d, t: _notify(progress, "hessian", d, t))

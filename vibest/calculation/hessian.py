@@ -84,8 +84,11 @@ def finite_difference_hessian(engine: Engine, numbers, positions_bohr, charge: i
                 if progress:
                     progress(len(results), total)
         else:
+            def local(task):
+                return evaluate_block(engine, x0, guess_path, [task], step_bohr)[0]
+
             for item in run_in_workers(numbers, x0, charge, uhf, engine.settings, guess_path, step_bohr,
-                                       tasks, workers):
+                                       tasks, workers, local):
                 results.append(item)
                 if progress and (len(results) % max(1, total // 50) == 0 or len(results) == total):
                     progress(len(results), total)
