@@ -45,11 +45,33 @@ def _synthetic_measured(pred, factor, shift=0.0):
 
 def test_scale_fit_recovers_known_factor():
     pred = prediction_of("CC(C)=O")
-    comp = compare(pred, _synthetic_measured(pred, 0.975), fit_scale=True)
+    comp = compare(pred, _synthetic_measured(pred, 0.975), fit_scale=True, fit_shift=False)
     assert comp.extra_scale == pytest.approx(0.975, abs=5e-4)
     assert comp.score == pytest.approx(1.0, abs=1e-3)
-    plain = compare(pred, _synthetic_measured(pred, 0.975))
+    plain = compare(pred, _synthetic_measured(pred, 0.975), fit_shift=False)
     assert plain.score < comp.score
+
+
+def test_default_comparison_fits_a_bounded_shift_and_no_shift_when_asked():
+    pred = prediction_of("CC(C)=O")
+    measured = _synthetic_measured(pred, 1.0, shift=14.0)
+    comp = compare(pred, measured)
+    assert comp.settings["fit_shift"] and comp.shift_cm1 == pytest.approx(14.0, abs=0.3)
+    assert comp.score == pytest.approx(1.0, abs=1e-3)
+    # beyond the default bound of 20 cm^-1 the fit stops at the bound
+    assert compare(pred, _synthetic_measured(pred, 1.0, shift=-35.0)).shift_cm1 == pytest.approx(-20.0, abs=0.5)
+    plain = compare(pred, measured, fit_shift=False)
+    assert plain.shift_cm1 == 0.0 and plain.score < comp.score
+
+
+def test_translated_curve_equals_the_curve_of_shifted_bands():
+    """The shift fit moves one broadened curve instead of re-broadening: same curve (gas contours too)."""
+    pred = prediction_of("CC(C)=O")
+    measured = _synthetic_measured(pred, 1.0, shift=-8.0)
+    for gas in (False, True):
+        comp = compare(pred, measured, gas_phase=gas, intensity_power=1.0)
+        direct = predicted_curve(pred, comp.grid_cm1, 1.0, comp.shift_cm1, gas_phase=gas)
+        np.testing.assert_allclose(comp.predicted_curve, direct, atol=0.02)
 
 
 def test_shift_fit_recovers_known_shift():

@@ -123,7 +123,8 @@ def spectrum_options(f):
 
 
 def comparison_options(f):
-    from .compare import DEFAULT_INTENSITY_POWER, DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_SCORE, SCORES
+    from .compare import (DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER, DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_MAX_SHIFT_CM1,
+                          DEFAULT_SCORE, SCORES)
 
     for opt in reversed([
         click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
@@ -133,7 +134,10 @@ def comparison_options(f):
         click.option("--compare-range", type=(float, float), default=(500.0, 3800.0), show_default=True,
                      metavar="LOW HIGH", help="Wavenumber range compared, cm^-1."),
         click.option("--fit-scale", is_flag=True, help="Fit an extra scale factor (0.95-1.05) that maximises the score."),
-        click.option("--fit-shift", is_flag=True, help="Fit a shift (-40 to +40 cm^-1) that maximises the score."),
+        click.option("--fit-shift/--no-fit-shift", default=DEFAULT_FIT_SHIFT, show_default=True,
+                     help="Fit a common shift of the predicted wavenumbers (within +-MAX-SHIFT) that maximises the score."),
+        click.option("--max-shift", type=click.FloatRange(0.0, 200.0, min_open=True), default=DEFAULT_MAX_SHIFT_CM1,
+                     show_default=True, help="Largest fitted shift, cm^-1."),
         click.option("--baseline", is_flag=True, help="Remove a rubber-band (lower convex hull) baseline from the measured spectrum."),
         click.option("--tolerance", type=float, default=DEFAULT_MATCH_TOLERANCE_CM1, show_default=True,
                      help="Largest shift for a peak match, cm^-1."),
@@ -312,7 +316,7 @@ def solvents_command() -> None:
 @click.option("--json", "json_path", metavar="FILE", help="Comparison with peak table as JSON.")
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
-def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, baseline,
+def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, max_shift, baseline,
                     tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
                     line_shape, plot_path, json_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
@@ -331,7 +335,8 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
         comp = compare(pred, spec, score_name=score_name, range_cm1=compare_range, fit_scale=fit_scale,
-                       fit_shift=fit_shift, baseline=baseline, tolerance_cm1=tolerance, gas_phase=_phase(phase),
+                       fit_shift=fit_shift, shift_bounds_cm1=(-max_shift, max_shift), baseline=baseline,
+                       tolerance_cm1=tolerance, gas_phase=_phase(phase),
                        intensity_power=intensity_power)
         for note in spec.notes:
             click.echo(f"# note: {note}")
@@ -362,7 +367,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
-                 baseline, tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
+                 max_shift, baseline, tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
                  fwhm, line_shape, csv_path, json_path, plot_dir, top, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
@@ -388,7 +393,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts,
                                   store=_store(store_path, no_store), score_name=score_name,
                                   progress=report, range_cm1=compare_range, fit_scale=fit_scale, fit_shift=fit_shift,
-                                  baseline=baseline, tolerance_cm1=tolerance, gas_phase=_phase(phase),
+                                  shift_bounds_cm1=(-max_shift, max_shift), baseline=baseline, tolerance_cm1=tolerance, gas_phase=_phase(phase),
                                   intensity_power=intensity_power)
         progress.finish()
         click.echo(output.ranking_table(ranking))
