@@ -192,3 +192,17 @@ def test_gas_phase_contour_keeps_intensity_and_is_chosen_from_the_file(tmp_path)
     assert spec.phase == "gas"
     assert compare(pred, spec).settings["gas_phase"] is True
     assert compare(pred, spec, gas_phase=False).settings["gas_phase"] is False
+
+
+def test_noise_does_not_become_peaks_under_the_square_root_comparison():
+    """Weak noise (0.5 % of the strongest band) must not be picked as peaks: the square root used
+    for scoring would lift it to ~7 % of the maximum, above the 3 % prominence."""
+    pred = prediction_of("CC(C)=O")
+    clean = _synthetic_measured(pred, 1.0)
+    noisy = MeasuredSpectrum(clean.wavenumbers_cm1,
+                             clean.values + np.random.default_rng(7).normal(0.0, 0.005, clean.values.size),
+                             ABSORBANCE, "synthetic with noise")
+    comp = compare(pred, noisy)
+    measured = [m for m in comp.matches if m.measured_cm1 is not None]
+    predicted = [m for m in comp.matches if m.predicted_cm1 is not None]
+    assert len(measured) <= 1.5 * len(predicted) + 2

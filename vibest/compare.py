@@ -300,8 +300,10 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
         best = float(res.x) if -res.fun >= vals[k] else float(pts[k])
         f_best, s_best = (best, 0.0) if fit_scale else (1.0, best)
     p_curve = curve(f_best, s_best)
-    m_peaks = pick_peaks(g, m_curve, prominence)
-    p_peaks = pick_peaks(g, p_curve, prominence)
+    # peaks are picked on the normalised absorbances themselves (before the intensity power,
+    # which would lift noise to the prominence of real bands)
+    m_peaks = pick_peaks(g, m_curve ** (1.0 / intensity_power), prominence)
+    p_peaks = pick_peaks(g, p_curve ** (1.0 / intensity_power), prominence)
     rows = []
     for m, p in match_peaks(m_peaks, p_peaks, tolerance_cm1):
         char = _band_character(pred, p.wavenumber_cm1, f_best, s_best, fwhm, shape) if p else ""

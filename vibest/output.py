@@ -157,16 +157,19 @@ def ranking_table(ranking) -> str:
     lines = [f"# measured: {ranking.measured.source}  ({ranking.measured.title})"]
     for note in ranking.measured.notes:
         lines.append(f"# note: {note}")
-    lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'peaks':>7}  name  (SMILES)")
+    lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'shift':>6}  {'peaks':>7}  name  (SMILES)")
     for e in ranking.entries:
         if e.error:
-            lines.append(f"{'-':>4}  {'failed':>7}  {'':>7}  {'':>7}  {e.candidate.name}  ({e.candidate.smiles}): {e.error}")
+            lines.append(f"{'-':>4}  {'failed':>7}  {'':>7}  {'':>6}  {'':>7}  {e.candidate.name}  ({e.candidate.smiles}): "
+                         f"{e.error}")
             continue
         c = e.comparison
         peaks = f"{sum(m.matched for m in c.matches)}/{sum(m.measured_cm1 is not None for m in c.matches)}"
         margin = f"{e.margin_to_next:7.4f}" if e.margin_to_next is not None else f"{'':>7}"
-        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {peaks:>7}  {e.candidate.name}  ({e.candidate.smiles})")
-    lines.append(f"# score: {ranking.score_name}; margin: score minus the next candidate's")
+        shift = f"{c.shift_cm1:+6.1f}" if c.settings.get("fit_shift") else f"{'-':>6}"
+        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {shift}  {peaks:>7}  {e.candidate.name}  ({e.candidate.smiles})")
+    lines.append(f"# score: {ranking.score_name}; margin: score minus the next candidate's; shift: fitted shift of "
+                 f"the predicted wavenumbers (cm^-1), '-' when not fitted; peaks: measured peaks matched / picked")
     lines.append(f"# caution: {CAUTION}")
     return "\n".join(lines)
 
