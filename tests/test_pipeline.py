@@ -157,5 +157,6 @@ def test_predict_is_deterministic_and_reports_counts():
     np.testing.assert_allclose(a.wavenumbers_cm1, b.wavenumbers_cm1, rtol=0, atol=1e-6)
     t = a.record.timings
     assert t["hessian_gradients"] == 36 and t["optimization_gradients"] > 0
+    assert t["optimization_coordinates"] == "internal"
     d = a.to_dict()
     assert d["caution"] and d["versions"]["tblite"] and len(d["bands"]) == 12

@@ -38,7 +38,8 @@ def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bo
     lines.append("# region: 'stretch' >= 1500 cm-1 (group frequencies), 'fingerprint' below")
     if verbose:
         t = pred.record.timings
-        lines.append(f"# optimisation: {t.get('optimization_gradients')} gradients, "
+        coords = f" in {t['optimization_coordinates']} coordinates" if t.get("optimization_coordinates") else ""
+        lines.append(f"# optimisation{coords}: {t.get('optimization_gradients')} gradients, "
                      f"{t.get('optimization_seconds', 0):.2f} s; Hessian: {t.get('hessian_gradients')} gradients, "
                      f"{t.get('hessian_seconds', 0):.2f} s on {t.get('hessian_workers')} worker(s); "
                      f"total {t.get('total_seconds', 0):.2f} s")

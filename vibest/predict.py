@@ -34,11 +34,14 @@ from .structure import Molecule, build_molecule
 #: Imaginary modes weaker than this (cm^-1, absolute) are treated as numerical noise.
 IMAGINARY_THRESHOLD_CM1 = 20.0
 #: With the default worker count, a Hessian expected to take more than this on one core (s)
-#: runs in the worker pool. The pool is started right after the first gradient, so that its
-#: start-up (~0.3 s on the 2-core benchmark machine) overlaps the optimisation, and this process
-#: computes displacements itself until the workers are up; once running, the pool serves every
-#: later molecule. Smaller Hessians run in-process.
-POOL_HESSIAN_SECONDS = 0.1
+#: starts the worker pool right after the first gradient, so that its start-up (~0.3 s of both
+#: cores on the 2-core benchmark machine) overlaps the optimisation; this process computes
+#: displacements itself until the workers are up. Below it, starting workers would cost more than
+#: it saves (benzene: 0.43 s with a fresh pool, 0.25 s in-process).
+POOL_START_HESSIAN_SECONDS = 0.3
+#: A pool already running (started for an earlier molecule) serves any Hessian expected to take
+#: more than this on one core (s).
+POOL_USE_HESSIAN_SECONDS = 0.05
 #: A restarted gradient of a displaced geometry costs about this fraction of a gradient from
 #: scratch or of an optimisation step (measured on benchmarks/speed.py molecules: 0.5-0.8).
 RESTARTED_GRADIENT_FRACTION = 0.6
@@ -252,9 +255,10 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
     def expected_serial_hessian_seconds(per_gradient: float) -> float:
         return 6 * len(numbers) * RESTARTED_GRADIENT_FRACTION * per_gradient
 
+    warm = pool_is_ready(workers)
     started = workers > 1 and (bool(options.workers)
-                               or pool_is_ready(workers)
-                               or expected_serial_hessian_seconds(t_first) > POOL_HESSIAN_SECONDS)
+                               or (warm and expected_serial_hessian_seconds(t_first) > POOL_USE_HESSIAN_SECONDS)
+                               or expected_serial_hessian_seconds(t_first) > POOL_START_HESSIAN_SECONDS)
     if started:
         prestart(workers)  # worker start-up overlaps the optimisation
     timings = {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
@@ -269,6 +273,7 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
         timings["optimization_gradients"] += opt.gradient_calls + (first is not None)
         timings["optimization_seconds"] += opt.seconds + (t_first if first is not None else 0.0)
         timings["optimization_gradient_seconds"] += opt.gradient_seconds + (t_first if first is not None else 0.0)
+        timings["optimization_coordinates"] = opt.coordinates
         first = None
         if not opt.converged:
             notes.append(f"geometry optimisation did not converge in {opt.gradient_calls} gradients "
@@ -280,8 +285,9 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
             ev = engine.evaluate(x)
             timings["optimization_gradients"] += 1
         per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
+        threshold = POOL_USE_HESSIAN_SECONDS if pool_is_ready(workers) else POOL_START_HESSIAN_SECONDS
         use = workers if options.workers or (started and expected_serial_hessian_seconds(per_gradient)
-                                             > POOL_HESSIAN_SECONDS) else 1
+                                             > threshold) else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
                                         progress=lambda d, t: _notify(progress, "hessian", d, t))

@@ -16,21 +16,12 @@ import numpy as np
 from ase.data import covalent_radii
 from ase.units import Bohr
 
-from ..internal_coordinates import bend_vectors, torsion_vectors
+from ..internal_coordinates import bend_vectors, cross_rows, torsion_vectors
 
 #: Atoms closer than this multiple of the sum of their covalent radii are bonded.
 BOND_FACTOR = 1.3
 #: Bends wider than this (degrees) count as linear: the set is not used for such a geometry.
 LINEAR_DEG = 172.0
-
-
-def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Row-wise cross product of (K, 3) arrays (np.cross costs more for these small arrays)."""
-    out = np.empty_like(a)
-    out[:, 0] = a[:, 1] * b[:, 2] - a[:, 2] * b[:, 1]
-    out[:, 1] = a[:, 2] * b[:, 0] - a[:, 0] * b[:, 2]
-    out[:, 2] = a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]
-    return out
 
 
 @dataclass(frozen=True)
@@ -63,9 +54,9 @@ class InternalSet:
         phi = np.zeros(len(t))
         if len(t):
             f, g, h = x[t[:, 0]] - x[t[:, 1]], x[t[:, 1]] - x[t[:, 2]], x[t[:, 3]] - x[t[:, 2]]
-            p, q = _cross(f, g), _cross(h, g)
+            p, q = cross_rows(f, g), cross_rows(h, g)
             lg = np.sqrt((g * g).sum(1))
-            phi = np.arctan2((_cross(q, p) * g).sum(1) / lg, (p * q).sum(1))
+            phi = np.arctan2((cross_rows(q, p) * g).sum(1) / lg, (p * q).sum(1))
         return np.concatenate([r, theta, phi])
 
     def b_matrix(self, x: np.ndarray) -> np.ndarray:
