@@ -64,6 +64,19 @@ def test_molecules_outside_the_internal_set_are_optimised_in_cartesians(smiles):
     assert res.converged and res.coordinates == "cartesian"
 
 
+def test_a_geometry_that_becomes_linear_switches_to_cartesians():
+    """HCN started with a 150 degree bend: the bend straightens (HCN is linear: common practice,
+    no source), the internal set stops describing it, and the optimiser finishes in Cartesians."""
+    numbers = [1, 6, 7]
+    ang = np.radians(150.0)
+    x = np.array([[1.07 * np.cos(ang), 1.07 * np.sin(ang), 0.0], [0.0, 0.0, 0.0], [1.16, 0.0, 0.0]]) / Bohr
+    res = optimize(make_engine(numbers, x), numbers, x)
+    assert res.converged and res.coordinates == "internal, then cartesian"
+    p = res.positions_bohr
+    u, v = p[0] - p[1], p[2] - p[1]
+    assert np.degrees(np.arccos(u @ v / np.linalg.norm(u) / np.linalg.norm(v))) > 179.5
+
+
 def test_unknown_optimiser_coordinates_are_refused():
     from vibest.errors import InputError
 
