@@ -64,14 +64,17 @@ def summary(rows) -> str:
             f"isomers top-1 {np.mean(iso == 1):6.1%} ({len(iso)})  median margin {np.median(margins):+.3f}")
 
 
-VARIANTS = [  # (label, compare options): the effect of the gas-phase contour, the intensity power, the shift fit
-    ("plain bands, y^1", {"gas_phase": False, "intensity_power": 1.0, "fit_shift": False}),
-    ("plain bands, y^0.5", {"gas_phase": False, "intensity_power": 0.5, "fit_shift": False}),
-    ("gas contours, y^1", {"gas_phase": True, "intensity_power": 1.0, "fit_shift": False}),
-    ("gas contours, y^0.5", {"gas_phase": True, "intensity_power": 0.5, "fit_shift": False}),
-    ("same + fitted shift +-10 cm-1", {"gas_phase": True, "intensity_power": 0.5, "shift_bounds_cm1": (-10.0, 10.0)}),
-    ("same + fitted shift +-20 (default)", {}),
-    ("same + fitted shift +-40 cm-1", {"gas_phase": True, "intensity_power": 0.5, "shift_bounds_cm1": (-40.0, 40.0)}),
+NO_SHIFT = {"fit_shift": False}
+VARIANTS = [  # (label, score, compare options): contour, intensity power, shift fit and score
+    ("pearson, plain bands, y^1, no shift", "pearson", {"gas_phase": False, "intensity_power": 1.0, **NO_SHIFT}),
+    ("pearson, plain bands, y^0.5, no shift", "pearson", {"gas_phase": False, **NO_SHIFT}),
+    ("pearson, gas contours, y^1, no shift", "pearson", {"intensity_power": 1.0, **NO_SHIFT}),
+    ("pearson, gas contours, y^0.5, no shift", "pearson", NO_SHIFT),
+    ("pearson, same + shift +-20", "pearson", {}),
+    ("regional, gas contours, y^0.5, no shift", "regional", NO_SHIFT),
+    ("regional, same + shift +-10", "regional", {"shift_bounds_cm1": (-10.0, 10.0)}),
+    ("regional, same + shift +-40", "regional", {"shift_bounds_cm1": (-40.0, 40.0)}),
+    ("regional, same + shift +-20 (default)", DEFAULT_SCORE, {}),
 ]
 
 
@@ -99,13 +102,13 @@ def main() -> None:
         groups[formula(e.smiles)].append(e.name)
     print(f"{len(entries)} measured spectra, {len(preds)} distinct candidates; isomer groups: "
           + "; ".join(f"{f}: {', '.join(n)}" for f, n in groups.items() if len({x for x in n}) > 1))
-    print("broadening of the predicted spectrum (every file here is a gas-phase spectrum, so the default "
-          "comparison gives predicted bands rotational P/Q/R contours, vibest.gas_phase):")
+    print("broadening and comparison (every file here is a gas-phase spectrum, so the default comparison "
+          "gives predicted bands rotational P/Q/R contours, vibest.gas_phase):")
     default_variant = None
-    for label, kw in VARIANTS:
-        rows = evaluate(entries, spectra, preds, DEFAULT_SCORE, args.fwhm[0], **kw)
-        print(f"  {label:<36} {summary(rows)}", flush=True)
-        if not kw:
+    for label, score_name, kw in VARIANTS:
+        rows = evaluate(entries, spectra, preds, score_name, args.fwhm[0], **kw)
+        print(f"  {label:<40} {summary(rows)}", flush=True)
+        if not kw and score_name == DEFAULT_SCORE:
             default_variant = rows
     scores = [DEFAULT_SCORE] if args.quick else list(SCORES)
     widths = args.fwhm[:1] if args.quick else args.fwhm

@@ -25,7 +25,7 @@ def test_compare_command_writes_overlay_and_json(tmp_path):
     res = CliRunner().invoke(main, ["compare", str(m), "CC(C)=O", "-q", "--no-store", "--plot",
                                     str(tmp_path / "o.png"), "--json", str(tmp_path / "c.json")])
     assert res.exit_code == 0, res.output
-    assert "pearson" in res.output and "C=O stretch" in res.output and "caution" in res.output
+    assert "regional" in res.output and "pearson" in res.output and "C=O stretch" in res.output and "caution" in res.output
     data = json.loads((tmp_path / "c.json").read_text())
     assert data["peak_matches"] and len(data["grid_cm1"]) == len(data["measured_curve"])
     assert (tmp_path / "o.png").stat().st_size > 10000

@@ -25,7 +25,7 @@ def lorentz(x, c, w=16.0):
 def test_identical_spectra_score_one(name):
     x = grid(500, 3800, 2)
     a = lorentz(x, 1700) + 0.5 * lorentz(x, 2950)
-    assert score(a, a, name) == pytest.approx(1.0)
+    assert score(a, a, name, x) == pytest.approx(1.0)
 
 
 @pytest.mark.parametrize("name", SCORES)
@@ -33,8 +33,27 @@ def test_shifted_lorentzians_order(name):
     """Two Lorentzians: the smaller the shift, the higher every score (analytic case)."""
     x = grid(500, 3800, 1)
     a = lorentz(x, 1700)
-    values = [score(a, lorentz(x, 1700 + d), name) for d in (0, 5, 15, 40, 120)]
+    values = [score(a, lorentz(x, 1700 + d), name, x) for d in (0, 5, 15, 40, 120)]
     assert all(v1 > v2 for v1, v2 in zip(values, values[1:]))
+
+
+def test_regional_score_lets_the_fingerprint_count_against_strong_stretches():
+    """A strong shared band at 2950 cm^-1 and a weak fingerprint band that is at 1000 cm^-1 in one
+    curve and at 1200 in the other: the whole-range correlation hardly notices, the regional
+    score does (construction, no source)."""
+    x = grid(500, 3800, 2)
+
+    def curve(*bands):  # normalised and square-rooted, as compare() does by default
+        y = sum(h * lorentz(x, c) for c, h in bands)
+        return (y / y.max()) ** 0.5
+
+    a = curve((2950, 1.0), (1000, 0.15))
+    b = curve((2950, 1.0), (1200, 0.15))
+    # the wrong fingerprint band costs the regional score at least twice what it costs Pearson
+    assert 1 - score(a, b, "regional", x) > 2 * (1 - score(a, b, "pearson", x))
+    assert score(a, curve((2950, 1.0), (1000, 0.15)), "regional", x) == pytest.approx(1.0)
+    with pytest.raises(ValueError):
+        score(a, b, "regional")
 
 
 def _synthetic_measured(pred, factor, shift=0.0):

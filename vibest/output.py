@@ -142,8 +142,8 @@ def peak_table(comp) -> str:
 
 def comparison_summary(comp) -> str:
     s = comp.scores
-    text = (f"{comp.smiles}: {comp.score_name} {comp.score:.4f}  (pearson {s['pearson']:.3f}, spearman "
-            f"{s['spearman']:.3f}, cosine {s['cosine']:.3f}, overlap {s['overlap']:.3f})")
+    others = ", ".join(f"{k} {v:.3f}" for k, v in s.items() if k != comp.score_name)
+    text = f"{comp.smiles}: {comp.score_name} {comp.score:.4f}  ({others})"
     if comp.settings.get("fit_scale") or comp.settings.get("fit_shift"):
         text += f"\n  fitted: extra scale {comp.extra_scale:.4f}, shift {comp.shift_cm1:+.1f} cm-1"
     st = comp.settings

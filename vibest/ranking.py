@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
-from .compare import DEFAULT_SCORE, Comparison, compare
+from .compare import DEFAULT_SCORE, SCORES, Comparison, compare
 from .errors import InputError, VibestError
 from .measured import MeasuredSpectrum
 from .predict import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record
@@ -58,8 +58,8 @@ class Ranking:
         with open(path, "w", newline="") as fh:
             fh.write(f"# {CAUTION}\n")
             w = csv.writer(fh)
-            w.writerow(["rank", "name", "smiles", "score", "margin_to_next", "pearson", "spearman", "cosine",
-                        "overlap", "matched_peaks", "measured_peaks", "error"])
+            w.writerow(["rank", "name", "smiles", "score", "margin_to_next", *SCORES,
+                        "matched_peaks", "measured_peaks", "error"])
             for e in self.entries:
                 c = e.comparison
                 s = c.scores if c else {}
@@ -68,7 +68,7 @@ class Ranking:
                 w.writerow([e.rank or "", e.candidate.name, e.candidate.smiles,
                             "" if e.score is None else f"{e.score:.4f}",
                             "" if e.margin_to_next is None else f"{e.margin_to_next:.4f}",
-                            *(f"{s[k]:.4f}" if k in s else "" for k in ("pearson", "spearman", "cosine", "overlap")),
+                            *(f"{s[k]:.4f}" if k in s else "" for k in SCORES),
                             n_match, n_meas, e.error or ""])
 
 
