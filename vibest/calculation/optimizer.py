@@ -186,6 +186,8 @@ class _InternalSteps:
         self.ic = internal
         self.x, self.g = x, g
         self.q, self._u, self._vs, self.gq = self._frame(x, g)
+        #: Whether the set spans all internal motions (3N-6 non-zero singular values of B).
+        self.complete = self._u.shape[1] >= x.size - 6
         # Lindh's model restricted to the set's own primitives: diagonal and cheap; on the molecules
         # of benchmarks/speed.py it needed as few or fewer gradients than the full Cartesian model
         # transformed to internals
@@ -282,6 +284,8 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         internal = redundant_internals.build(numbers, x)
         if internal is not None:
             steps = _InternalSteps(internal, numbers, x, g)
+            if not steps.complete:
+                steps = None
     if steps is None:
         steps = _CartesianSteps(numbers, x, g)
     used = [steps.name]

@@ -126,7 +126,9 @@ def connectivity(numbers, x: np.ndarray) -> list[tuple[int, int]]:
 
 
 def build(numbers, x: np.ndarray) -> InternalSet | None:
-    """The redundant set of a geometry (Bohr), or None when it has a near-linear bend or too few atoms."""
+    """The redundant set of a geometry (Bohr), or None when it has a near-linear bend or too few
+    atoms. Whether the set spans all 3N-6 internal motions (it does not for, e.g., a planar
+    4-atom molecule without torsions) is for the user of its B matrix to check."""
     n = len(x)
     if n < 3:
         return None
@@ -143,11 +145,4 @@ def build(numbers, x: np.ndarray) -> InternalSet | None:
     if ang.max() > LINEAR_DEG:
         return None
     torsions = [(i, j, k, l) for j, k in bonds for i in nbrs[j] if i != k for l in nbrs[k] if l not in (j, i)]
-    internal = InternalSet(np.array(bonds, int).reshape(-1, 2), bends_arr,
-                           np.array(torsions, int).reshape(-1, 4))
-    # a set that cannot describe every internal motion (e.g. planar molecules of 4 atoms without
-    # torsions in the set) is not used
-    rank = np.linalg.matrix_rank(internal.b_matrix(x), tol=1e-6)
-    if rank < 3 * n - 6:
-        return None
-    return internal
+    return InternalSet(np.array(bonds, int).reshape(-1, 2), bends_arr, np.array(torsions, int).reshape(-1, 4))
