@@ -14,5 +14,5 @@ mkdir -p out/demo
 echo
 echo "== ranking candidate solvents against the (invented) measured spectrum of batch HX-07 =="
 .venv/bin/vibest rank examples/hx07-recovered-solvent.csv --candidates-file examples/hx07-candidates.txt \
-  --y-kind transmittance --cache out/demo/cache --csv out/demo/hx07-ranking.csv --plot-dir out/demo/hx07-overlays
+  --y-kind transmittance --store out/demo/store.sqlite --csv out/demo/hx07-ranking.csv --plot-dir out/demo/hx07-overlays
 echo "demo outputs are in out/demo/"

@@ -50,3 +50,31 @@ def test_predict_isotope_and_thermo_output():
     assert res.exit_code == 0, res.output
     assert "isotopologue D-all" in res.output and "Gibbs energy" in res.output
     assert run("predict", "Cl", "-q", "--isotope", "13C").exit_code == 2  # no carbon in HCl
+
+
+def _demo_commands() -> list[list[str]]:
+    """The vibest command lines of scripts/demo.sh (continuation lines joined), as argument lists."""
+    import shlex
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[1] / "scripts" / "demo.sh").read_text().replace("\\\n", " ")
+    return [shlex.split(line)[1:] for line in text.splitlines() if line.strip().startswith(".venv/bin/vibest ")]
+
+
+@pytest.mark.slow
+def test_the_demo_script_commands_run(tmp_path, monkeypatch):
+    """Every vibest call of the README's demo command (scripts/demo.sh) is accepted and succeeds,
+    writing its outputs (run here with out/ redirected to a temporary folder)."""
+    from pathlib import Path
+
+    commands = _demo_commands()
+    assert len(commands) >= 2
+    root = Path(__file__).resolve().parents[1]
+    (tmp_path / "out" / "demo").mkdir(parents=True)
+    (tmp_path / "examples").symlink_to(root / "examples")
+    monkeypatch.chdir(tmp_path)
+    for args in commands:
+        res = run(*args)
+        assert res.exit_code == 0, (args, res.output)
+    assert (tmp_path / "out" / "demo" / "hx07-ranking.csv").exists()
+    assert (tmp_path / "out" / "demo" / "hx07-2-butanone.png").exists()

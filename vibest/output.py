@@ -183,19 +183,20 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
     import matplotlib.pyplot as plt
 
     g, m, p = comp.grid_cm1, comp.measured_curve, comp.predicted_curve
+    power = comp.settings.get("intensity_power", 1.0)
     fig, (ax, axr) = plt.subplots(2, 1, figsize=(10, 5.6), dpi=120, sharex=True,
                                   gridspec_kw={"height_ratios": [3.2, 1]})
     ax.plot(g, m, color="black", lw=1.1, label=measured_label)
     ax.plot(g, p, color="#c55a11", lw=1.1, label=f"predicted {comp.smiles}")
-    for row in comp.matches:
+    for row in comp.matches:  # peak heights are absorbances: drawn on the compared (powered) scale
         if row.matched:
-            ax.plot([row.measured_cm1, row.predicted_cm1], [row.measured_height + 0.04, row.predicted_height + 0.04],
-                    color="#1f4e79", lw=0.8)
-            ax.plot(row.measured_cm1, row.measured_height + 0.04, "v", color="#1f4e79", ms=3)
+            ax.plot([row.measured_cm1, row.predicted_cm1],
+                    [row.measured_height ** power + 0.04, row.predicted_height ** power + 0.04], color="#1f4e79", lw=0.8)
+            ax.plot(row.measured_cm1, row.measured_height ** power + 0.04, "v", color="#1f4e79", ms=3)
         elif row.measured_cm1 is not None:
-            ax.plot(row.measured_cm1, row.measured_height + 0.04, "x", color="#7f7f7f", ms=4)
+            ax.plot(row.measured_cm1, row.measured_height ** power + 0.04, "x", color="#7f7f7f", ms=4)
     ax.set_ylim(0, 1.15)
-    ax.set_ylabel("absorbance (normalised)")
+    ax.set_ylabel("absorbance (normalised)" if power == 1.0 else f"(normalised absorbance)$^{{{power:g}}}$, as compared")
     ax.legend(loc="upper left", fontsize=8, frameon=False)
     ax.set_title(title or f"{comp.score_name} {comp.score:.3f}   (v: matched peak, x: unmatched measured peak)",
                  fontsize=9)
