@@ -75,6 +75,20 @@ def torsion_vectors(x: np.ndarray, i, j, k, l) -> np.ndarray:
     return np.stack([di, dj, dk, dl], axis=1)
 
 
+def bend_angles(x: np.ndarray, i, j, k) -> np.ndarray:
+    """Angles (rad) of many bends i-j-k at once (index arrays, apex j)."""
+    u, v = x[i] - x[j], x[k] - x[j]
+    cos = (u * v).sum(-1) / np.sqrt((u * u).sum(-1) * (v * v).sum(-1))
+    return np.arccos(np.clip(cos, -1.0, 1.0))
+
+
+def torsion_angles(x: np.ndarray, i, j, k, l) -> np.ndarray:
+    """Dihedral angles (rad, -pi..pi) of many torsions i-j-k-l at once (index arrays)."""
+    f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
+    a, b = cross_rows(f, g), cross_rows(h, g)
+    return np.arctan2((cross_rows(b, a) * g).sum(-1) / np.sqrt((g * g).sum(-1)), (a * b).sum(-1))
+
+
 def bend_b(x: np.ndarray, i: int, j: int, k: int) -> tuple[float, dict[int, np.ndarray]]:
     vecs, ang = bend_vectors(x, np.array([i]), np.array([j]), np.array([k]))
     return float(np.radians(ang[0])), {i: vecs[0, 0], k: vecs[0, 2], j: vecs[0, 1]}
@@ -82,11 +96,9 @@ def bend_b(x: np.ndarray, i: int, j: int, k: int) -> tuple[float, dict[int, np.n
 
 def torsion_b(x: np.ndarray, i: int, j: int, k: int, l: int) -> tuple[float, dict[int, np.ndarray]]:
     """Dihedral angle i-j-k-l and its gradient."""
-    f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
-    a, b = np.cross(f, g), np.cross(h, g)
-    phi = float(np.arctan2(np.cross(b, a) @ g / np.linalg.norm(g), a @ b))
-    vecs = torsion_vectors(x, np.array([i]), np.array([j]), np.array([k]), np.array([l]))[0]
-    return phi, {i: vecs[0], j: vecs[1], k: vecs[2], l: vecs[3]}
+    idx = (np.array([i]), np.array([j]), np.array([k]), np.array([l]))
+    vecs = torsion_vectors(x, *idx)[0]
+    return float(torsion_angles(x, *idx)[0]), {i: vecs[0], j: vecs[1], k: vecs[2], l: vecs[3]}
 
 
 def out_of_plane_b(x: np.ndarray, i: int, j: int, k: int, l: int) -> tuple[float, dict[int, np.ndarray]]:

@@ -15,8 +15,9 @@ from dataclasses import dataclass
 import numpy as np
 from ase.data import covalent_radii
 from ase.units import Bohr
+from scipy.sparse.csgraph import connected_components
 
-from ..internal_coordinates import bend_vectors, cross_rows, torsion_vectors
+from ..internal_coordinates import bend_angles, bend_vectors, torsion_angles, torsion_vectors
 
 #: Atoms closer than this multiple of the sum of their covalent radii are bonded.
 BOND_FACTOR = 1.3
@@ -48,16 +49,8 @@ class InternalSet:
         b, a, t = self.bonds, self.bends, self.torsions
         d = x[b[:, 0]] - x[b[:, 1]]
         r = np.sqrt((d * d).sum(1))
-        u, v = x[a[:, 0]] - x[a[:, 1]], x[a[:, 2]] - x[a[:, 1]]
-        cos = (u * v).sum(1) / np.sqrt((u * u).sum(1) * (v * v).sum(1))
-        theta = np.arccos(np.clip(cos, -1.0, 1.0))
-        phi = np.zeros(len(t))
-        if len(t):
-            f, g, h = x[t[:, 0]] - x[t[:, 1]], x[t[:, 1]] - x[t[:, 2]], x[t[:, 3]] - x[t[:, 2]]
-            p, q = cross_rows(f, g), cross_rows(h, g)
-            lg = np.sqrt((g * g).sum(1))
-            phi = np.arctan2((cross_rows(q, p) * g).sum(1) / lg, (p * q).sum(1))
-        return np.concatenate([r, theta, phi])
+        phi = torsion_angles(x, t[:, 0], t[:, 1], t[:, 2], t[:, 3]) if len(t) else np.zeros(0)
+        return np.concatenate([r, bend_angles(x, a[:, 0], a[:, 1], a[:, 2]), phi])
 
     def b_matrix(self, x: np.ndarray) -> np.ndarray:
         """Wilson B matrix (size, 3N): derivatives of :meth:`values` by Cartesians (Bohr)."""
@@ -90,9 +83,8 @@ class InternalSet:
         return d
 
     def max_bend_deg(self, x: np.ndarray) -> float:
-        if not len(self.bends):
-            return 0.0
-        return float(np.degrees(self.values(x)[len(self.bonds):len(self.bonds) + len(self.bends)].max()))
+        a = self.bends
+        return float(np.degrees(bend_angles(x, a[:, 0], a[:, 1], a[:, 2]).max())) if len(a) else 0.0
 
 
 def connectivity(numbers, x: np.ndarray) -> list[tuple[int, int]]:
@@ -101,21 +93,9 @@ def connectivity(numbers, x: np.ndarray) -> list[tuple[int, int]]:
     d = np.linalg.norm(x[:, None] - x[None, :], axis=-1)
     bonded = d < BOND_FACTOR * (radii[:, None] + radii[None, :])
     np.fill_diagonal(bonded, False)
-    n = len(x)
     while True:
-        label = np.full(n, -1)
-        for start in range(n):
-            if label[start] >= 0:
-                continue
-            stack = [start]
-            label[start] = start
-            while stack:
-                i = stack.pop()
-                for j in np.nonzero(bonded[i])[0]:
-                    if label[j] < 0:
-                        label[j] = start
-                        stack.append(j)
-        if len(set(label)) <= 1:
+        count, label = connected_components(bonded, directed=False)
+        if count <= 1:
             break
         first = label == label[0]
         sub = np.where(first[:, None] & ~first[None, :], d, np.inf)
@@ -140,9 +120,6 @@ def build(numbers, x: np.ndarray) -> InternalSet | None:
     bends = [(i, j, k) for j in range(n) for p, i in enumerate(nbrs[j]) for k in nbrs[j][p + 1:]]
     if not bends:
         return None
-    bends_arr = np.array(bends)
-    _, ang = bend_vectors(x, bends_arr[:, 0], bends_arr[:, 1], bends_arr[:, 2])
-    if ang.max() > LINEAR_DEG:
-        return None
     torsions = [(i, j, k, l) for j, k in bonds for i in nbrs[j] if i != k for l in nbrs[k] if l not in (j, i)]
-    return InternalSet(np.array(bonds, int).reshape(-1, 2), bends_arr, np.array(torsions, int).reshape(-1, 4))
+    internal = InternalSet(np.array(bonds, int).reshape(-1, 2), np.array(bends), np.array(torsions, int).reshape(-1, 4))
+    return None if internal.max_bend_deg(x) > LINEAR_DEG else internal
