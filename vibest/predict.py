@@ -252,16 +252,16 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
     first = engine.evaluate(x)
     t_first = time.perf_counter() - t_first
 
-    def expected_serial_hessian_seconds(per_gradient: float) -> float:
-        return 6 * len(numbers) * RESTARTED_GRADIENT_FRACTION * per_gradient
+    def pool_pays(per_gradient_seconds: float) -> bool:
+        """Whether the expected one-core Hessian time exceeds the threshold for the pool's state."""
+        expected = 6 * len(numbers) * RESTARTED_GRADIENT_FRACTION * per_gradient_seconds
+        return expected > (POOL_USE_HESSIAN_SECONDS if pool_is_ready(workers) else POOL_START_HESSIAN_SECONDS)
 
-    warm = pool_is_ready(workers)
-    started = workers > 1 and (bool(options.workers)
-                               or (warm and expected_serial_hessian_seconds(t_first) > POOL_USE_HESSIAN_SECONDS)
-                               or expected_serial_hessian_seconds(t_first) > POOL_START_HESSIAN_SECONDS)
+    started = workers > 1 and (bool(options.workers) or pool_pays(t_first))
     if started:
         prestart(workers)  # worker start-up overlaps the optimisation
-    timings = {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
+    # the first gradient, made here to decide on the pool, is the optimisation's first
+    timings = {"optimization_gradients": 1, "optimization_seconds": t_first, "optimization_gradient_seconds": t_first,
                "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
     attempt = 0
     while True:
@@ -270,9 +270,9 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
                     f"E = {energy:.8f} Eh, max force {force:.1e} Eh/Bohr")
 
         opt = optimize(engine, numbers, x, options.optimizer, progress=opt_progress, first=first)
-        timings["optimization_gradients"] += opt.gradient_calls + (first is not None)
-        timings["optimization_seconds"] += opt.seconds + (t_first if first is not None else 0.0)
-        timings["optimization_gradient_seconds"] += opt.gradient_seconds + (t_first if first is not None else 0.0)
+        timings["optimization_gradients"] += opt.gradient_calls
+        timings["optimization_seconds"] += opt.seconds
+        timings["optimization_gradient_seconds"] += opt.gradient_seconds
         timings["optimization_coordinates"] = opt.coordinates
         first = None
         if not opt.converged:
@@ -285,9 +285,7 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
             ev = engine.evaluate(x)
             timings["optimization_gradients"] += 1
         per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
-        threshold = POOL_USE_HESSIAN_SECONDS if pool_is_ready(workers) else POOL_START_HESSIAN_SECONDS
-        use = workers if options.workers or (started and expected_serial_hessian_seconds(per_gradient)
-                                             > threshold) else 1
+        use = workers if options.workers or (started and pool_pays(per_gradient)) else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
                                         progress=lambda d, t: _notify(progress, "hessian", d, t))
