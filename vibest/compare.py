@@ -285,7 +285,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     m_curve = preprocess(measured, g, baseline=baseline)
     if smooth_measured_cm1 > 0:
         m_curve = smooth(m_curve, step_cm1, smooth_measured_cm1)
-    m_curve = m_curve ** intensity_power
+    m_linear, m_curve = m_curve, m_curve ** intensity_power
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
     contour = None
@@ -301,15 +301,16 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
         padded = grid(lo - pad, hi + pad, step_cm1)
         shifted_base = (padded, predicted_curve(pred, padded, 1.0, 0.0, fwhm, shape, gas_phase, contour=contour))
 
-    def curve(f, s):
+    def linear_curve(f, s):
+        """Normalised predicted absorbance after nu -> f nu + s."""
         if shifted_base is not None and f == 1.0:
             y = np.interp(g - s, *shifted_base)
             top = y.max()
-            return (y / top if top > 0 else y) ** intensity_power
-        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase, contour=contour) ** intensity_power
+            return y / top if top > 0 else y
+        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase, contour=contour)
 
     def value(f, s):
-        return score(m_curve, curve(f, s), score_name, g)
+        return score(m_curve, linear_curve(f, s) ** intensity_power, score_name, g)
 
     f_best, s_best = 1.0, 0.0
     if fit_scale and fit_shift:
@@ -331,11 +332,12 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
                                        options={"xatol": 1e-5 if fit_scale else 1e-2})
         best = float(res.x) if -res.fun >= vals[k] else float(pts[k])
         f_best, s_best = (best, 0.0) if fit_scale else (1.0, best)
-    p_curve = curve(f_best, s_best)
+    p_linear = linear_curve(f_best, s_best)
+    p_curve = p_linear ** intensity_power
     # peaks are picked on the normalised absorbances themselves (before the intensity power,
     # which would lift noise to the prominence of real bands)
-    m_peaks = pick_peaks(g, m_curve ** (1.0 / intensity_power), prominence)
-    p_peaks = pick_peaks(g, p_curve ** (1.0 / intensity_power), prominence)
+    m_peaks = pick_peaks(g, m_linear, prominence)
+    p_peaks = pick_peaks(g, p_linear, prominence)
     rows = []
     for m, p in match_peaks(m_peaks, p_peaks, tolerance_cm1):
         char = _band_character(pred, p.wavenumber_cm1, f_best, s_best, fwhm, shape) if p else ""

@@ -26,10 +26,7 @@ def _main() -> None:
         try:
             numbers, x0, charge, uhf, settings, guess, step = header
             engine = make_engine(numbers, x0, charge, uhf, settings)
-            while True:
-                task = pickle.load(stream)
-                if task is None:
-                    break
+            for task in jobs(stream):  # until the job's closing None
                 (item,) = evaluate_block(engine, x0, guess, [task], step)
                 pickle.dump(("result", item), results)
                 results.flush()
