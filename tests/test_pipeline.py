@@ -87,14 +87,22 @@ def test_unknown_optimiser_coordinates_are_refused():
 
 
 @pytest.mark.slow
-def test_parallel_hessian_equals_serial():
+@pytest.mark.parametrize("executor", ["threads", "processes"])
+def test_parallel_hessian_equals_serial(executor):
+    """tblite engines compute displacements in threads of this process; engines that cannot
+    (xtb-python) in worker processes. Both against the serial path (same code, one worker)."""
     mol = build_molecule("CCO")
     x = mol.positions_angstrom / Bohr
     eng = make_engine(mol.numbers, x)
+    assert eng.concurrent
     eng.evaluate(x)
     serial = finite_difference_hessian(eng, mol.numbers, x, workers=1)
+    eng.concurrent = executor == "threads"
     eng.evaluate(x)
+    before = eng.count
     parallel = finite_difference_hessian(eng, mol.numbers, x, workers=2)
+    if executor == "threads":  # each thread computes on an engine of its own
+        assert eng.count == before
     assert parallel.workers == 2 and parallel.gradient_calls == 6 * mol.natoms
     np.testing.assert_allclose(parallel.hessian_hartree_bohr2, serial.hessian_hartree_bohr2, atol=1e-7)
     # SCF noise (threads reduce in another order): ~1e-7 e, far below anything visible in a spectrum.
@@ -116,6 +124,7 @@ def test_hessian_while_the_pool_starts_equals_serial():
     eng = make_engine(mol.numbers, x)
     eng.evaluate(x)
     serial = finite_difference_hessian(eng, mol.numbers, x, workers=1)
+    eng.concurrent = False  # as an xtb-python engine: worker processes
     pool.shutdown()
     eng.evaluate(x)
     before = eng.count
@@ -128,6 +137,27 @@ def test_hessian_while_the_pool_starts_equals_serial():
     np.testing.assert_allclose(mixed.dipole_derivatives_e, serial.dipole_derivatives_e, atol=2e-5)
     w = [harmonic_analysis(mol.numbers, mol.positions_angstrom, r.hessian_hartree_bohr2) for r in (serial, mixed)]
     np.testing.assert_allclose(w[0].wavenumbers_cm1, w[1].wavenumbers_cm1, atol=0.05)
+
+
+def test_a_failing_displacement_in_a_thread_stops_the_hessian_with_a_calculation_error():
+    from vibest.calculation.engine import TBLiteEngine
+    from vibest.errors import CalculationError
+
+    class Failing(TBLiteEngine):
+        def copy(self):
+            return Failing(self.numbers, *self._start, self.settings)
+
+        def evaluate(self, positions_bohr):
+            if self.count >= 3:
+                raise CalculationError("GFN2-xTB single point failed: test")
+            return super().evaluate(positions_bohr)
+
+    mol = build_molecule("CCO")
+    x = mol.positions_angstrom / Bohr
+    eng = Failing(mol.numbers, x)
+    eng.evaluate(x)
+    with pytest.raises(CalculationError, match="single point failed"):
+        finite_difference_hessian(eng, mol.numbers, x, workers=2)
 
 
 def test_hessian_symmetric_and_translation_invariant():

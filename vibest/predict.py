@@ -33,11 +33,15 @@ from .structure import Molecule, build_molecule
 
 #: Imaginary modes weaker than this (cm^-1, absolute) are treated as numerical noise.
 IMAGINARY_THRESHOLD_CM1 = 20.0
-#: With the default worker count, a Hessian expected to take more than this on one core (s)
-#: starts the worker pool right after the first gradient, so that its start-up (~0.3 s of both
-#: cores on the 2-core benchmark machine) overlaps the optimisation; this process computes
-#: displacements itself until the workers are up. Below it, starting workers would cost more than
-#: it saves (benzene: 0.43 s with a fresh pool, 0.25 s in-process).
+#: With an engine that computes in threads (tblite), a Hessian expected to take more than this
+#: on one core (s) runs in parallel threads. Below it (water: 4 ms serial, 6 ms in two threads),
+#: starting threads costs more than it saves; from methanol (0.02 s) on, two threads are faster.
+THREAD_HESSIAN_SECONDS = 0.02
+#: With an engine that needs worker processes (xtb-python) and the default worker count, a
+#: Hessian expected to take more than this on one core (s) starts the worker pool right after the
+#: first gradient, so that its start-up (~0.2 s of both cores on the 2-core benchmark machine)
+#: overlaps the optimisation; this process computes displacements itself until the workers are
+#: up. Below it, starting workers would cost more than it saves.
 POOL_START_HESSIAN_SECONDS = 0.3
 #: A pool already running (started for an earlier molecule) serves any Hessian expected to take
 #: more than this on one core (s).
@@ -252,14 +256,18 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
     first = engine.evaluate(x)
     t_first = time.perf_counter() - t_first
 
-    def pool_pays(per_gradient_seconds: float) -> bool:
-        """Whether the expected one-core Hessian time exceeds the threshold for the pool's state."""
+    def parallel_pays(per_gradient_seconds: float) -> bool:
+        """Whether the expected one-core Hessian time exceeds the threshold for threads, or for
+        worker processes in the pool's present state."""
         expected = 6 * len(numbers) * RESTARTED_GRADIENT_FRACTION * per_gradient_seconds
+        if engine.concurrent:
+            return expected > THREAD_HESSIAN_SECONDS
         return expected > (POOL_USE_HESSIAN_SECONDS if pool_is_ready(workers) else POOL_START_HESSIAN_SECONDS)
 
-    started = workers > 1 and (bool(options.workers) or pool_pays(t_first))
-    if started:
-        prestart(workers)  # worker start-up overlaps the optimisation
+    # threads start at no cost; worker processes are started now, to overlap the optimisation
+    started = workers > 1 and (engine.concurrent or bool(options.workers) or parallel_pays(t_first))
+    if started and not engine.concurrent:
+        prestart(workers)
     # the first gradient, made here to decide on the pool, is the optimisation's first
     timings = {"optimization_gradients": 1, "optimization_seconds": t_first, "optimization_gradient_seconds": t_first,
                "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
@@ -282,10 +290,16 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
         # The wavefunction at the final geometry is the SCF guess of every displacement.
         ev = opt.final_evaluation
         if ev is None:
+            t_final = time.perf_counter()
             ev = engine.evaluate(x)
+            t_final = time.perf_counter() - t_final
             timings["optimization_gradients"] += 1
-        per_gradient = opt.gradient_seconds / max(opt.gradient_calls, 1)
-        use = workers if options.workers or (started and pool_pays(per_gradient)) else 1
+            timings["optimization_seconds"] += t_final
+            timings["optimization_gradient_seconds"] += t_final
+        # over all optimisation gradients so far, the first included (an already converged start
+        # makes no gradient of the optimiser's own)
+        per_gradient = timings["optimization_gradient_seconds"] / timings["optimization_gradients"]
+        use = workers if started and (options.workers or parallel_pays(per_gradient)) else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
                                         progress=lambda d, t: _notify(progress, "hessian", d, t))

@@ -72,9 +72,23 @@ class Engine:
 
     settings: EngineSettings
     count: int = 0
+    #: Whether copies of this engine (:meth:`copy`) may evaluate at the same time in threads of
+    #: one process (the library releases the GIL and keeps no shared state between calculators).
+    concurrent: bool = False
 
     def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:  # pragma: no cover - interface
         raise NotImplementedError
+
+    def copy(self) -> "Engine":  # pragma: no cover - interface
+        """A new engine for the same molecule and settings (no wavefunction yet)."""
+        raise NotImplementedError
+
+    def wavefunction(self):
+        """The last converged wavefunction as an opaque object for :meth:`restart_from`, or None."""
+        return None
+
+    def restart_from(self, wavefunction) -> None:
+        """Use a copy of ``wavefunction`` (from :meth:`wavefunction`) as the next SCF guess."""
 
     def save_guess(self, path: str) -> bool:
         """Write the current wavefunction to ``path`` for other processes; False if unsupported."""
@@ -85,7 +99,13 @@ class Engine:
 
 
 class TBLiteEngine(Engine):
-    """GFN2-xTB through tblite's Python API, restarting every SCF from the last wavefunction."""
+    """GFN2-xTB through tblite's Python API, restarting every SCF from the last wavefunction.
+
+    tblite's calls release the GIL (cffi) and each calculator owns its data, so copies evaluate
+    in parallel threads; checked in tests/test_pipeline.py (threaded Hessian equals the serial one).
+    """
+
+    concurrent = True
 
     def __init__(self, numbers, positions_bohr, charge: int = 0, uhf: int = 0,
                  settings: EngineSettings = EngineSettings()):
@@ -93,6 +113,7 @@ class TBLiteEngine(Engine):
 
         self.settings = settings
         self.numbers = np.asarray(numbers, dtype=int)
+        self._start = (np.array(positions_bohr, dtype=float), int(charge), int(uhf))
         self.count = 0
         try:
             self._calc = Calculator(settings.method, self.numbers, np.asarray(positions_bohr, float),
@@ -123,7 +144,21 @@ class TBLiteEngine(Engine):
             raise CalculationError(f"GFN2-xTB single point failed: {exc}") from None
         self.count += 1
         res = self._result
-        return Evaluation(float(res.get("energy")), np.array(res.get("gradient")), np.array(res.get("dipole")))
+        return Evaluation(float(res.get("energy")), np.array(res.get("gradient")), _dipole(res))
+
+    def copy(self) -> "TBLiteEngine":
+        positions, charge, uhf = self._start
+        return TBLiteEngine(self.numbers, positions, charge, uhf, self.settings)
+
+    def wavefunction(self):
+        from tblite.interface import Result
+
+        return None if self._result is None else Result(self._result)
+
+    def restart_from(self, wavefunction) -> None:
+        from tblite.interface import Result
+
+        self._result = None if wavefunction is None else Result(wavefunction)
 
     def save_guess(self, path: str) -> bool:
         from tblite.interface import Result
@@ -143,6 +178,20 @@ class TBLiteEngine(Engine):
             cached.load(path)
             self._guess_path, self._guess = path, cached
         self._result = Result(self._guess)
+
+
+def _dipole(result) -> np.ndarray:
+    """Molecular dipole (e*Bohr) of a tblite result, read with the C API's
+    ``tblite_get_result_dipole`` (Result.get("dipole") builds the whole post-processing
+    dictionary in Python, ~10x the time); the dictionary when the symbol is missing."""
+    from tblite import library
+
+    getter = getattr(library.lib, "tblite_get_result_dipole", None)
+    if getter is None:  # pragma: no cover - older or newer tblite builds
+        return np.array(result.get("dipole"))
+    out = np.zeros(3)
+    library.error_check(getter)(result._res, library.ffi.cast("double*", out.ctypes.data))
+    return out
 
 
 class XTBEngine(Engine):
@@ -186,9 +235,11 @@ class XTBEngine(Engine):
 
 
 def _kelvin_to_hartree() -> float:
-    from scipy.constants import physical_constants
+    """Boltzmann's constant in Eh/K (ase.units: CODATA; imported instead of scipy.constants,
+    which takes ~0.18 s to import and so half of a Hessian worker's start-up)."""
+    from ase.units import Hartree, kB
 
-    return physical_constants["kelvin-hartree relationship"][0]
+    return kB / Hartree
 
 
 _KELVIN_TO_HARTREE = _kelvin_to_hartree()
@@ -218,11 +269,29 @@ def scratch_file(suffix: str) -> str:
 CALCULATION_THREADS = 1
 
 
-@contextmanager
-def calculation_threads(count: int = CALCULATION_THREADS):
-    """Limit this process's OpenMP and BLAS thread pools to ``count`` while the block runs
-    (threadpoolctl; the previous limits come back afterwards)."""
-    from threadpoolctl import threadpool_limits
+_CONTROLLER = None
 
-    with threadpool_limits(limits=int(count)):
+
+def _thread_controller():
+    """One threadpoolctl controller for the process: building one scans every loaded library
+    (1-7 ms with RDKit and SciPy loaded), so it is made once, after tblite (whose OpenMP runtime
+    must be among the libraries it controls) has been loaded."""
+    global _CONTROLLER
+    if _CONTROLLER is None:
+        from threadpoolctl import ThreadpoolController
+
+        try:
+            import tblite.interface  # noqa: F401  (loads the OpenMP runtime)
+        except ImportError:  # pragma: no cover - tblite is a dependency
+            pass
+        _CONTROLLER = ThreadpoolController()
+    return _CONTROLLER
+
+
+@contextmanager
+def calculation_threads(count: int = CALCULATION_THREADS, user_api: str | None = None):
+    """Limit OpenMP and BLAS thread pools to ``count`` while the block runs (threadpoolctl; the
+    previous limits come back afterwards). OpenMP limits hold for the calling thread only, so
+    every thread that calls the engine enters this block itself (``user_api="openmp"``)."""
+    with _thread_controller().limit(limits=int(count), user_api=user_api):
         yield
