@@ -24,7 +24,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Callable, NamedTuple
 
 import numpy as np
-import scipy.linalg
+from scipy.linalg import lapack
 
 from ..errors import InputError
 from ..rigid_body import rigid_body_basis
@@ -175,6 +175,31 @@ class _CartesianSteps:
             self.x, self.g = x_new, g_new
 
 
+# LAPACK through scipy.linalg.lapack: the scipy.linalg functions add 10-100 us of argument
+# handling per call, as much as the work itself for the optimiser's matrices of 30-200 rows.
+def _cholesky_lower(m: np.ndarray) -> np.ndarray:
+    """Lower Cholesky factor of a symmetric positive definite matrix (LinAlgError if it is not)."""
+    c, info = lapack.dpotrf(m, lower=1)
+    if info != 0:
+        raise np.linalg.LinAlgError("matrix not positive definite")
+    return c
+
+
+def _cho_solve(c: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """x with (c c^T) x = b for a lower Cholesky factor c."""
+    return lapack.dpotrs(c, b, lower=1)[0]
+
+
+def _solve_lower(c: np.ndarray, b: np.ndarray, transposed: bool = False) -> np.ndarray:
+    """x with c x = b (or c^T x = b) for a lower triangular c."""
+    return lapack.dtrtrs(c, b, lower=1, trans=int(transposed))[0]
+
+
+def _lowest_eigenvector(a: np.ndarray) -> np.ndarray:
+    """Eigenvector of the lowest eigenvalue of a symmetric matrix (LAPACK dsyevr, that one only)."""
+    return lapack.dsyevr(a, compute_v=1, range="I", il=1, iu=1)[1][:, 0]
+
+
 def _rigid_vectors(x: np.ndarray) -> np.ndarray:
     """Unit vectors (3N, 6) of the translations and of the rotations about the centroid (a
     rotation that moves no atom, about the axis of a linear molecule, is a zero column)."""
@@ -241,10 +266,10 @@ class _InternalSteps:
             bmat = self.ic.b_matrix(x)
         rigid = _rigid_vectors(x)
         try:
-            chol = scipy.linalg.cholesky(bmat.T @ bmat + rigid @ rigid.T, lower=True, check_finite=False)
+            chol = _cholesky_lower(bmat.T @ bmat + rigid @ rigid.T)
         except np.linalg.LinAlgError:
             return None
-        gq = bmat @ scipy.linalg.cho_solve((chol, True), g, check_finite=False)
+        gq = bmat @ _cho_solve(chol, g)
         return _Frame(self.ic.values(x), bmat, chol, rigid, bmat.T @ gq, gq)
 
     def propose(self, trust: float):
@@ -255,15 +280,13 @@ class _InternalSteps:
         hx = bmat.T @ self.hess @ bmat
         hx = 0.5 * (hx + hx.T)
         rigid = self.frame.rigid
-        tri = scipy.linalg.solve_triangular
-        w = tri(chol, hx + _RIGID_SHIFT * (rigid @ rigid.T), lower=True, check_finite=False)
+        w = _solve_lower(chol, hx + _RIGID_SHIFT * (rigid @ rigid.T))
         aug = np.zeros((n + 1, n + 1))
-        aug[:n, :n] = tri(chol, w.T, lower=True, check_finite=False)
-        aug[:n, n] = aug[n, :n] = tri(chol, gx, lower=True, check_finite=False)
-        _, vecs = scipy.linalg.eigh(aug, subset_by_index=[0, 0], check_finite=False)
-        lowest = vecs[:, 0]
+        aug[:n, :n] = _solve_lower(chol, w.T)
+        aug[:n, n] = aug[n, :n] = _solve_lower(chol, gx)
+        lowest = _lowest_eigenvector(aug)
         y = lowest[:n] / lowest[n] if abs(lowest[n]) > 1e-12 else -aug[:n, n]
-        dx = tri(chol, y, lower=True, trans="T", check_finite=False)
+        dx = _solve_lower(chol, y, transposed=True)
         dq = bmat @ dx
         length = float(np.linalg.norm(dq))
         if length > trust:
@@ -282,7 +305,7 @@ class _InternalSteps:
         x = self.x.ravel().copy()
         first, rest = None, dq
         for _ in range(self.BACK_ITERATIONS):
-            dx = scipy.linalg.cho_solve((chol, True), bmat.T @ rest, check_finite=False)
+            dx = _cho_solve(chol, bmat.T @ rest)
             x = x + dx
             if first is None:
                 first = x.copy()
