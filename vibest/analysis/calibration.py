@@ -174,29 +174,43 @@ def fit_regions(cases: list, fallback: float) -> tuple[float, ...]:
 
 def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
                        prior_cm1: float = 200.0) -> dict[str, float]:
-    """Force-constant factors per coordinate type minimising the squared error of assigned pairs.
+    """Force-constant factors per coordinate type and per type family, minimising the squared
+    error of assigned pairs (partial pooling, Tikhonov regularisation).
 
-    A weak prior pulls each factor towards uniform_factor^2: a residual prior_cm1 * ln(s_k / s_0)
-    per type, so a type seen in few modes cannot drift on noise (Tikhonov regularisation).
+    Each family's factor is pulled towards uniform_factor^2 (a residual prior_cm1 * ln(s_F / s_0))
+    and each type's factor towards its family's (prior_cm1 * ln(s_k / s_F)); a type without a
+    family is pulled towards uniform_factor^2. So a type seen in few modes cannot drift on noise,
+    and a type never seen in training takes its family's factor (:meth:`ScaleModel.type_factor`).
+    The geminal X-H coupling factor is pulled towards 1.
     """
     from scipy.optimize import least_squares
 
-    from .scaling import GEMINAL_COUPLING, PER_COORDINATE, ScaleModel, geminal_xh_pairs
+    from .scaling import GEMINAL_COUPLING, PER_COORDINATE, ScaleModel, geminal_xh_pairs, type_family
 
     types = sorted({t for c in train for t in c.types})
     if any(geminal_xh_pairs(c.record.numbers, c.space.primitives) for c in train):
         types.append(GEMINAL_COUPLING)
-    s0 = uniform_factor ** 2
+    families = sorted({type_family(t) for t in types} - {None})
+    names = families + types
+    parent = np.array([-1] * len(families) + [families.index(f) if (f := type_family(t)) else -1 for t in types])
+    base = np.array([0.0 if n == GEMINAL_COUPLING else np.log(uniform_factor ** 2) for n in names])
     exp = [c.experimental_cm1 for c in train]
 
-    def model_of(logs):
+    def log_factors(params):
+        """Absolute log factors: families first, then each type as its family's plus its own offset."""
+        out = base + params
+        has = parent >= 0
+        out[has] = out[parent[has]] + params[has]
+        return out
+
+    def model_of(params):
         return ScaleModel(uniform_factor, PER_COORDINATE, "fit",
-                          {t: float((1.0 if t == GEMINAL_COUPLING else s0) * np.exp(v)) for t, v in zip(types, logs)})
+                          {n: float(np.exp(v)) for n, v in zip(names, log_factors(params))})
 
-    def residuals(logs):
-        m = model_of(logs)
+    def residuals(params):
+        m = model_of(params)
         r = [predicted_wavenumbers(c, m) - e for c, e in zip(train, exp)]
-        return np.concatenate(r + [prior_cm1 * np.asarray(logs)])
+        return np.concatenate(r + [prior_cm1 * np.asarray(params)])
 
-    sol = least_squares(residuals, np.zeros(len(types)), method="trf", x_scale=0.05, max_nfev=200)
+    sol = least_squares(residuals, np.zeros(len(names)), method="trf", x_scale=0.05, max_nfev=200)
     return dict(model_of(sol.x).force_constant_factors)

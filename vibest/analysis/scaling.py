@@ -11,7 +11,11 @@ fundamentals of ``vibest/data/fundamentals.csv`` and shipped in ``vibest/data/sc
   (P. Pulay, G. Fogarasi, G. Pongor, J. E. Boggs, A. Vargha, J. Am. Chem. Soc. 105, 7037 (1983)):
   the Hessian in internal coordinates is scaled as F'_ij = sqrt(s_i s_j) F_ij, with one factor
   per coordinate type (C-H stretch, C=O stretch, bend with H, ...), then carried back to
-  Cartesians and diagonalised again. Types absent from the fit use the square of the uniform factor.
+  Cartesians and diagonalised again. Types are grouped in families (C-H stretches; N-H, O-H, F-H
+  stretches; bonds to halogens; triple, cumulated, double and single bonds; bends with H;
+  torsions): the fit pulls each type's factor towards its family's (partial pooling), and a type
+  absent from the fit (N=N of N2O, H-F) uses its family's factor, or else the square of the
+  uniform factor.
 
 The model with the lower error on held-out molecules is the default (see the JSON file).
 """
@@ -77,11 +81,17 @@ class ScaleModel:
             return w * np.asarray(self.region_factors)[region_index(w)]
         return w * self.factor
 
+    def type_factor(self, coordinate_type: str) -> float:
+        """Force-constant factor of one coordinate type: its own fitted factor, else its
+        family's (:func:`type_family`), else the square of the uniform factor."""
+        got = self.force_constant_factors.get(coordinate_type)
+        if got is None:
+            got = self.force_constant_factors.get(type_family(coordinate_type), self.factor ** 2)
+        return float(got)
+
     def coordinate_factors(self, numbers, bonds, space: InternalSpace) -> np.ndarray:
         """Force-constant factor of every primitive of ``space`` (dimensionless)."""
-        types = coordinate_types(numbers, bonds, space.primitives)
-        fallback = self.factor ** 2
-        return np.array([self.force_constant_factors.get(t, fallback) for t in types])
+        return np.array([self.type_factor(t) for t in coordinate_types(numbers, bonds, space.primitives)])
 
     def scaled_hessian(self, numbers, bonds, hessian_hartree_bohr2, space: InternalSpace) -> np.ndarray:
         """Cartesian Hessian with the internal force constants scaled (Eh/Bohr^2).
@@ -215,6 +225,45 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
         else:  # pragma: no cover - all kinds are listed above
             out.append(p.kind)
     return out
+
+
+#: Families of coordinate types. A type's factor is pulled towards its family's in the fit
+#: (partial pooling), and a type without data of its own (N=N of N2O, the H-F stretch) uses the
+#: family's factor instead of the uniform one.
+FAMILY_C_H = "family: C-H stretch"
+FAMILY_POLAR_H = "family: N-H, O-H, F-H stretch"
+FAMILY_HALOGEN = "family: stretch of a bond to a halogen"
+FAMILY_TRIPLE = "family: triple-bond stretch"
+FAMILY_CUMULATED = "family: cumulated double-bond stretch"
+FAMILY_DOUBLE = "family: double and aromatic bond stretch"
+FAMILY_SINGLE = "family: single heavy-atom bond stretch"
+FAMILY_BEND_H = "family: bend with H"
+FAMILY_TORSION = "family: torsion"
+
+
+def type_family(coordinate_type: str) -> str | None:
+    """The family of a coordinate type of :func:`coordinate_types` (None for types of their own:
+    heavy-atom bends, linear bends, out-of-plane, heavy-atom-H stretches, the geminal coupling)."""
+    t = coordinate_type
+    if t.startswith("C-H stretch"):
+        return FAMILY_C_H
+    if t in ("N-H stretch", "O-H stretch", "F-H stretch"):
+        return FAMILY_POLAR_H
+    if t in ("C-halogen stretch", "X-halogen stretch"):
+        return FAMILY_HALOGEN
+    if not t.endswith("stretch") and not t.endswith("(cumulated)"):
+        if t.startswith("H-") and t.endswith("bend"):
+            return FAMILY_BEND_H
+        return FAMILY_TORSION if t.startswith("torsion") else None
+    if t.endswith("(cumulated)"):
+        return FAMILY_CUMULATED
+    if "-H " in t or t.startswith("heavy-atom"):
+        return None
+    if "#" in t:
+        return FAMILY_TRIPLE
+    if "=" in t or ":" in t:
+        return FAMILY_DOUBLE
+    return FAMILY_SINGLE
 
 
 def _shipped() -> dict:
