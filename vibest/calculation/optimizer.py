@@ -249,21 +249,20 @@ class _InternalSteps:
     def __init__(self, internal: redundant_internals.InternalSet, numbers, x: np.ndarray, g: np.ndarray):
         self.ic = internal
         self.x, self.g = x, g
-        bmat = internal.b_matrix(x)
-        s2 = np.linalg.eigvalsh(bmat.T @ bmat)
-        #: Whether the set spans all internal motions (3N-6 non-zero singular values of B).
-        self.complete = int((s2 > 1e-12 * s2[-1]).sum()) >= x.size - 6
-        self.frame = self._frame(x, g, bmat) if self.complete else None
+        self.frame = self._frame(x, g)
+        # Whether the set spans all internal motions: M = B^T B + R R^T positive definite, with no
+        # Cholesky pivot below 1e-6 of the largest (an eigenvalue of M below ~1e-12 of its largest)
+        pivots = np.diag(self.frame.chol) if self.frame is not None else np.zeros(1)
+        self.complete = bool(pivots.min() > 1e-6 * pivots.max())
         # Lindh's model restricted to the set's own primitives: diagonal and cheap; on the molecules
         # of benchmarks/speed.py it needed as few or fewer gradients than the full Cartesian model
         # transformed to internals
         self.hess = np.diag(lindh_diagonal(numbers, x, internal.bonds, internal.bends, internal.torsions))
 
-    def _frame(self, x: np.ndarray, g: np.ndarray, bmat: np.ndarray | None = None) -> _Frame | None:
+    def _frame(self, x: np.ndarray, g: np.ndarray) -> _Frame | None:
         """The :class:`_Frame` at ``x``; None when M is not positive definite (the set no longer
         spans every internal motion)."""
-        if bmat is None:
-            bmat = self.ic.b_matrix(x)
+        bmat = self.ic.b_matrix(x)
         rigid = _rigid_vectors(x)
         try:
             chol = _cholesky_lower(bmat.T @ bmat + rigid @ rigid.T)
