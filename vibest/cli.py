@@ -99,7 +99,7 @@ def calculation_options(f):
     """Options that change the computed Hessian."""
     for opt in reversed([
         click.option("--seed", type=int, default=0xB1B, show_default=True, help="3D embedding seed."),
-        click.option("--workers", type=click.IntRange(min=1), default=None, help="Processes for the Hessian [all cores]."),
+        click.option("--workers", type=click.IntRange(min=1), default=None, help="Parallel workers for the Hessian [all cores]."),
         click.option("--largest-fragment", is_flag=True, help="For salts/mixtures, keep only the largest fragment."),
         click.option("--backend", type=click.Choice(["tblite", "xtb"]), default="tblite", show_default=True),
         click.option("--solvent", default=None, help="Implicit solvent (e.g. water; list: vibest solvents); default gas phase."),
