@@ -87,13 +87,15 @@ def test_unknown_optimiser_coordinates_are_refused():
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("executor", ["threads", "processes"])
-def test_parallel_hessian_equals_serial(executor):
-    """tblite engines compute displacements in threads of this process; engines that cannot
-    (xtb-python) in worker processes. Both against the serial path (same code, one worker)."""
+@pytest.mark.parametrize("executor,solvent_model", [("threads", None), ("processes", None), ("threads", "cpcm")])
+def test_parallel_hessian_equals_serial(executor, solvent_model):
+    """tblite engines compute displacements in threads of this process (also with the ddX
+    solvation library behind CPCM); engines that cannot (xtb-python) in worker processes.
+    Both against the serial path (same code, one worker)."""
     mol = build_molecule("CCO")
     x = mol.positions_angstrom / Bohr
-    eng = make_engine(mol.numbers, x)
+    settings = EngineSettings(solvent="water", solvent_model=solvent_model) if solvent_model else EngineSettings()
+    eng = make_engine(mol.numbers, x, settings=settings)
     assert eng.concurrent
     eng.evaluate(x)
     serial = finite_difference_hessian(eng, mol.numbers, x, workers=1)
