@@ -5,6 +5,25 @@ from __future__ import annotations
 import numpy as np
 
 
+def rigid_body_vectors(positions, masses=None) -> np.ndarray:
+    """Infinitesimal translations and rotations (3N, 6) as they are, neither normalised nor
+    orthogonalised: with ``masses`` in mass-weighted coordinates (sqrt(m_i) e_a and
+    sqrt(m_i) (e_a x r_i) about the centre of mass), without in plain Cartesians about the
+    centroid. The rotation about the axis of a linear molecule is a zero column."""
+    x = np.asarray(positions, dtype=float)
+    n = len(x)
+    m = np.ones(n) if masses is None else np.asarray(masses, dtype=float)
+    sq = np.sqrt(m)
+    r = x - (m[:, None] * x).sum(0) / m.sum()
+    vecs = np.zeros((n, 3, 6))
+    for a in range(3):
+        vecs[:, a, a] = sq
+    vecs[:, 1, 3], vecs[:, 2, 3] = -sq * r[:, 2], sq * r[:, 1]  # e_x cross r
+    vecs[:, 0, 4], vecs[:, 2, 4] = sq * r[:, 2], -sq * r[:, 0]  # e_y cross r
+    vecs[:, 0, 5], vecs[:, 1, 5] = -sq * r[:, 1], sq * r[:, 0]  # e_z cross r
+    return vecs.reshape(3 * n, 6)
+
+
 def rigid_body_basis(positions, masses=None, tol: float = 1e-6) -> np.ndarray:
     """Orthonormal basis (3N, k) of infinitesimal translations and rotations.
 
@@ -13,23 +32,7 @@ def rigid_body_basis(positions, masses=None, tol: float = 1e-6) -> np.ndarray:
     mass); without, in plain Cartesians about the centroid. k is 6, or 5 for a linear molecule
     (a rotation whose vector vanishes is dropped by the rank test with ``tol``).
     """
-    x = np.asarray(positions, dtype=float)
-    n = len(x)
-    m = np.ones(n) if masses is None else np.asarray(masses, dtype=float)
-    sq = np.sqrt(m)
-    centre = (m[:, None] * x).sum(0) / m.sum()
-    r = x - centre
-    vecs = []
-    for a in range(3):
-        t = np.zeros((n, 3))
-        t[:, a] = sq
-        vecs.append(t.ravel())
-    for a in range(3):
-        e = np.zeros(3)
-        e[a] = 1.0
-        vecs.append((sq[:, None] * np.cross(e, r)).ravel())
-    mat = np.array(vecs).T
-    u, s, _ = np.linalg.svd(mat, full_matrices=False)
+    u, s, _ = np.linalg.svd(rigid_body_vectors(positions, masses), full_matrices=False)
     keep = s > tol * max(s[0], 1.0)
     return u[:, keep]
 

@@ -27,7 +27,7 @@ import numpy as np
 from scipy.linalg import lapack
 
 from ..errors import InputError
-from ..rigid_body import rigid_body_basis
+from ..rigid_body import rigid_body_basis, rigid_body_vectors
 from . import redundant_internals
 from .engine import Engine, Evaluation
 from .model_hessian import lindh_diagonal, lindh_hessian
@@ -200,24 +200,9 @@ def _lowest_eigenvector(a: np.ndarray) -> np.ndarray:
     return lapack.dsyevr(a, compute_v=1, range="I", il=1, iu=1)[1][:, 0]
 
 
-def _rigid_vectors(x: np.ndarray) -> np.ndarray:
-    """Unit vectors (3N, 6) of the translations and of the rotations about the centroid (a
-    rotation that moves no atom, about the axis of a linear molecule, is a zero column)."""
-    n = len(x)
-    r = x - x.mean(0)
-    rig = np.zeros((n, 3, 6))
-    for a in range(3):
-        rig[:, a, a] = 1.0
-    rig[:, 1, 3], rig[:, 2, 3] = -r[:, 2], r[:, 1]  # e_x cross r
-    rig[:, 0, 4], rig[:, 2, 4] = r[:, 2], -r[:, 0]  # e_y cross r
-    rig[:, 0, 5], rig[:, 1, 5] = -r[:, 1], r[:, 0]  # e_z cross r
-    rig = rig.reshape(3 * n, 6)
-    return rig / np.maximum(np.sqrt((rig * rig).sum(0)), 1e-12)
-
-
 class _Frame(NamedTuple):
     """What a step in internals needs of one geometry: values q (Bohr, rad), Wilson B, the lower
-    Cholesky factor of M = B^T B + R R^T, the rigid-body unit vectors R (3N, 6), the projected
+    Cholesky factor of M = B^T B + R R^T, the rigid-body vectors R (3N, 6), the projected
     Cartesian gradient B^T g_q (Eh/Bohr) and the internal gradient g_q."""
 
     q: np.ndarray
@@ -263,7 +248,8 @@ class _InternalSteps:
         """The :class:`_Frame` at ``x``; None when M is not positive definite (the set no longer
         spans every internal motion)."""
         bmat = self.ic.b_matrix(x)
-        rigid = _rigid_vectors(x)
+        # R need not be normalised: along R the RFO problem reads c R R^T v = lambda R R^T v
+        rigid = rigid_body_vectors(x)
         try:
             chol = _cholesky_lower(bmat.T @ bmat + rigid @ rigid.T)
         except np.linalg.LinAlgError:
