@@ -66,9 +66,11 @@ class ScaleModel:
         return self.name == PER_COORDINATE
 
     def describe(self) -> str:
-        """Short text for reports, e.g. "uniform factor 0.9939" or "per-coordinate (12 types)"."""
+        """Short text for reports, e.g. "uniform factor 0.9939" or "per-coordinate scaled force field (37 types, 9 families)"."""
         if self.per_coordinate:
-            return f"per-coordinate scaled force field ({len(self.force_constant_factors)} types)"
+            families = sum(k.startswith(FAMILY_PREFIX) for k in self.force_constant_factors)
+            types = len(self.force_constant_factors) - families
+            return f"per-coordinate scaled force field ({types} types" + (f", {families} families)" if families else ")")
         if self.name == REGION:
             return "region factors " + ", ".join(f"{f:.4f}" for f in self.region_factors)
         return f"{self.name} factor {self.factor:.4f}"
@@ -230,6 +232,7 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
 #: Families of coordinate types. A type's factor is pulled towards its family's in the fit
 #: (partial pooling), and a type without data of its own (N=N of N2O, the H-F stretch) uses the
 #: family's factor instead of the uniform one.
+FAMILY_PREFIX = "family: "
 FAMILY_C_H = "family: C-H stretch"
 FAMILY_POLAR_H = "family: N-H, O-H, F-H stretch"
 FAMILY_HALOGEN = "family: stretch of a bond to a halogen"
