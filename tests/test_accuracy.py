@@ -193,7 +193,8 @@ def test_every_coordinate_type_of_the_reference_set_has_the_expected_family():
 
     expected = {"C-H stretch (sp3)": sc.FAMILY_C_H, "C-H stretch (aldehyde)": sc.FAMILY_C_H,
                 "O-H stretch": sc.FAMILY_POLAR_H, "N-H stretch": sc.FAMILY_POLAR_H,
-                "C-halogen stretch": sc.FAMILY_HALOGEN, "X-halogen stretch": sc.FAMILY_HALOGEN,
+                "C-Cl stretch (2+ halogens on C)": sc.FAMILY_HALOGEN, "C-Br stretch (one halogen on C)": sc.FAMILY_HALOGEN,
+                "C-I stretch (one halogen on C)": sc.FAMILY_HALOGEN, "X-halogen stretch": sc.FAMILY_HALOGEN,
                 "C#N stretch": sc.FAMILY_TRIPLE, "C#C stretch": sc.FAMILY_TRIPLE,
                 "C=O stretch (cumulated)": sc.FAMILY_CUMULATED, "N=N stretch (cumulated)": sc.FAMILY_CUMULATED,
                 "C=C stretch": sc.FAMILY_DOUBLE, "C:C stretch": sc.FAMILY_DOUBLE, "C=O stretch": sc.FAMILY_DOUBLE,
@@ -205,6 +206,21 @@ def test_every_coordinate_type_of_the_reference_set_has_the_expected_family():
     assert set(expected) <= types
     for t, family in expected.items():
         assert sc.type_family(t) == family, t
+
+
+@pytest.mark.parametrize("smiles,expected", [
+    ("ClC(Cl)(Cl)Cl", {"C-Cl stretch (2+ halogens on C)"}),
+    ("CCl", {"C-Cl stretch (one halogen on C)"}),
+    ("FC(F)Br", {"C-F stretch (2+ halogens on C)", "C-Br stretch (2+ halogens on C)"}),
+])
+def test_carbon_halogen_stretches_are_typed_by_halogen_and_by_halogens_on_the_carbon(smiles, expected):
+    from vibest.analysis.internal_space import InternalSpace
+    from vibest.analysis.scaling import coordinate_types
+
+    rec = record_of(smiles)
+    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
+    types = {t for t in coordinate_types(rec.numbers, rec.bonds, space.primitives) if t.startswith("C-") and "H" not in t}
+    assert types == expected
 
 
 @pytest.mark.slow

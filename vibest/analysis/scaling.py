@@ -180,9 +180,20 @@ def _carbon_kind(c: int, numbers, orders) -> str:
     return "sp3"
 
 
+def _c_halogen_type(i: int, j: int, numbers, orders) -> str:
+    """"C-Cl stretch (one halogen on C)", "C-F stretch (2+ halogens on C)", ...: by halogen, and
+    by whether the carbon carries more halogens (the stretches of CX2, CX3 and CX4 groups couple,
+    and GFN2-xTB misplaces them differently from those of a lone C-X bond)."""
+    c, x = (i, j) if int(numbers[i]) == 6 else (j, i)
+    halogens = sum(int(numbers[k if l == c else l]) in _HALOGENS for k, l in orders if c in (k, l))
+    where = "one halogen on C" if halogens <= 1 else "2+ halogens on C"
+    return f"C-{chemical_symbols[int(numbers[x])]} stretch ({where})"
+
+
 def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Primitive]) -> list[str]:
-    """Scaling type of each primitive, e.g. "C-H stretch", "C=O stretch", "C#N stretch",
-    "C=O stretch (cumulated)", "heavy-atom-H stretch" (S-H, Cl-H, ...), "bend (H)", "bend", "linear bend", "torsion", "out-of-plane"."""
+    """Scaling type of each primitive, e.g. "C-H stretch (sp3)", "C=O stretch", "C#N stretch",
+    "C=O stretch (cumulated)", "C-Cl stretch (2+ halogens on C)", "heavy-atom-H stretch" (S-H,
+    Cl-H, ...), "H-C-X bend", "bend", "linear bend", "torsion (H)", "out-of-plane"."""
     orders = {(min(int(i), int(j)), max(int(i), int(j))): float(o) for i, j, o in bonds}
     cumulated = _cumulated_atoms(bonds)
     out = []
@@ -203,7 +214,7 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
             order = orders.get((min(a), max(a)), 1.0)
             sym = _SYMBOL.get(order, "-")
             if zi in _HALOGENS or zj in _HALOGENS:
-                out.append("C-halogen stretch" if 6 in (zi, zj) else "X-halogen stretch")
+                out.append(_c_halogen_type(a[0], a[1], numbers, orders) if 6 in (zi, zj) else "X-halogen stretch")
                 continue
             first, second = (zi, zj) if zi == 6 else ((zj, zi) if zj == 6 else (zj, zi))
             name = f"{chemical_symbols[first]}{sym}{chemical_symbols[second]} stretch"
@@ -252,7 +263,7 @@ def type_family(coordinate_type: str) -> str | None:
         return FAMILY_C_H
     if t in ("N-H stretch", "O-H stretch", "F-H stretch"):
         return FAMILY_POLAR_H
-    if t in ("C-halogen stretch", "X-halogen stretch"):
+    if t == "X-halogen stretch" or t.split(" ")[0] in ("C-F", "C-Cl", "C-Br", "C-I"):
         return FAMILY_HALOGEN
     if not t.endswith("stretch") and not t.endswith("(cumulated)"):
         if t.startswith("H-") and t.endswith("bend"):
