@@ -122,12 +122,10 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _in_processes(engine: Engine, numbers, x0, charge, uhf, tasks, step: float, workers: int,
-                  progress: Callable[[int, int], None] | None) -> list:
-    """Displacements in the persistent worker processes, the wavefunction passed through a file
-    (this process computes displacements itself while workers are still starting)."""
-    results = []
-    total = len(tasks)
+def _in_processes(engine: Engine, numbers, x0, charge, uhf, tasks, step: float, workers: int):
+    """Yield (k, sign, gradient, dipole) for every task, computed in the persistent worker
+    processes, the wavefunction passed through a file (this process computes displacements itself
+    while workers are still starting); the engine has the equilibrium wavefunction again at the end."""
     guess = scratch_file(".npz")
     try:
         guess_path = guess if engine.save_guess(guess) else None
@@ -135,16 +133,12 @@ def _in_processes(engine: Engine, numbers, x0, charge, uhf, tasks, step: float, 
         def local(task):
             return evaluate_block(engine, x0, guess_path, [task], step)[0]
 
-        for item in run_in_workers(numbers, x0, charge, uhf, engine.settings, guess_path, step, tasks, workers, local):
-            results.append(item)
-            if progress and (len(results) % max(1, total // 50) == 0 or len(results) == total):
-                progress(len(results), total)
+        yield from run_in_workers(numbers, x0, charge, uhf, engine.settings, guess_path, step, tasks, workers, local)
         if guess_path is not None:
             engine.load_guess(guess_path)
     finally:
         if os.path.exists(guess):
             os.remove(guess)
-    return results
 
 
 def finite_difference_hessian(engine: Engine, numbers, positions_bohr, charge: int = 0, uhf: int = 0,
@@ -164,9 +158,8 @@ def finite_difference_hessian(engine: Engine, numbers, positions_bohr, charge: i
     tasks = _displacements(n)
     total = len(tasks)
     workers = max(1, min(int(workers), total))
-    results = []
-    every = max(1, total // 50)
-    if workers == 1 or engine.concurrent:
+    in_memory = workers == 1 or engine.concurrent
+    if in_memory:
         guess = engine.wavefunction()
         if workers == 1:
             def serial():
@@ -177,14 +170,17 @@ def finite_difference_hessian(engine: Engine, numbers, positions_bohr, charge: i
             source = serial()
         else:
             source = run_in_threads(engine, x0, tasks, step_bohr, workers)
-        with calculation_threads():
-            for item in source:
-                results.append(item)
-                if progress and (len(results) % every == 0 or len(results) == total):
-                    progress(len(results), total)
-        engine.restart_from(guess)
     else:
-        results = _in_processes(engine, numbers, x0, charge, uhf, tasks, step_bohr, workers, progress)
+        source = _in_processes(engine, numbers, x0, charge, uhf, tasks, step_bohr, workers)
+    results = []
+    every = max(1, total // 50)
+    with calculation_threads():
+        for item in source:
+            results.append(item)
+            if progress and (len(results) % every == 0 or len(results) == total):
+                progress(len(results), total)
+    if in_memory:
+        engine.restart_from(guess)
     hess = np.zeros((3 * n, 3 * n))
     dmu = np.zeros((3 * n, 3))
     for k, sign, grad, dip in results:
