@@ -161,12 +161,10 @@ class TBLiteEngine(Engine):
         self._result = None if wavefunction is None else Result(wavefunction)
 
     def save_guess(self, path: str) -> bool:
-        from tblite.interface import Result
-
         if self._result is None:
             return False
         self._result.save(path)
-        self._guess_path, self._guess = path, Result(self._result)
+        self._guess_path, self._guess = path, self.wavefunction()
         return True
 
     def load_guess(self, path: str) -> None:
@@ -177,7 +175,7 @@ class TBLiteEngine(Engine):
             cached = Result()
             cached.load(path)
             self._guess_path, self._guess = path, cached
-        self._result = Result(self._guess)
+        self.restart_from(self._guess)
 
 
 def _dipole(result) -> np.ndarray:
