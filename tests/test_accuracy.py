@@ -85,6 +85,86 @@ def test_point_group_and_mode_symmetry(smiles, total, expected):
     assert dict(got) == expected
 
 
+def test_species_refined_by_principal_rotation_and_horizontal_plane():
+    """Benzene, D6h (character table: common practice, no source). Key (degeneracy, totally
+    symmetric, parity, character under C6, character under sigma_h):
+    a1g 2, a2g 1, b2g 2, a2u 1, b1u + b2u 4 non-degenerate modes; e1g 1, e2g 4, e1u 3, e2u 2 pairs."""
+    from vibest.analysis.symmetry import principal_and_horizontal
+
+    rec = record_of("c1ccccc1")
+    ops = symmetry_operations(rec.numbers, rec.positions_angstrom)
+    principal, horizontal = principal_and_horizontal(ops)
+    assert principal is not None and horizontal is not None
+    modes = harmonic_analysis(rec.numbers, rec.positions_angstrom, rec.hessian_hartree_bohr2)
+    got = collections.Counter(s.species_key(True, True) for s in mode_symmetries(ops, modes.modes_mass_weighted))
+    assert dict(got) == {(1, True, "g", 1, 1): 2, (1, False, "g", 1, 1): 1, (1, False, "g", -1, -1): 2,
+                         (1, False, "u", 1, -1): 1, (1, False, "u", -1, 1): 4,
+                         (2, False, "g", 0, -1): 2, (2, False, "g", 0, 1): 8,
+                         (2, False, "u", 0, 1): 6, (2, False, "u", 0, -1): 4}
+
+
+@pytest.mark.parametrize("smiles,principal,horizontal", [
+    ("C=C", False, False),  # D2h: three C2 axes, none principal
+    ("C=C=C", True, False),  # D2d: the S4 axis is principal, no horizontal plane
+    ("CO", False, True),  # Cs: the one mirror is the horizontal plane
+    ("C1CC1", True, True),  # D3h
+])
+def test_principal_rotation_and_horizontal_plane(smiles, principal, horizontal):
+    """Which groups have a unique principal rotation and a horizontal plane (common practice, no source)."""
+    from vibest.analysis.symmetry import principal_and_horizontal
+
+    rec = record_of(smiles)
+    p, h = principal_and_horizontal(symmetry_operations(rec.numbers, rec.positions_angstrom))
+    assert (p is not None, h is not None) == (principal, horizontal)
+
+
+@pytest.mark.slow
+def test_assigned_modes_carry_the_letter_and_prime_of_their_rows():
+    """Over the reference set: where a molecule's rows are paired by refined species, each
+    non-degenerate row labelled A (or Sigma) goes to a mode symmetric under the principal
+    rotation, each B row to an antisymmetric one, and each primed row to a mode of the same
+    character under the horizontal plane (Mulliken's labelling rules, J. Chem. Phys. 23, 1997
+    (1955); labels as tabulated by Shimanouchi)."""
+    from vibest.analysis.symmetry import label_symmetry, principal_and_horizontal
+
+    checked = 0
+    for case in _cases():
+        rec, ref = case.record, case.reference
+        ops = symmetry_operations(rec.numbers, rec.positions_angstrom)
+        if not ops or case.assignment.method != "symmetry + character":
+            continue
+        principal, horizontal = principal_and_horizontal(ops)
+        centro = any(op.is_inversion for op in ops)
+        labels = [label_symmetry(s, d, centro) for s, d in zip(ref.symmetries, ref.degeneracies)]
+        use_axial = principal is not None and all(t.axial for t in labels if t.degeneracy == 1)
+        use_plane = horizontal is not None and all(t.horizontal for t in labels)
+        syms = mode_symmetries(ops, case.modes.modes_mass_weighted)
+        for row, mode in zip(case.assignment.rows, case.assignment.modes):
+            if use_axial and labels[row].degeneracy == 1:
+                assert syms[mode].axial == labels[row].axial, (ref.name, ref.symmetries[row])
+                checked += 1
+            if use_plane:
+                assert syms[mode].horizontal == labels[row].horizontal, (ref.name, ref.symmetries[row])
+                checked += 1
+    assert checked > 300
+
+
+@pytest.mark.parametrize("smiles,expected", [
+    ("CC", {"C-H stretch (sp3)"}),
+    ("COC", {"C-H stretch (sp3, next to N or O)"}),
+    ("CCl", {"C-H stretch (halogenated, one halogen on C)"}),
+    ("ClC(Cl)Cl", {"C-H stretch (halogenated, 2+ halogens on C)"}),
+    ("CC=O", {"C-H stretch (sp3)", "C-H stretch (aldehyde)"}),
+])
+def test_carbon_hydrogen_stretches_are_typed_by_their_carbon(smiles, expected):
+    from vibest.analysis.internal_space import InternalSpace
+    from vibest.analysis.scaling import coordinate_types
+
+    rec = record_of(smiles)
+    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
+    assert {t for t in coordinate_types(rec.numbers, rec.bonds, space.primitives) if t.startswith("C-H")} == expected
+
+
 def test_water_bands_pair_by_symmetry():
     """Water (Shimanouchi): a1 3657 sym str, a1 1595 bend, b1 3756 anti str. The b1 row must go to
     the computed mode that is not totally symmetric, whatever the wavenumbers say."""

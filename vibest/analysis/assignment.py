@@ -8,7 +8,9 @@ Method:
 1. Symmetry. When the computed geometry has point-group operations
    (:mod:`vibest.analysis.symmetry`), each computed mode and each experimental row gets a
    convention-free class: degeneracy, totally symmetric or not, and g/u parity for molecules with
-   a centre of symmetry. A row may only pair with a mode of the same class. If the computed and
+   a centre of symmetry, refined where the group allows it by the A/B letter (symmetric or not
+   under the principal rotation) and the prime (under the horizontal plane) of Mulliken's labels.
+   A row may only pair with a mode of the same class. If the computed and
    the tabulated classes cannot match (the computed minimum has another symmetry than the one of
    the table, e.g. a methyl rotamer), symmetry is not used for that molecule and the result says so.
 2. Character. The table's mode description ("CH3 d-str", "C=O str", "CH2 rock", "Ring deform",
@@ -24,6 +26,7 @@ Method:
 
 from __future__ import annotations
 
+import collections
 import re
 from dataclasses import dataclass
 
@@ -31,7 +34,7 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from ..internal_coordinates import BEND, LINEAR_BEND, OUT_OF_PLANE, STRETCH, TORSION
-from .symmetry import label_symmetry, mode_symmetries, symmetry_operations
+from .symmetry import ModeSymmetry, label_symmetry, mode_symmetries, principal_and_horizontal, symmetry_operations
 
 XH_STRETCH, STRETCH_F, H_BEND, SKELETAL_BEND, TORSION_F = "X-H stretch", "stretch", "H bend", "skeletal bend", "torsion"
 COMPUTED_FAMILIES = (XH_STRETCH, STRETCH_F, H_BEND, SKELETAL_BEND, TORSION_F)
@@ -119,6 +122,29 @@ class Assignment:
     character: tuple[float, ...]
 
 
+def symmetry_allowed(ops, computed: list[ModeSymmetry], tabulated: list[ModeSymmetry]) -> np.ndarray | None:
+    """(rows, modes) mask of the pairs whose symmetry classes agree, or None when the computed
+    classes cannot hold the table's rows.
+
+    The finest convention-free class that both sides support is used: the coarse class
+    (degeneracy, totally symmetric, g/u) refined by the A/B letter when the group has a principal
+    rotation and every non-degenerate row's label has a letter A, B or Sigma, and by the prime
+    when the group has a horizontal plane and every label is primed. If the refined classes
+    cannot hold the rows (e.g. a table that labels by another principal axis), the coarse
+    classes are tried."""
+    principal, horizontal = principal_and_horizontal(ops)
+    use_axial = principal is not None and all(t.axial != 0 for t in tabulated if t.degeneracy == 1)
+    use_horizontal = horizontal is not None and all(t.horizontal != 0 for t in tabulated)
+    tries = [(use_axial, use_horizontal), (False, False)] if (use_axial or use_horizontal) else [(False, False)]
+    for axial, plane in tries:
+        have = collections.Counter(c.species_key(axial, plane) for c in computed)
+        need = collections.Counter(t.species_key(axial, plane) for t in tabulated)
+        if all(have[k] >= n for k, n in need.items()):
+            return np.array([[t.species_key(axial, plane) == c.species_key(axial, plane) for c in computed]
+                             for t in tabulated])
+    return None
+
+
 def assign_modes(numbers, positions_angstrom, modes, composition, experimental_cm1, descriptions,
                  symmetry_labels, degeneracies, use_symmetry: bool = True) -> Assignment:
     """Assign computed ``modes`` (:class:`HarmonicModes`) to experimental rows (expanded by degeneracy)."""
@@ -135,16 +161,10 @@ def assign_modes(numbers, positions_angstrom, modes, composition, experimental_c
         ops = symmetry_operations(numbers, positions_angstrom)
         if ops:
             centro = any(op.is_inversion for op in ops)
-            computed = [s.key for s in mode_symmetries(ops, modes.modes_mass_weighted)]
-            tabulated = [label_symmetry(lab, d, centro).key for lab, d in zip(symmetry_labels, degeneracies)]
-            need: dict = {}
-            for key in tabulated:
-                need[key] = need.get(key, 0) + 1
-            have: dict = {}
-            for key in computed:
-                have[key] = have.get(key, 0) + 1
-            if all(have.get(k, 0) >= n for k, n in need.items()):
-                allowed = np.array([[t == c for c in computed] for t in tabulated])
+            computed = mode_symmetries(ops, modes.modes_mass_weighted)
+            tabulated = [label_symmetry(lab, d, centro) for lab, d in zip(symmetry_labels, degeneracies)]
+            allowed = symmetry_allowed(ops, computed, tabulated)
+            if allowed is not None:
                 cost = np.where(allowed, cost, FORBIDDEN)
                 method = "symmetry + character"
             else:

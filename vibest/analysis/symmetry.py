@@ -2,9 +2,16 @@
 
 Used to assign computed modes to experimental fundamentals by symmetry. Only properties that do
 not depend on axis conventions are used, so that they compare with any table's Mulliken labels:
-whether a mode is totally symmetric, its degeneracy (1, 2 or 3), and its parity (g/u) under
-inversion when the molecule has a centre of symmetry. (Which of b1/b2 a mode is depends on how
-the table chose its axes, so it is not used.)
+whether a mode is totally symmetric, its degeneracy (1, 2 or 3), its parity (g/u) under
+inversion when the molecule has a centre of symmetry, and, from Mulliken's rules for the letters
+and primes of a label (R. S. Mulliken, J. Chem. Phys. 23, 1997 (1955)): for a non-degenerate
+mode whether it is symmetric (A, or a Sigma of a linear molecule) or antisymmetric (B) under the
+principal rotation, and whether it is symmetric (') or antisymmetric (") under the horizontal
+mirror plane. (Which of b1/b2, or a1/a2 beyond the totally symmetric one, a mode is depends on
+how the table chose its axes and planes, so it is not used.) The principal rotation is the
+proper rotation of highest order when its axis is unique, or the improper S_2n on one of several
+C_n axes (D2d's S4); without a unique one (D2h, Td) the A/B letter is not used. The horizontal
+plane is the mirror perpendicular to the principal axis, or the only mirror of a Cs molecule.
 
 Method: candidate operations (proper rotations C2-C6 and improper S3, S4, S6 about, and mirror
 planes perpendicular to, axes through the centre of mass along principal axes, atoms, midpoints
@@ -113,15 +120,73 @@ def _overlaps(ops: list[SymmetryOperation], modes: np.ndarray) -> np.ndarray:
 @dataclass(frozen=True)
 class ModeSymmetry:
     """Convention-free symmetry class of one mode: degeneracy, totally symmetric or not, parity
-    ("g", "u", or "" without a centre of symmetry)."""
+    ("g", "u", or "" without a centre of symmetry); for non-degenerate modes ``axial`` (+1
+    symmetric, -1 antisymmetric under the principal rotation, 0 unknown) and ``horizontal``
+    (+1 symmetric, -1 antisymmetric under the horizontal mirror plane, 0 unknown)."""
 
     degeneracy: int
     totally_symmetric: bool
     parity: str
+    axial: int = 0
+    horizontal: int = 0
 
     @property
     def key(self) -> tuple[int, bool, str]:
+        """The coarse class: degeneracy, totally symmetric, parity."""
         return (self.degeneracy, self.totally_symmetric, self.parity)
+
+    def species_key(self, axial: bool, horizontal: bool) -> tuple:
+        """The coarse class refined by the A/B letter and/or the prime (when asked for)."""
+        return self.key + ((self.axial if axial else 0), (self.horizontal if horizontal else 0))
+
+
+def _rotation_order(matrix: np.ndarray) -> tuple[int, bool]:
+    """(n, proper) of an operation: a proper rotation C_n (n = 1 for the identity), or an
+    improper S_n (n = 1 for a mirror, 2 for the inversion)."""
+    proper = np.linalg.det(matrix) > 0
+    cos = (np.trace(matrix) - 1.0) / 2.0 if proper else (np.trace(matrix) + 1.0) / 2.0
+    angle = float(np.arccos(np.clip(cos, -1.0, 1.0)))
+    return (1 if angle < 1e-3 else int(round(2 * np.pi / angle))), bool(proper)
+
+
+def _axis(matrix: np.ndarray, proper: bool) -> np.ndarray:
+    """Unit axis of a rotation (eigenvalue +1) or of an improper rotation / mirror normal (-1)."""
+    w, v = np.linalg.eig(matrix)
+    a = np.real(v[:, int(np.argmin(np.abs(w - (1.0 if proper else -1.0))))])
+    return a / np.linalg.norm(a)
+
+
+def principal_and_horizontal(ops: list[SymmetryOperation]) -> tuple[int | None, int | None]:
+    """Indices into ``ops`` of the principal rotation and of the horizontal mirror (None when
+    the group has none, or no unique one): see the module docstring."""
+    info = [(*_rotation_order(op.matrix), op) for op in ops]
+    axes = [(_axis(op.matrix, proper), n, proper) for n, proper, op in info]
+    rotations = [k for k, (n, proper, op) in enumerate(info) if proper and n > 1]
+    principal = None
+    if rotations:
+        top = max(info[k][0] for k in rotations)
+        best = [k for k in rotations if info[k][0] == top]
+        distinct: list[int] = []
+        for k in best:
+            if all(abs(np.dot(axes[k][0], axes[j][0])) < 0.999 for j in distinct):
+                distinct.append(k)
+        if len(distinct) == 1:
+            principal = distinct[0]
+        else:
+            improper = [k for k, (n, proper, op) in enumerate(info)
+                        if not proper and n == 2 * top and not op.is_inversion
+                        and any(abs(np.dot(axes[k][0], axes[j][0])) > 0.999 for j in distinct)]
+            lines = {tuple(np.round(np.abs(axes[k][0]), 3)) for k in improper}
+            if improper and len(lines) == 1:
+                principal = improper[0]
+    mirrors = [k for k, (n, proper, op) in enumerate(info) if not proper and n == 1]
+    horizontal = None
+    if principal is not None:
+        lying = [k for k in mirrors if abs(np.dot(axes[k][0], axes[principal][0])) > 0.999]
+        horizontal = lying[0] if lying else None
+    elif not rotations and len(mirrors) == 1:
+        horizontal = mirrors[0]
+    return principal, horizontal
 
 
 def mode_symmetries(ops: list[SymmetryOperation], modes_mass_weighted: np.ndarray,
@@ -153,17 +218,23 @@ def mode_symmetries(ops: list[SymmetryOperation], modes_mass_weighted: np.ndarra
                 chars[k] = np.einsum("i,rij,j->r", vecs[:, slot], blocks, vecs[:, slot])
             done.update(group)
         mixing[:] = 0.0
+    principal, horizontal = principal_and_horizontal(ops)
+
+    def sign(m: int, op: int | None) -> int:
+        if op is None:
+            return 0
+        c = chars[m, op]
+        return 1 if c > threshold else (-1 if c < -threshold else 0)
+
     out = []
     for m in range(count):
-        parity = ""
-        if inv:
-            c = chars[m, inv[0]]
-            parity = "g" if c > threshold else ("u" if c < -threshold else "")
+        parity = {1: "g", -1: "u", 0: ""}[sign(m, inv[0])] if inv else ""
         partners = int(np.sum(mixing[:, m] > coupling))
         if partners == 0:
-            out.append(ModeSymmetry(1, bool(np.all(chars[m] > threshold)), parity))
+            out.append(ModeSymmetry(1, bool(np.all(chars[m] > threshold)), parity,
+                                    sign(m, principal), sign(m, horizontal)))
         else:
-            out.append(ModeSymmetry(min(3, partners + 1), False, parity))
+            out.append(ModeSymmetry(min(3, partners + 1), False, parity, 0, sign(m, horizontal)))
     return out
 
 
@@ -172,10 +243,17 @@ TOTALLY_SYMMETRIC_LABELS = {"a1", "ag", "a1g", "a'", "a1'", "sg+", "s+", "a"}
 
 
 def label_symmetry(label: str, degeneracy: int, centrosymmetric: bool) -> ModeSymmetry:
-    """The convention-free class of a table's symmetry label (e.g. "a1g", "e'", "b2u", "pu")."""
+    """The convention-free class of a table's symmetry label (e.g. "a1g", "e'", "b2u", "pu"):
+    A (and Sigma) non-degenerate species are symmetric under the principal rotation, B ones
+    antisymmetric; ' marks symmetric, " antisymmetric under the horizontal plane."""
     s = label.strip().lower().replace("sigma", "s").replace("pi", "p")
     parity = ""
     if centrosymmetric:
         core = s.rstrip("+-'\"")
         parity = "g" if core.endswith("g") else ("u" if core.endswith("u") else "")
-    return ModeSymmetry(int(degeneracy), degeneracy == 1 and s in TOTALLY_SYMMETRIC_LABELS, parity)
+    axial = 0
+    if degeneracy == 1 and s[:1] in ("a", "s", "b"):
+        axial = -1 if s[0] == "b" else 1
+    horizontal = -1 if s.endswith('"') or s.endswith("''") else (1 if s.endswith("'") else 0)
+    return ModeSymmetry(int(degeneracy), degeneracy == 1 and s in TOTALLY_SYMMETRIC_LABELS, parity,
+                        axial, horizontal)
