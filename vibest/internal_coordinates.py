@@ -58,21 +58,26 @@ def cross_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return out
 
 
-def torsion_vectors(x: np.ndarray, i, j, k, l) -> np.ndarray:
-    """B vectors of many torsions i-j-k-l at once (index arrays): (T, 4, 3) for atoms (i, j, k, l)
-    (Blondel & Karplus, J. Comput. Chem. 17, 1132 (1996))."""
+def torsion_angles_and_vectors(x: np.ndarray, i, j, k, l) -> tuple[np.ndarray, np.ndarray]:
+    """Dihedral angles (rad, -pi..pi) and B vectors (T, 4, 3) of many torsions i-j-k-l at once
+    (index arrays), from one set of cross products (Blondel & Karplus, J. Comput. Chem. 17,
+    1132 (1996))."""
     f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
     a, b = cross_rows(f, g), cross_rows(h, g)
     aa = np.maximum((a * a).sum(-1, keepdims=True), 1e-16)
     bb = np.maximum((b * b).sum(-1, keepdims=True), 1e-16)
     lg = np.sqrt((g * g).sum(-1, keepdims=True))
+    angles = np.arctan2((cross_rows(b, a) * g).sum(-1) / lg[:, 0], (a * b).sum(-1))
     fg = (f * g).sum(-1, keepdims=True) / (aa * lg)
     hg = (h * g).sum(-1, keepdims=True) / (bb * lg)
-    di = -lg / aa * a
-    dl = lg / bb * b
-    dj = lg / aa * a + fg * a - hg * b
-    dk = -lg / bb * b - fg * a + hg * b
-    return np.stack([di, dj, dk, dl], axis=1)
+    ta, tb = lg / aa * a, lg / bb * b
+    fa_hb = fg * a - hg * b
+    return angles, np.stack([-ta, ta + fa_hb, -tb - fa_hb, tb], axis=1)
+
+
+def torsion_vectors(x: np.ndarray, i, j, k, l) -> np.ndarray:
+    """B vectors of many torsions i-j-k-l at once (index arrays): (T, 4, 3) for atoms (i, j, k, l)."""
+    return torsion_angles_and_vectors(x, i, j, k, l)[1]
 
 
 def bend_angles(x: np.ndarray, i, j, k) -> np.ndarray:

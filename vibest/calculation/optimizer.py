@@ -247,7 +247,7 @@ class _InternalSteps:
     def _frame(self, x: np.ndarray, g: np.ndarray) -> _Frame | None:
         """The :class:`_Frame` at ``x``; None when M is not positive definite (the set no longer
         spans every internal motion)."""
-        bmat = self.ic.b_matrix(x)
+        q, bmat = self.ic.values_and_b_matrix(x)
         # R need not be normalised: along R the RFO problem reads c R R^T v = lambda R R^T v
         rigid = rigid_body_vectors(x)
         try:
@@ -255,7 +255,7 @@ class _InternalSteps:
         except np.linalg.LinAlgError:
             return None
         gq = bmat @ _cho_solve(chol, g)
-        return _Frame(self.ic.values(x), bmat, chol, rigid, bmat.T @ gq, gq)
+        return _Frame(q, bmat, chol, rigid, bmat.T @ gq, gq)
 
     def propose(self, trust: float):
         if self.frame is None:

@@ -17,7 +17,7 @@ from ase.data import covalent_radii
 from ase.units import Bohr
 from scipy.sparse.csgraph import connected_components
 
-from ..internal_coordinates import bend_angles, bend_vectors, torsion_angles, torsion_vectors
+from ..internal_coordinates import bend_angles, bend_vectors, torsion_angles, torsion_angles_and_vectors
 
 #: Atoms closer than this multiple of the sum of their covalent radii are bonded.
 BOND_FACTOR = 1.3
@@ -54,26 +54,34 @@ class InternalSet:
 
     def b_matrix(self, x: np.ndarray) -> np.ndarray:
         """Wilson B matrix (size, 3N): derivatives of :meth:`values` by Cartesians (Bohr)."""
+        return self.values_and_b_matrix(x)[1]
+
+    def values_and_b_matrix(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """:meth:`values` and the Wilson B matrix (size, 3N) from one pass over the primitives."""
         n = len(x)
         out = np.zeros((self.size, n, 3))
         b, a, t = self.bonds, self.bends, self.torsions
         rows = np.arange(len(b))
         u = x[b[:, 0]] - x[b[:, 1]]
-        u /= np.linalg.norm(u, axis=1, keepdims=True)
+        r = np.sqrt((u * u).sum(1))
+        u /= r[:, None]
         # within one row every atom appears once, so plain (not accumulating) assignment is exact
         out[rows, b[:, 0]] = u
         out[rows, b[:, 1]] = -u
+        theta = np.zeros(0)
         if len(a):
-            vecs, _ = bend_vectors(x, a[:, 0], a[:, 1], a[:, 2])
+            vecs, degrees = bend_vectors(x, a[:, 0], a[:, 1], a[:, 2])
+            theta = np.radians(degrees)
             rows = len(b) + np.arange(len(a))
             for m in range(3):
                 out[rows, a[:, m]] = vecs[:, m]
+        phi = np.zeros(0)
         if len(t):
-            vecs = torsion_vectors(x, t[:, 0], t[:, 1], t[:, 2], t[:, 3])
+            phi, vecs = torsion_angles_and_vectors(x, t[:, 0], t[:, 1], t[:, 2], t[:, 3])
             rows = len(b) + len(a) + np.arange(len(t))
             for m in range(4):
                 out[rows, t[:, m]] = vecs[:, m]
-        return out.reshape(self.size, 3 * n)
+        return np.concatenate([r, theta, phi]), out.reshape(self.size, 3 * n)
 
     def difference(self, q_new: np.ndarray, q_old: np.ndarray) -> np.ndarray:
         """q_new - q_old with torsion differences wrapped into (-pi, pi]."""
