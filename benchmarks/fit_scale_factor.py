@@ -7,7 +7,8 @@ training split of molecules (every 4th molecule from the 3rd is held out):
   1. uniform: one factor s = sum(w_calc w_exp) / sum(w_calc^2);
   2. region: one such factor per region of the harmonic wavenumber (<1000, 1000-1600,
      1600-2000, 2000-2700, >2700 cm^-1);
-  3. per-coordinate: scaled force field (Pulay et al.), one force-constant factor per coordinate type.
+  3. per-coordinate: scaled force field (Pulay et al.), one force-constant factor per coordinate type,
+     fitted with a soft-L1 loss (vibest.analysis.calibration.fit_per_coordinate).
 Prints MAD / RMS / max per model on train and held-out molecules, per coordinate type (of the
 mode's dominant coordinate), per molecule, and the rows the assignment could not pair. The
 default model is the one with the lowest held-out MAD. Coordinate types (vibest.analysis.scaling)

@@ -152,8 +152,7 @@ def test_assigned_modes_carry_the_letter_and_prime_of_their_rows():
 @pytest.mark.parametrize("smiles,expected", [
     ("CC", {"C-H stretch (sp3)"}),
     ("COC", {"C-H stretch (sp3, next to N or O)"}),
-    ("CCl", {"C-H stretch (halogenated, one halogen on C)"}),
-    ("ClC(Cl)Cl", {"C-H stretch (halogenated, 2+ halogens on C)"}),
+    ("ClC(Cl)Cl", {"C-H stretch (halogenated)"}),
     ("CC=O", {"C-H stretch (sp3)", "C-H stretch (aldehyde)"}),
 ])
 def test_carbon_hydrogen_stretches_are_typed_by_their_carbon(smiles, expected):
@@ -163,6 +162,27 @@ def test_carbon_hydrogen_stretches_are_typed_by_their_carbon(smiles, expected):
     rec = record_of(smiles)
     space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
     assert {t for t in coordinate_types(rec.numbers, rec.bonds, space.primitives) if t.startswith("C-H")} == expected
+
+
+@pytest.mark.parametrize("name", ["acetone", "propane", "butane", "2-butanone"])
+def test_assignment_does_not_hang_on_rounding_noise(name):
+    """Two rows and two modes of equal character cost the same paired either way under an
+    absolute-difference cost; the pairing must not then depend on rounding noise (values shifted
+    by 1e-9 cm^-1 give the same pairs; rows of equal value may trade modes)."""
+    import dataclasses
+
+    ref = next(r for r in reference_molecules() if r.name == name)
+    rec = _record(ref.smiles)
+
+    def pairs(a):
+        return sorted((round(float(ref.fundamentals_cm1[r]), 3), m) for r, m in zip(a.rows, a.modes))
+
+    base = pairs(prepare_case(ref, rec).assignment)
+    rng = np.random.default_rng(0)
+    for _ in range(3):
+        noisy = dataclasses.replace(ref, fundamentals_cm1=ref.fundamentals_cm1 + 1e-9 * rng.standard_normal(
+            len(ref.fundamentals_cm1)))
+        assert pairs(prepare_case(noisy, rec).assignment) == base
 
 
 def test_water_bands_pair_by_symmetry():
@@ -320,6 +340,25 @@ def test_family_factors_move_held_out_bands_of_unseen_types_towards_experiment()
         k = rows.index(int(np.argmin(np.abs(case.reference.fundamentals_cm1 - target))))
         err = [abs(predicted_wavenumbers(case, m)[k] - target) for m in (shipped, fallback)]
         assert err[0] < err[1] - 20.0, (name, err)
+
+
+def test_soft_l1_residuals_are_linear_for_small_errors_and_grow_like_a_square_root_for_large_ones():
+    """rho(r) = 2 f^2 (sqrt(1 + (r/f)^2) - 1) (the soft-L1 loss of scipy.optimize.least_squares,
+    whose documentation gives this formula): rho ~ r^2 for |r| << f and ~ 2 f |r| for |r| >> f."""
+    from scipy.optimize import least_squares
+
+    from vibest.analysis.calibration import soft_l1
+
+    r = np.array([-0.01, 0.01, 1e4, -1e4])
+    out = soft_l1(r, 20.0)
+    assert out[:2] == pytest.approx(r[:2], rel=1e-6)
+    assert np.abs(out[2:]) == pytest.approx(np.sqrt(2 * 20.0 * 1e4 - 2 * 20.0 ** 2), rel=1e-3)
+    assert np.sign(out).tolist() == [-1, 1, 1, -1]
+    # same minimiser as scipy's own soft-L1 loss on a one-parameter fit (f_scale = 20)
+    data = np.array([1.0, 2.0, 3.0, 50.0])
+    ours = least_squares(lambda p: soft_l1(p[0] - data, 20.0), [0.0]).x[0]
+    scipy_loss = least_squares(lambda p: p[0] - data, [0.0], loss="soft_l1", f_scale=20.0).x[0]
+    assert ours == pytest.approx(scipy_loss, abs=1e-4)
 
 
 def test_region_model_scales_each_region_by_its_factor():

@@ -18,7 +18,11 @@ Method:
    torsion (or a wider family for "ring" and bare "bend"/"deform"). The computed mode's family
    shares come from its potential-energy distribution over internal coordinates
    (:mod:`vibest.analysis.composition`). Their agreement is a score between 0 and 1.
-3. Cost of pairing row e with mode k: |w_k - w_e| / 100 cm^-1 + 3 (1 - character score);
+3. Cost of pairing row e with mode k: |d| + 0.01 d^2 + 3 (1 - character score) with
+   d = (w_k - w_e) / 100 cm^-1. The small square term makes the cost strictly convex in d: with
+   |d| alone, two rows and two modes of equal character on the same side of each other cost the
+   same paired either way (an exact tie, broken by rounding noise); the square term prefers the
+   pairing in wavenumber order;
    forbidden pairs (other symmetry class) cost 1e6. The pairing of least total cost is found with
    the Hungarian method (scipy.optimize.linear_sum_assignment). Rows left without a mode of their
    class are reported as unassigned.
@@ -52,6 +56,8 @@ SIMILARITY = {
     SKELETAL_OP: {TORSION_F: 1.0, SKELETAL_BEND: 1.0, H_BEND: 0.5},
 }
 FORBIDDEN = 1e6
+#: Weight of the square term of the pairing cost (see the module docstring).
+TIE_BREAK = 0.01
 _H_GROUP = re.compile(r"\b(?:c|n|o|s)?h\d?\b|\bh(?:cl|f|br|i)\b")
 _BEND_WORDS = ("bend", "deform", "scis", "rock", "wag", "twist", "puck")
 
@@ -155,7 +161,8 @@ def assign_modes(numbers, positions_angstrom, modes, composition, experimental_c
     hydride = len(heavy) == 1 and len(numbers) > 1
     families = [description_family(d, hydride) for d in descriptions]
     score = character_scores(families, computed_family_shares(numbers, composition))
-    cost = np.abs(w[None, :] - exp[:, None]) / 100.0 + 3.0 * (1.0 - score)
+    d = (w[None, :] - exp[:, None]) / 100.0
+    cost = np.abs(d) + TIE_BREAK * d ** 2 + 3.0 * (1.0 - score)
     method = "character"
     if use_symmetry:
         ops = symmetry_operations(numbers, positions_angstrom)

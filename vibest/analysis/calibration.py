@@ -172,10 +172,23 @@ def fit_regions(cases: list, fallback: float) -> tuple[float, ...]:
     return tuple(out)
 
 
+def soft_l1(residuals_cm1: np.ndarray, scale_cm1: float) -> np.ndarray:
+    """Residuals whose squares are the soft-L1 loss 2 f^2 (sqrt(1 + (r/f)^2) - 1): like r for
+    |r| << f, growing like sqrt(2 f |r|) beyond, so that a least-squares fit of them weighs large
+    errors as an absolute-error fit does."""
+    r = np.asarray(residuals_cm1, dtype=float)
+    return np.sign(r) * np.sqrt(2.0 * scale_cm1 ** 2 * (np.sqrt(1.0 + (r / scale_cm1) ** 2) - 1.0))
+
+
 def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
-                       prior_cm1: float = 200.0) -> dict[str, float]:
-    """Force-constant factors per coordinate type and per type family, minimising the squared
-    error of assigned pairs (partial pooling, Tikhonov regularisation).
+                       prior_cm1: float = 200.0, loss_scale_cm1: float | None = 20.0) -> dict[str, float]:
+    """Force-constant factors per coordinate type and per type family, minimising the soft-L1
+    loss (:func:`soft_l1`, scale ``loss_scale_cm1``; None: squared errors) of the assigned
+    pairs with partial pooling (Tikhonov regularisation). The robust loss follows the figure of
+    merit, the mean absolute error: a few bands GFN2-xTB gets badly wrong no longer set the
+    factors of types they share with well-described bands (4-fold cross-validated MAD over the
+    training molecules 32.13 -> 31.73 cm^-1 with the C-H types of that time; scale 10 / 40
+    cm^-1: 33.22 / 33.18 against 33.08 for 20, before the tie-break of the assignment).
 
     Each family's factor is pulled towards uniform_factor^2 (a residual prior_cm1 * ln(s_F / s_0))
     and each type's factor towards its family's (prior_cm1 * ln(s_k / s_F)); a type without a
@@ -209,8 +222,10 @@ def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
 
     def residuals(params):
         m = model_of(params)
-        r = [predicted_wavenumbers(c, m) - e for c, e in zip(train, exp)]
-        return np.concatenate(r + [prior_cm1 * np.asarray(params)])
+        r = np.concatenate([predicted_wavenumbers(c, m) - e for c, e in zip(train, exp)])
+        if loss_scale_cm1:
+            r = soft_l1(r, loss_scale_cm1)
+        return np.concatenate([r, prior_cm1 * np.asarray(params)])
 
     sol = least_squares(residuals, np.zeros(len(names)), method="trf", x_scale=0.05, max_nfev=200)
     return dict(model_of(sol.x).force_constant_factors)
