@@ -253,7 +253,9 @@ def test_per_coordinate_scaling_with_unit_factors_is_identity():
     rec = record_of("CC=O")
     ref = next(r for r in reference_molecules() if r.name == "acetaldehyde")
     case = prepare_case(ref, rec)
-    ones = ScaleModel(1.0, PER_COORDINATE, "test", {t: 1.0 for t in case.types} | {GEMINAL_COUPLING: 1.0})
+    from vibest.analysis.scaling import COUPLING_CLASSES
+
+    ones = ScaleModel(1.0, PER_COORDINATE, "test", {t: 1.0 for t in case.types} | {c: 1.0 for c in COUPLING_CLASSES})
     np.testing.assert_allclose(predicted_wavenumbers(case, ones),
                                case.modes.wavenumbers_cm1[list(case.assignment.modes)], atol=1e-6)
 
@@ -273,6 +275,42 @@ def test_geminal_coupling_moves_symmetric_and_antisymmetric_stretches_apart():
 
     assert split(0.5) != pytest.approx(split(1.0), abs=1.0)
     assert abs(split(0.5) - split(1.0)) < abs(split(0.0) - split(1.0))
+
+
+@pytest.mark.parametrize("smiles,name,count", [
+    # counting of internal coordinates (common practice, no source)
+    ("C#C", "linear bend/linear bend coupling", 4),  # two apexes x two components, across apexes
+    ("CC", "torsion/torsion coupling (same bond)", 36),  # nine H-C-C-H torsions about C-C
+    ("CCC", "heavy-atom stretch/stretch coupling (shared atom)", 1),  # C1-C2 with C2-C3
+    ("O", "stretch/bend coupling (bond in the bend)", 2),  # each O-H with the H-O-H bend
+    ("O", "X-H/X-H stretch coupling (same X)", 1),
+])
+def test_coupling_classes_find_their_pairs(smiles, name, count):
+    from vibest.analysis.internal_space import InternalSpace
+    from vibest.analysis.scaling import coupling_pairs
+
+    rec = record_of(smiles)
+    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
+    rows, cols = coupling_pairs(rec.numbers, space.primitives)[name]
+    assert len(rows) == count
+    kinds = {(space.primitives[i].kind, space.primitives[j].kind) for i, j in zip(rows, cols)}
+    assert len(kinds) == 1
+
+
+@pytest.mark.slow
+def test_coupling_factors_bring_held_out_bands_closer():
+    """Held-out molecules of the reference table (Shimanouchi, NSRDS-NBS 39): the shipped
+    per-coordinate model with its coupling factors against the same factors with the coupling
+    factors reset to 1 (plain Pulay scaling): lower MAD on the held-out split."""
+    from vibest.analysis.scaling import COUPLING_CLASSES
+
+    shipped = named_scale_model(PER_COORDINATE)
+    plain = ScaleModel(shipped.factor, PER_COORDINATE, "t",
+                       {k: (1.0 if k in COUPLING_CLASSES else v) for k, v in shipped.force_constant_factors.items()})
+    assert any(shipped.force_constant_factors.get(k, 1.0) < 0.9 for k in COUPLING_CLASSES)
+    _, test = split_train_test(list(_cases()))
+    mad = {name: error_statistics(*pooled(test, m))["mad_cm1"] for name, m in (("shipped", shipped), ("plain", plain))}
+    assert mad["shipped"] < mad["plain"] - 1.0, mad
 
 
 def test_a_type_without_a_factor_of_its_own_takes_its_familys():

@@ -194,19 +194,21 @@ def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
     and each type's factor towards its family's (prior_cm1 * ln(s_k / s_F)); a type without a
     family is pulled towards uniform_factor^2. So a type seen in few modes cannot drift on noise,
     and a type never seen in training takes its family's factor (:meth:`ScaleModel.type_factor`).
-    The geminal X-H coupling factor is pulled towards 1.
+    The factors of the coupling classes (:data:`vibest.analysis.scaling.COUPLING_CLASSES`) are
+    pulled towards 1.
     """
     from scipy.optimize import least_squares
 
-    from .scaling import GEMINAL_COUPLING, PER_COORDINATE, ScaleModel, geminal_xh_pairs, type_family
+    from .scaling import COUPLING_CLASSES, PER_COORDINATE, ScaleModel, coupling_pairs, type_family
 
     types = sorted({t for c in train for t in c.types})
-    if any(geminal_xh_pairs(c.record.numbers, c.space.primitives) for c in train):
-        types.append(GEMINAL_COUPLING)
+    for name in COUPLING_CLASSES:
+        if any(len(coupling_pairs(c.record.numbers, c.space.primitives)[name][0]) for c in train):
+            types.append(name)
     families = sorted({type_family(t) for t in types} - {None})
     names = families + types
     parent = np.array([-1] * len(families) + [families.index(f) if (f := type_family(t)) else -1 for t in types])
-    base = np.array([0.0 if n == GEMINAL_COUPLING else np.log(uniform_factor ** 2) for n in names])
+    base = np.array([0.0 if n in COUPLING_CLASSES else np.log(uniform_factor ** 2) for n in names])
     exp = [c.experimental_cm1 for c in train]
 
     def log_factors(params):

@@ -15,13 +15,18 @@ fundamentals of ``vibest/data/fundamentals.csv`` and shipped in ``vibest/data/sc
   stretches; bonds to halogens; triple, cumulated, double and single bonds; bends with H;
   torsions): the fit pulls each type's factor towards its family's (partial pooling), and a type
   absent from the fit (N=N of N2O, H-F) uses its family's factor, or else the square of the
-  uniform factor.
+  uniform factor. Beyond that rule, five classes of couplings (off-diagonal F_ij) get a further
+  factor of their own, because GFN2-xTB overestimates them: two X-H stretches on one atom
+  (symmetric/antisymmetric XH2/XH3 splitting), two linear bends (e.g. the cis/trans bends of
+  acetylene), two heavy-atom stretches sharing an atom, a stretch and a bend over its bond, and
+  two torsions about one bond.
 
 The model with the lower error on held-out molecules is the default (see the JSON file).
 """
 
 from __future__ import annotations
 
+import functools
 import json
 from dataclasses import dataclass, field
 from importlib import resources
@@ -69,8 +74,10 @@ class ScaleModel:
         """Short text for reports, e.g. "uniform factor 0.9939" or "per-coordinate scaled force field (37 types, 9 families)"."""
         if self.per_coordinate:
             families = sum(k.startswith(FAMILY_PREFIX) for k in self.force_constant_factors)
-            types = len(self.force_constant_factors) - families
-            return f"per-coordinate scaled force field ({types} types" + (f", {families} families)" if families else ")")
+            couplings = sum(k in COUPLING_CLASSES for k in self.force_constant_factors)
+            types = len(self.force_constant_factors) - families - couplings
+            extra = (f", {families} families" if families else "") + (f", {couplings} coupling factors" if couplings else "")
+            return f"per-coordinate scaled force field ({types} types{extra})"
         if self.name == REGION:
             return "region factors " + ", ".join(f"{f:.4f}" for f in self.region_factors)
         return f"{self.name} factor {self.factor:.4f}"
@@ -98,18 +105,19 @@ class ScaleModel:
     def scaled_hessian(self, numbers, bonds, hessian_hartree_bohr2, space: InternalSpace) -> np.ndarray:
         """Cartesian Hessian with the internal force constants scaled (Eh/Bohr^2).
 
-        F'_ij = sqrt(s_i s_j) F_ij, except that the coupling of two X-H stretches on the same
-        atom X is scaled by a further factor (type :data:`GEMINAL_COUPLING`) when the model has
-        one: it sets the splitting of symmetric and antisymmetric XH2/XH3 stretches."""
+        F'_ij = sqrt(s_i s_j) F_ij, except that the couplings of the classes of
+        :data:`COUPLING_CLASSES` the model has a factor for (two X-H stretches on one atom, two
+        linear bends, two adjacent heavy-atom stretches, a stretch and a bend over its bond, two
+        torsions about one bond) are scaled by that further factor."""
         if not self.per_coordinate:
             return np.asarray(hessian_hartree_bohr2) * self.factor ** 2
         root = np.sqrt(self.coordinate_factors(numbers, bonds, space))
         matrix = np.outer(root, root)
-        coupling = self.force_constant_factors.get(GEMINAL_COUPLING)
-        if coupling is not None:
-            for i, j in geminal_xh_pairs(numbers, space.primitives):
-                matrix[i, j] *= coupling
-                matrix[j, i] *= coupling
+        for name, (rows, cols) in coupling_pairs(numbers, space.primitives).items():
+            factor = self.force_constant_factors.get(name)
+            if factor is not None and len(rows):
+                matrix[rows, cols] *= factor
+                matrix[cols, rows] *= factor
         return scale_hessian_matrix(hessian_hartree_bohr2, space, matrix)
 
     def to_dict(self) -> dict:
@@ -141,8 +149,12 @@ def scale_hessian_matrix(hessian_hartree_bohr2, space: InternalSpace, matrix) ->
     return 0.5 * (out + out.T)
 
 
-#: Type name of the extra factor on couplings of two X-H stretches that share the atom X.
+#: Names of the extra factors on couplings (off-diagonal force constants) of pairs of coordinates.
 GEMINAL_COUPLING = "X-H/X-H stretch coupling (same X)"
+LINEAR_BEND_COUPLING = "linear bend/linear bend coupling"
+ADJACENT_STRETCH_COUPLING = "heavy-atom stretch/stretch coupling (shared atom)"
+STRETCH_BEND_COUPLING = "stretch/bend coupling (bond in the bend)"
+TORSION_COUPLING = "torsion/torsion coupling (same bond)"
 
 
 def geminal_xh_pairs(numbers, primitives) -> list[tuple[int, int]]:
@@ -154,7 +166,74 @@ def geminal_xh_pairs(numbers, primitives) -> list[tuple[int, int]]:
             za, zb = int(numbers[a]), int(numbers[b])
             if (za == 1) != (zb == 1):
                 by_atom.setdefault(b if za == 1 else a, []).append(k)
-    return [(ks[i], ks[j]) for ks in by_atom.values() for i in range(len(ks)) for j in range(i + 1, len(ks))]
+    return _pairs_within(by_atom.values())
+
+
+def _pairs_within(groups) -> list[tuple[int, int]]:
+    return [(ks[i], ks[j]) for ks in groups for i in range(len(ks)) for j in range(i + 1, len(ks))]
+
+
+def linear_bend_pairs(numbers, primitives) -> list[tuple[int, int]]:
+    """Pairs of linear-bend components at different apex atoms."""
+    idx = [k for k, p in enumerate(primitives) if p.kind == LINEAR_BEND]
+    return [(a, b) for n, a in enumerate(idx) for b in idx[n + 1:] if primitives[a].atoms[1] != primitives[b].atoms[1]]
+
+
+def adjacent_stretch_pairs(numbers, primitives) -> list[tuple[int, int]]:
+    """Pairs of stretches of bonds between heavy atoms that share an atom."""
+    by_atom: dict[int, list[int]] = {}
+    for k, p in enumerate(primitives):
+        if p.kind == STRETCH and all(int(numbers[a]) != 1 for a in p.atoms[:2]):
+            for a in p.atoms[:2]:
+                by_atom.setdefault(a, []).append(k)
+    return _pairs_within(by_atom.values())
+
+
+def stretch_bend_pairs(numbers, primitives) -> list[tuple[int, int]]:
+    """Pairs (stretch, bend) where the stretched bond is one arm of the bend."""
+    stretch = {frozenset(p.atoms[:2]): k for k, p in enumerate(primitives) if p.kind == STRETCH}
+    out = []
+    for k, p in enumerate(primitives):
+        if p.kind == BEND:
+            i, j, l = p.atoms[:3]
+            out += [(stretch[arm], k) for arm in (frozenset((i, j)), frozenset((j, l))) if arm in stretch]
+    return out
+
+
+def torsion_pairs(numbers, primitives) -> list[tuple[int, int]]:
+    """Pairs of torsions about the same central bond."""
+    by_bond: dict[frozenset, list[int]] = {}
+    for k, p in enumerate(primitives):
+        if p.kind == TORSION:
+            by_bond.setdefault(frozenset(p.atoms[1:3]), []).append(k)
+    return _pairs_within(by_bond.values())
+
+
+#: Coupling classes with a factor of their own in the per-coordinate model: name -> pair finder.
+#: Chosen by the cross-validated MAD over the training molecules (DEVELOPERS.md); GFN2-xTB
+#: overestimates these couplings (fitted factors 0.66-0.96).
+COUPLING_CLASSES = {
+    GEMINAL_COUPLING: geminal_xh_pairs,
+    LINEAR_BEND_COUPLING: linear_bend_pairs,
+    ADJACENT_STRETCH_COUPLING: adjacent_stretch_pairs,
+    STRETCH_BEND_COUPLING: stretch_bend_pairs,
+    TORSION_COUPLING: torsion_pairs,
+}
+
+
+@functools.lru_cache(maxsize=512)
+def _coupling_pairs_cached(numbers: tuple[int, ...], primitives: tuple[Primitive, ...]) -> dict:
+    out = {}
+    for name, finder in COUPLING_CLASSES.items():
+        pairs = finder(numbers, primitives)
+        out[name] = (np.array([a for a, _ in pairs], dtype=int), np.array([b for _, b in pairs], dtype=int))
+    return out
+
+
+def coupling_pairs(numbers, primitives) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """Per coupling class of :data:`COUPLING_CLASSES`, the (rows, cols) index arrays of its pairs
+    of primitives (cached: the fit asks for the same molecule many times)."""
+    return _coupling_pairs_cached(tuple(int(z) for z in numbers), tuple(primitives))
 
 
 def _cumulated_atoms(bonds) -> set[int]:
@@ -261,8 +340,10 @@ FAMILY_TORSION = "family: torsion"
 
 def type_family(coordinate_type: str) -> str | None:
     """The family of a coordinate type of :func:`coordinate_types` (None for types of their own:
-    heavy-atom bends, linear bends, out-of-plane, heavy-atom-H stretches, the geminal coupling)."""
+    heavy-atom bends, linear bends, out-of-plane, heavy-atom-H stretches, the coupling classes)."""
     t = coordinate_type
+    if t in COUPLING_CLASSES:
+        return None
     if t.startswith("C-H stretch"):
         return FAMILY_C_H
     if t in ("N-H stretch", "O-H stretch", "F-H stretch"):
