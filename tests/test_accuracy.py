@@ -152,7 +152,8 @@ def test_assigned_modes_carry_the_letter_and_prime_of_their_rows():
 @pytest.mark.parametrize("smiles,expected", [
     ("CC", {"C-H stretch (sp3)"}),
     ("COC", {"C-H stretch (sp3, next to N or O)"}),
-    ("ClC(Cl)Cl", {"C-H stretch (halogenated)"}),
+    ("CCl", {"C-H stretch (halogenated, one halogen on C)"}),
+    ("ClC(Cl)Cl", {"C-H stretch (halogenated, 2+ halogens on C)"}),
     ("CC=O", {"C-H stretch (sp3)", "C-H stretch (aldehyde)"}),
 ])
 def test_carbon_hydrogen_stretches_are_typed_by_their_carbon(smiles, expected):

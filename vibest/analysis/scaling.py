@@ -246,13 +246,14 @@ def _cumulated_atoms(bonds) -> set[int]:
 
 
 def _carbon_kind(c: int, numbers, orders) -> str:
-    """Kind of a C-H bond's carbon: "aldehyde" (C=O on the carbon), "halogenated", "sp", "sp2",
-    "sp3, next to N or O" or "sp3"."""
+    """Kind of a C-H bond's carbon: "aldehyde" (C=O on the carbon), "halogenated, one halogen
+    on C", "halogenated, 2+ halogens on C", "sp", "sp2", "sp3, next to N or O" or "sp3"."""
     nbrs = [(j if i == c else i, o) for (i, j), o in orders.items() if c in (i, j)]
     if any(int(numbers[n]) == 8 and o >= 2.0 for n, o in nbrs):
         return "aldehyde"
-    if any(int(numbers[n]) in _HALOGENS for n, _ in nbrs):
-        return "halogenated"
+    halogens = sum(int(numbers[n]) in _HALOGENS for n, _ in nbrs)
+    if halogens:
+        return "halogenated, " + ("one halogen on C" if halogens == 1 else "2+ halogens on C")
     if any(o >= 3.0 for _, o in nbrs) or len(nbrs) == 2:
         return "sp"
     if any(o >= 1.5 for _, o in nbrs) or len(nbrs) == 3:
@@ -287,7 +288,7 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
                 # First-row hydrides by element; heavier ones (S, Cl, Br, P, ...) share one type:
                 # GFN2-xTB places their stretches too low by a similar fraction. C-H stretches by
                 # the kind of carbon, whose GFN2-xTB errors differ (aldehyde C-H ~100 cm^-1 low,
-                # C-H next to an ether or amine O/N low).
+                # C-H next to an ether or amine O/N low, CH3X high, CHX2/CHX3 low).
                 x = a[1] if int(numbers[a[0]]) == 1 else a[0]
                 if zj == 6:
                     out.append(f"C-H stretch ({_carbon_kind(x, numbers, orders)})")
