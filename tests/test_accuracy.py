@@ -340,7 +340,7 @@ def test_every_coordinate_type_of_the_reference_set_has_the_expected_family():
                 "C-C stretch": sc.FAMILY_SINGLE, "C-O stretch": sc.FAMILY_SINGLE,
                 "H-C-H bend": sc.FAMILY_BEND_H, "H-O-X bend": sc.FAMILY_BEND_H,
                 "torsion": sc.FAMILY_TORSION, "torsion (H)": sc.FAMILY_TORSION,
-                "bend": None, "linear bend": None, "heavy-atom-H stretch": None}
+                "bend": None, "bend (halogen end)": None, "linear bend": None, "heavy-atom-H stretch": None}
     types = {t for c in _cases() for t in c.types}
     assert set(expected) <= types
     for t, family in expected.items():

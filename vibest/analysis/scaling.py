@@ -276,7 +276,7 @@ def _c_halogen_type(i: int, j: int, numbers, orders) -> str:
 def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Primitive]) -> list[str]:
     """Scaling type of each primitive, e.g. "C-H stretch (sp3)", "C=O stretch", "C#N stretch",
     "C=O stretch (cumulated)", "C-Cl stretch (2+ halogens on C)", "heavy-atom-H stretch" (S-H,
-    Cl-H, ...), "H-C-X bend", "bend", "linear bend", "torsion (H)", "out-of-plane"."""
+    Cl-H, ...), "H-C-X bend", "bend", "bend (halogen end)", "linear bend", "torsion (H)", "out-of-plane"."""
     orders = {(min(int(i), int(j)), max(int(i), int(j))): float(o) for i, j, o in bonds}
     cumulated = _cumulated_atoms(bonds)
     out = []
@@ -311,6 +311,10 @@ def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Pr
                 out.append(f"H-{chemical_symbols[int(numbers[a[1]])]}-H bend")
             elif 1 in ends:
                 out.append(f"H-{chemical_symbols[int(numbers[a[1]])]}-X bend")
+            elif ends[0] in _HALOGENS or ends[1] in _HALOGENS:
+                # X-C-Cl, Cl-C-Cl, ...: GFN2-xTB misplaces the deformations of halogenated
+                # carbons differently from skeletal bends (cross-validated, DEVELOPERS.md)
+                out.append("bend (halogen end)")
             else:
                 out.append("bend")
         elif p.kind == LINEAR_BEND:
