@@ -36,6 +36,16 @@ def _cases():
     return tuple(prepare_case(ref, _record(ref.smiles)) for ref in reference_molecules())
 
 
+def _coordinate_types_of(smiles: str) -> set[str]:
+    """Scaling types of all internal coordinates of the molecule's computed record."""
+    from vibest.analysis.internal_space import InternalSpace
+    from vibest.analysis.scaling import coordinate_types
+
+    rec = record_of(smiles)
+    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
+    return set(coordinate_types(rec.numbers, rec.bonds, space.primitives))
+
+
 def _closest(pred, target):
     w = pred.wavenumbers_cm1
     return w[np.argmin(np.abs(w - target))]
@@ -157,12 +167,16 @@ def test_assigned_modes_carry_the_letter_and_prime_of_their_rows():
     ("CC=O", {"C-H stretch (sp3)", "C-H stretch (aldehyde)"}),
 ])
 def test_carbon_hydrogen_stretches_are_typed_by_their_carbon(smiles, expected):
-    from vibest.analysis.internal_space import InternalSpace
-    from vibest.analysis.scaling import coordinate_types
+    assert {t for t in _coordinate_types_of(smiles) if t.startswith("C-H")} == expected
 
-    rec = record_of(smiles)
-    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
-    assert {t for t in coordinate_types(rec.numbers, rec.bonds, space.primitives) if t.startswith("C-H")} == expected
+
+@pytest.mark.parametrize("smiles,expected", [
+    ("CCC", {"bend"}),
+    ("ClC(Cl)(Cl)Cl", {"bend (halogen end)"}),
+    ("CCCl", {"bend (halogen end)"}),
+])
+def test_skeletal_bends_are_typed_by_a_halogen_end(smiles, expected):
+    assert {t for t in _coordinate_types_of(smiles) if t.startswith("bend")} == expected
 
 
 @pytest.mark.parametrize("name", ["acetone", "propane", "butane", "2-butanone"])
@@ -353,13 +367,7 @@ def test_every_coordinate_type_of_the_reference_set_has_the_expected_family():
     ("FC(F)Br", {"C-F stretch (2+ halogens on C)", "C-Br stretch (2+ halogens on C)"}),
 ])
 def test_carbon_halogen_stretches_are_typed_by_halogen_and_by_halogens_on_the_carbon(smiles, expected):
-    from vibest.analysis.internal_space import InternalSpace
-    from vibest.analysis.scaling import coordinate_types
-
-    rec = record_of(smiles)
-    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
-    types = {t for t in coordinate_types(rec.numbers, rec.bonds, space.primitives) if t.startswith("C-") and "H" not in t}
-    assert types == expected
+    assert {t for t in _coordinate_types_of(smiles) if t.startswith("C-") and "H" not in t} == expected
 
 
 @pytest.mark.slow
