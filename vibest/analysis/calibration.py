@@ -186,9 +186,8 @@ def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
     loss (:func:`soft_l1`, scale ``loss_scale_cm1``; None: squared errors) of the assigned
     pairs with partial pooling (Tikhonov regularisation). The robust loss follows the figure of
     merit, the mean absolute error: a few bands GFN2-xTB gets badly wrong no longer set the
-    factors of types they share with well-described bands (4-fold cross-validated MAD over the
-    training molecules 32.13 -> 31.73 cm^-1 with the C-H types of that time; scale 10 / 40
-    cm^-1: 33.22 / 33.18 against 33.08 for 20, before the tie-break of the assignment).
+    factors of types they share with well-described bands (chosen, with its scale of 20 cm^-1,
+    by the 4-fold cross-validated MAD over the training molecules; figures in DEVELOPERS.md).
 
     Each family's factor is pulled towards uniform_factor^2 (a residual prior_cm1 * ln(s_F / s_0))
     and each type's factor towards its family's (prior_cm1 * ln(s_k / s_F)); a type without a

@@ -120,9 +120,9 @@ def _overlaps(ops: list[SymmetryOperation], modes: np.ndarray) -> np.ndarray:
 @dataclass(frozen=True)
 class ModeSymmetry:
     """Convention-free symmetry class of one mode: degeneracy, totally symmetric or not, parity
-    ("g", "u", or "" without a centre of symmetry); for non-degenerate modes ``axial`` (+1
-    symmetric, -1 antisymmetric under the principal rotation, 0 unknown) and ``horizontal``
-    (+1 symmetric, -1 antisymmetric under the horizontal mirror plane, 0 unknown)."""
+    ("g", "u", or "" without a centre of symmetry); ``axial``: for a non-degenerate mode +1
+    symmetric, -1 antisymmetric under the principal rotation (0 unknown or degenerate);
+    ``horizontal``: +1 symmetric, -1 antisymmetric under the horizontal mirror plane (0 unknown)."""
 
     degeneracy: int
     totally_symmetric: bool
@@ -160,7 +160,7 @@ def principal_and_horizontal(ops: list[SymmetryOperation]) -> tuple[int | None, 
     """Indices into ``ops`` of the principal rotation and of the horizontal mirror (None when
     the group has none, or no unique one): see the module docstring."""
     info = [(*_rotation_order(op.matrix), op) for op in ops]
-    axes = [(_axis(op.matrix, proper), n, proper) for n, proper, op in info]
+    axes = [_axis(op.matrix, proper) for n, proper, op in info]
     rotations = [k for k, (n, proper, op) in enumerate(info) if proper and n > 1]
     principal = None
     if rotations:
@@ -168,21 +168,21 @@ def principal_and_horizontal(ops: list[SymmetryOperation]) -> tuple[int | None, 
         best = [k for k in rotations if info[k][0] == top]
         distinct: list[int] = []
         for k in best:
-            if all(abs(np.dot(axes[k][0], axes[j][0])) < 0.999 for j in distinct):
+            if all(abs(np.dot(axes[k], axes[j])) < 0.999 for j in distinct):
                 distinct.append(k)
         if len(distinct) == 1:
             principal = distinct[0]
         else:
             improper = [k for k, (n, proper, op) in enumerate(info)
                         if not proper and n == 2 * top and not op.is_inversion
-                        and any(abs(np.dot(axes[k][0], axes[j][0])) > 0.999 for j in distinct)]
-            lines = {tuple(np.round(np.abs(axes[k][0]), 3)) for k in improper}
+                        and any(abs(np.dot(axes[k], axes[j])) > 0.999 for j in distinct)]
+            lines = {tuple(np.round(np.abs(axes[k]), 3)) for k in improper}
             if improper and len(lines) == 1:
                 principal = improper[0]
     mirrors = [k for k, (n, proper, op) in enumerate(info) if not proper and n == 1]
     horizontal = None
     if principal is not None:
-        lying = [k for k in mirrors if abs(np.dot(axes[k][0], axes[principal][0])) > 0.999]
+        lying = [k for k in mirrors if abs(np.dot(axes[k], axes[principal])) > 0.999]
         horizontal = lying[0] if lying else None
     elif not rotations and len(mirrors) == 1:
         horizontal = mirrors[0]
