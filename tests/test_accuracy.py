@@ -36,13 +36,19 @@ def _cases():
     return tuple(prepare_case(ref, _record(ref.smiles)) for ref in reference_molecules())
 
 
-def _coordinate_types_of(smiles: str) -> set[str]:
-    """Scaling types of all internal coordinates of the molecule's computed record."""
+def _record_and_space(smiles: str):
+    """The molecule's computed record and its internal coordinates."""
     from vibest.analysis.internal_space import InternalSpace
-    from vibest.analysis.scaling import coordinate_types
 
     rec = record_of(smiles)
-    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
+    return rec, InternalSpace.build(rec.positions_angstrom, rec.bonds)
+
+
+def _coordinate_types_of(smiles: str) -> set[str]:
+    """Scaling types of all internal coordinates of the molecule's computed record."""
+    from vibest.analysis.scaling import coordinate_types
+
+    rec, space = _record_and_space(smiles)
     return set(coordinate_types(rec.numbers, rec.bonds, space.primitives))
 
 
@@ -301,11 +307,9 @@ def test_geminal_coupling_moves_symmetric_and_antisymmetric_stretches_apart():
     ("O", "X-H/X-H stretch coupling (same X)", 1),
 ])
 def test_coupling_classes_find_their_pairs(smiles, name, count):
-    from vibest.analysis.internal_space import InternalSpace
     from vibest.analysis.scaling import coupling_pairs
 
-    rec = record_of(smiles)
-    space = InternalSpace.build(rec.positions_angstrom, rec.bonds)
+    rec, space = _record_and_space(smiles)
     rows, cols = coupling_pairs(rec.numbers, space.primitives)[name]
     assert len(rows) == count
     kinds = {(space.primitives[i].kind, space.primitives[j].kind) for i, j in zip(rows, cols)}
