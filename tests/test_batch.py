@@ -155,7 +155,10 @@ def test_killed_batch_then_rerun_completes(tmp_path, sig):
     before = set(_worker_children(0))
     log = tmp_path / "batch.log"
     with open(log, "w") as err:
-        proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=err)
+        # a shell without job control starts background commands with SIGINT ignored, and a
+        # child inherits that (the batch would then finish as if never interrupted): restore it
+        proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=err,
+                                preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     deadline = time.time() + 120
     while time.time() < deadline and proc.poll() is None:
         if _stored_count(store_path) >= 3:
