@@ -66,6 +66,9 @@ class CalculationOptions:
         engine: level of theory (:class:`EngineSettings`).
         optimizer: convergence settings (:class:`OptimizerSettings`).
         hessian_step_bohr: finite-difference step, Bohr.
+        hessian_displacements: ``"vibrational"`` (default: central differences along the 3N-6
+            directions orthogonal to translations and rotations, 6N-12 gradients, the rest from
+            the invariance of the energy) or ``"cartesian"`` (every Cartesian coordinate, 6N).
         workers: processes for the Hessian (None = all cores).
         max_imaginary_retries: how often to displace along an imaginary mode and re-optimise.
     """
@@ -75,6 +78,7 @@ class CalculationOptions:
     engine: EngineSettings = field(default_factory=EngineSettings)
     optimizer: OptimizerSettings = field(default_factory=OptimizerSettings)
     hessian_step_bohr: float = 0.005
+    hessian_displacements: str = "vibrational"
     workers: int | None = None
     max_imaginary_retries: int = 2
 
@@ -302,7 +306,8 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
         use = workers if started and (options.workers or parallel_pays(per_gradient)) else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
-                                        progress=lambda d, t: _notify(progress, "hessian", d, t))
+                                        progress=lambda d, t: _notify(progress, "hessian", d, t),
+                                        displacements=options.hessian_displacements, reference=ev)
         timings["hessian_gradients"] += hes.gradient_calls
         timings["hessian_seconds"] += hes.seconds
         timings["hessian_workers"] = hes.workers

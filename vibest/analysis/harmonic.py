@@ -17,7 +17,7 @@ import numpy as np
 from ase.data import atomic_masses
 from scipy import constants as sc
 
-from ..rigid_body import is_linear, rigid_body_basis
+from ..rigid_body import is_linear, rigid_and_vibrational_bases
 
 _HARTREE_J = sc.physical_constants["Hartree energy"][0]
 _BOHR_M = sc.physical_constants["Bohr radius"][0]
@@ -104,12 +104,7 @@ def harmonic_analysis(numbers, positions_angstrom, hessian_hartree_bohr2, dipole
     h_mw = hess * inv_sqrt_m[:, None] * inv_sqrt_m[None, :]
     h_mw = 0.5 * (h_mw + h_mw.T)
     linear = is_linear(x)
-    rb = rigid_body_basis(x, masses)
-    n_rb = 5 if linear else 6
-    rb = rb[:, :n_rb]
-    # Orthonormal complement of the rigid-body space.
-    q, _ = np.linalg.qr(np.hstack([rb, np.eye(3 * n)]))
-    internal = q[:, n_rb:3 * n]
+    rb, internal = rigid_and_vibrational_bases(x, linear, masses)
     w, v = np.linalg.eigh(internal.T @ h_mw @ internal)
     modes_mw = (internal @ v).T  # (M, 3N), orthonormal rows
     rb_eigs = np.linalg.eigvalsh(rb.T @ h_mw @ rb)

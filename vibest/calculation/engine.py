@@ -75,6 +75,9 @@ class Engine:
     #: Whether copies of this engine (:meth:`copy`) may evaluate at the same time in threads of
     #: one process (the library releases the GIL and keeps no shared state between calculators).
     concurrent: bool = False
+    #: Whether the dipole is measured from the coordinate origin (so that translating a charged
+    #: molecule changes it by charge * shift); tested for tblite in tests/test_pipeline.py.
+    dipole_about_coordinate_origin: bool = False
 
     def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:  # pragma: no cover - interface
         raise NotImplementedError
@@ -106,6 +109,7 @@ class TBLiteEngine(Engine):
     """
 
     concurrent = True
+    dipole_about_coordinate_origin = True
 
     def __init__(self, numbers, positions_bohr, charge: int = 0, uhf: int = 0,
                  settings: EngineSettings = EngineSettings()):

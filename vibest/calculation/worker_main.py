@@ -24,10 +24,10 @@ def _main() -> None:
     stream = sys.stdin.buffer
     for header in jobs(stream):
         try:
-            numbers, x0, charge, uhf, settings, guess, step = header
+            numbers, x0, charge, uhf, settings, guess, steps = header
             engine = make_engine(numbers, x0, charge, uhf, settings)
             for task in jobs(stream):  # until the job's closing None
-                (item,) = evaluate_block(engine, x0, guess, [task], step)
+                (item,) = evaluate_block(engine, x0, guess, [task], steps)
                 pickle.dump(("result", item), results)
                 results.flush()
             pickle.dump(("done", None), results)

@@ -12,9 +12,9 @@ optimisation; while a worker is still starting, the calling process computes dis
 itself. Tasks are handed out one or two at a time (dynamic load balancing); each result comes
 back as soon as it is done.
 
-Protocol per job: a header pickle ``(numbers, x0, charge, uhf, settings, guess_path, step)``,
-then task pickles ``(k, sign)`` and a final ``None``; the worker answers ``("result", item)``
-per task and ``("done", None)`` at the end, or ``("error", message)`` and exits.
+Protocol per job: a header pickle ``(numbers, x0, charge, uhf, settings, guess_path, steps)``
+(``steps``: displacement vectors as columns, Bohr), then task pickles ``(j, sign)`` and a final
+``None``; the worker answers ``("result", item)`` per task and ``("done", None)`` at the end, or ``("error", message)`` and exits.
 """
 
 from __future__ import annotations
@@ -209,9 +209,10 @@ def shutdown() -> None:
 atexit.register(shutdown)
 
 
-def run_in_workers(numbers, x0, charge, uhf, settings, guess_path, step, tasks, workers: int,
+def run_in_workers(numbers, x0, charge, uhf, settings, guess_path, steps, tasks, workers: int,
                    local: Callable | None = None):
-    """Yield (k, sign, gradient, dipole) for every task, computed by the pool's ``workers``
-    processes (and by ``local`` in this process while workers are still starting)."""
-    header = (np.asarray(numbers), np.asarray(x0), charge, uhf, settings, guess_path, step)
+    """Yield (j, sign, gradient, dipole) for every task (x0 + sign * steps[:, j]), computed by
+    the pool's ``workers`` processes (and by ``local`` in this process while workers are still
+    starting)."""
+    header = (np.asarray(numbers), np.asarray(x0), charge, uhf, settings, guess_path, np.asarray(steps))
     yield from get_pool(workers).run(header, tasks, local)
