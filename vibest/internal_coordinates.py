@@ -67,7 +67,7 @@ def torsion_angles_and_vectors(x: np.ndarray, i, j, k, l) -> tuple[np.ndarray, n
     aa = np.maximum((a * a).sum(-1, keepdims=True), 1e-16)
     bb = np.maximum((b * b).sum(-1, keepdims=True), 1e-16)
     lg = np.sqrt((g * g).sum(-1, keepdims=True))
-    angles = _dihedral(a, b, g, lg[:, 0])
+    angles = _dihedral(a, b, h, lg[:, 0])
     fg = (f * g).sum(-1, keepdims=True) / (aa * lg)
     hg = (h * g).sum(-1, keepdims=True) / (bb * lg)
     ta, tb = lg / aa * a, lg / bb * b
@@ -87,15 +87,17 @@ def bend_angles(x: np.ndarray, i, j, k) -> np.ndarray:
     return np.arccos(np.clip(cos, -1.0, 1.0))
 
 
-def _dihedral(a: np.ndarray, b: np.ndarray, g: np.ndarray, length_g: np.ndarray) -> np.ndarray:
-    """Dihedral angles (rad) from the plane normals a = f x g, b = h x g and the axis g (|g| given)."""
-    return np.arctan2((cross_rows(b, a) * g).sum(-1) / length_g, (a * b).sum(-1))
+def _dihedral(a: np.ndarray, b: np.ndarray, h: np.ndarray, length_g: np.ndarray) -> np.ndarray:
+    """Dihedral angles (rad) from the plane normals a = f x g, b = h x g, the bond vector h and
+    |g|: atan2((b x a) . g / |g|, a . b), where (b x a) . g / |g| = |g| (a . h) (vector identity,
+    one cross product fewer)."""
+    return np.arctan2(length_g * (a * h).sum(-1), (a * b).sum(-1))
 
 
 def torsion_angles(x: np.ndarray, i, j, k, l) -> np.ndarray:
     """Dihedral angles (rad, -pi..pi) of many torsions i-j-k-l at once (index arrays)."""
     f, g, h = x[i] - x[j], x[j] - x[k], x[l] - x[k]
-    return _dihedral(cross_rows(f, g), cross_rows(h, g), g, np.sqrt((g * g).sum(-1)))
+    return _dihedral(cross_rows(f, g), cross_rows(h, g), h, np.sqrt((g * g).sum(-1)))
 
 
 def bend_b(x: np.ndarray, i: int, j: int, k: int) -> tuple[float, dict[int, np.ndarray]]:

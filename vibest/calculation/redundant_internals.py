@@ -15,7 +15,6 @@ from dataclasses import dataclass
 import numpy as np
 from ase.data import covalent_radii
 from ase.units import Bohr
-from scipy.sparse.csgraph import connected_components
 
 from ..internal_coordinates import bend_angles, bend_vectors, torsion_angles, torsion_angles_and_vectors
 
@@ -95,6 +94,21 @@ class InternalSet:
         return float(np.degrees(bend_angles(x, a[:, 0], a[:, 1], a[:, 2]).max())) if len(a) else 0.0
 
 
+def _first_fragment(bonded: np.ndarray) -> np.ndarray:
+    """Mask of the atoms connected to atom 0 (depth-first search; for the tens of atoms of a
+    molecule ~10x faster than scipy's connected_components, which converts to a sparse matrix)."""
+    neighbours = [np.flatnonzero(row).tolist() for row in bonded]
+    seen = np.zeros(len(bonded), dtype=bool)
+    seen[0] = True
+    stack = [0]
+    while stack:
+        for j in neighbours[stack.pop()]:
+            if not seen[j]:
+                seen[j] = True
+                stack.append(j)
+    return seen
+
+
 def connectivity(numbers, x: np.ndarray) -> list[tuple[int, int]]:
     """Bonded pairs by covalent radii; separate fragments joined by their closest atom pair."""
     radii = covalent_radii[np.asarray(numbers, int)] / Bohr
@@ -102,10 +116,9 @@ def connectivity(numbers, x: np.ndarray) -> list[tuple[int, int]]:
     bonded = d < BOND_FACTOR * (radii[:, None] + radii[None, :])
     np.fill_diagonal(bonded, False)
     while True:
-        count, label = connected_components(bonded, directed=False)
-        if count <= 1:
+        first = _first_fragment(bonded)
+        if first.all():
             break
-        first = label == label[0]
         sub = np.where(first[:, None] & ~first[None, :], d, np.inf)
         i, j = np.unravel_index(np.argmin(sub), sub.shape)
         bonded[i, j] = bonded[j, i] = True
