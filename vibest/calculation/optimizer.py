@@ -24,7 +24,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Callable, NamedTuple
 
 import numpy as np
-from scipy.linalg import lapack
+from scipy.linalg import blas, lapack
 
 from ..errors import InputError
 from ..rigid_body import rigid_body_basis, rigid_body_vectors
@@ -136,12 +136,16 @@ def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray, proj: np.nd
 
 
 def _bfgs(hess: np.ndarray, step: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """BFGS update of ``hess`` from a step and its gradient change (unchanged when s.y <= 0)."""
+    """BFGS update of ``hess`` (symmetric, C-ordered; updated in place and returned) from a step
+    and its gradient change (unchanged when s.y <= 0)."""
     sy = step @ y
     if sy <= 1e-10:
         return hess
     hs = hess @ step
-    return hess + np.outer(y, y) / sy - np.outer(hs, hs) / (step @ hs)
+    # two rank-one updates in place (BLAS dger): the transpose of a C-ordered symmetric matrix is
+    # the same matrix in Fortran order, so no copy is made
+    out = blas.dger(1.0 / sy, y, y, a=hess.T, overwrite_a=1)
+    return blas.dger(-1.0 / (step @ hs), hs, hs, a=out, overwrite_a=1).T
 
 
 def _clip(step: np.ndarray, trust: float) -> tuple[np.ndarray, float]:
@@ -229,7 +233,7 @@ class _InternalSteps:
 
     name = "internal"
     #: Back-transformation: iterations and convergence (RMS Cartesian change, Bohr).
-    BACK_ITERATIONS, BACK_TOL_BOHR = 25, 1e-6
+    BACK_ITERATIONS, BACK_TOL_BOHR = 25, 1e-5
 
     def __init__(self, internal: redundant_internals.InternalSet, numbers, x: np.ndarray, g: np.ndarray):
         self.ic = internal
