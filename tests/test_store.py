@@ -49,6 +49,31 @@ def test_key_changes_with_every_result_setting(tmp_path):
     assert len(keys) == 5
     # the worker count does not change the numbers, so it does not change the key
     assert store.key("OCC", dataclasses.replace(base, workers=7)) == store.key("CCO", base)
+    # explicit Cartesian displacements have a key of their own
+    assert store.key("CCO", dataclasses.replace(base, hessian_displacements="cartesian")) not in keys
+
+
+def test_records_stored_before_the_displacement_option_serve_default_requests(tmp_path):
+    """A store written before CalculationOptions had hessian_displacements (its keys hashed the
+    options without it) still answers default requests: the default displacements give the same
+    numbers to finite-difference noise (tests/test_pipeline.py), so a store is not recomputed."""
+    import hashlib
+    import json
+
+    from vibest.calculation.record import RECORD_VERSION
+    from vibest.store import CALCULATION_VERSION
+
+    rec = record_of("O")
+    store = RecordStore(tmp_path / "s.sqlite")
+    old_options = CalculationOptions().to_dict()
+    del old_options["hessian_displacements"]
+    canonical, inchikey = structure_identity("O")
+    payload = json.dumps({"smiles": canonical, "inchikey": inchikey, "options": old_options,
+                          "record_version": RECORD_VERSION, "calculation_version": CALCULATION_VERSION},
+                         sort_keys=True, default=str)
+    assert store.put("O", CalculationOptions(), rec) == hashlib.sha256(payload.encode()).hexdigest()
+    assert store.get("O", CalculationOptions()) is not None
+    assert store.get("O", CalculationOptions(hessian_displacements="cartesian")) is None
 
 
 def test_structure_identity_uses_standard_inchikey():

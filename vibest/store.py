@@ -184,9 +184,16 @@ class RecordStore:
     # -- keys ------------------------------------------------------------------------------
     @staticmethod
     def settings_of(options: CalculationOptions) -> dict:
-        """Everything in the key besides the structure."""
-        return {"options": options.to_dict(), "record_version": RECORD_VERSION,
-                "calculation_version": CALCULATION_VERSION}
+        """Everything in the key besides the structure.
+
+        The default Hessian displacements ("vibrational", 6N-12 gradients) give the numbers of
+        the 6N Cartesian ones to finite-difference noise, so they are left out of the key: records
+        stored before the option existed (all Cartesian) keep serving default requests, and a
+        store is not recomputed on upgrade. An explicit "cartesian" request has a key of its own."""
+        opts = options.to_dict()
+        if opts.get("hessian_displacements") == "vibrational":
+            del opts["hessian_displacements"]
+        return {"options": opts, "record_version": RECORD_VERSION, "calculation_version": CALCULATION_VERSION}
 
     def key(self, smiles: str, options: CalculationOptions) -> str:
         canonical, inchikey = structure_identity(smiles)
