@@ -205,6 +205,21 @@ def test_vibrational_displacements_equal_cartesian_ones(smiles, removed):
     np.testing.assert_allclose(a.intensities_km_mol, b.intensities_km_mol, rtol=2e-3, atol=0.3)
 
 
+def test_an_ion_on_an_engine_with_an_unknown_dipole_origin_gets_cartesian_displacements():
+    """The dipole of an ion depends on the origin it is measured from; the rigid-body formulas
+    assume the coordinate origin (tblite), so an engine that does not declare it falls back to
+    all 6N Cartesian displacements."""
+    mol = build_molecule("C[NH3+]")
+    x = mol.positions_angstrom / Bohr
+    eng = make_engine(mol.numbers, x, mol.charge)
+    ref = eng.evaluate(x)
+    eng.dipole_about_coordinate_origin = False
+    res = finite_difference_hessian(eng, mol.numbers, x, mol.charge, reference=ref)
+    assert res.displacements == "cartesian" and res.gradient_calls == 6 * mol.natoms
+    neutral = finite_difference_hessian(eng, mol.numbers, x, 0, reference=ref)  # the origin does not matter
+    assert neutral.displacements == "vibrational"
+
+
 def test_rigid_body_parts_of_the_hessian_match_finite_differences():
     """Away from a minimum (the embedded start geometry, gradients ~1e-2 Eh/Bohr) the
     rigid-body block of the Hessian is not zero; the formulas from the invariance of energy and
@@ -262,6 +277,7 @@ def test_predict_is_deterministic_and_reports_counts():
     np.testing.assert_allclose(a.wavenumbers_cm1, b.wavenumbers_cm1, rtol=0, atol=1e-6)
     t = a.record.timings
     assert t["hessian_gradients"] == 6 * 6 - 12 and t["optimization_gradients"] > 0  # methanol: 3N-6 directions
+    assert t["hessian_displacements"] == "vibrational"
     assert t["optimization_coordinates"] == "internal"
     d = a.to_dict()
     assert d["caution"] and d["versions"]["tblite"] and len(d["bands"]) == 12

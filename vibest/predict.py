@@ -311,6 +311,7 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
         timings["hessian_gradients"] += hes.gradient_calls
         timings["hessian_seconds"] += hes.seconds
         timings["hessian_workers"] = hes.workers
+        timings["hessian_displacements"] = hes.displacements
         modes = harmonic_analysis(numbers, x * Bohr, hes.hessian_hartree_bohr2)
         bad = [k for k in modes.imaginary if modes.wavenumbers_cm1[k] < -IMAGINARY_THRESHOLD_CM1]
         if not bad or attempt >= options.max_imaginary_retries:

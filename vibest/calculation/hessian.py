@@ -57,7 +57,8 @@ class HessianResult:
     seconds: float
     workers: int
     step_bohr: float
-    displacements: str = "cartesian"
+    #: The directions used: "vibrational" or "cartesian" (see the module docstring).
+    displacements: str
 
 
 def displacement_directions(positions_bohr, displacements: str = "vibrational") -> tuple[np.ndarray, np.ndarray]:
