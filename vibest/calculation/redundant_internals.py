@@ -51,12 +51,9 @@ class InternalSet:
         phi = torsion_angles(x, t[:, 0], t[:, 1], t[:, 2], t[:, 3]) if len(t) else np.zeros(0)
         return np.concatenate([r, bend_angles(x, a[:, 0], a[:, 1], a[:, 2]), phi])
 
-    def b_matrix(self, x: np.ndarray) -> np.ndarray:
-        """Wilson B matrix (size, 3N): derivatives of :meth:`values` by Cartesians (Bohr)."""
-        return self.values_and_b_matrix(x)[1]
-
     def values_and_b_matrix(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """:meth:`values` and the Wilson B matrix (size, 3N) from one pass over the primitives."""
+        """:meth:`values` and the Wilson B matrix (size, 3N; derivatives of the values by
+        Cartesians, Bohr) from one pass over the primitives."""
         n = len(x)
         out = np.zeros((self.size, n, 3))
         b, a, t = self.bonds, self.bends, self.torsions
