@@ -23,9 +23,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import measured_set  # noqa: E402
 
-from vibest.compare import DEFAULT_SCORE, SCORES, compare  # noqa: E402
+from vibest.comparison import DEFAULT_SCORE, SCORES, compare  # noqa: E402
 from vibest.measured import load_spectrum  # noqa: E402
-from vibest.predict import CalculationOptions, SpectrumOptions  # noqa: E402
+from vibest.pipeline import CalculationOptions, SpectrumOptions  # noqa: E402
 from vibest.ranking import predict_stored  # noqa: E402
 from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
 from vibest.store import RecordStore  # noqa: E402

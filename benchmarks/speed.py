@@ -45,7 +45,7 @@ from tblite.ase import TBLite
 from vibest.analysis.harmonic import harmonic_analysis
 from vibest.calculation.engine import calculation_threads, make_engine
 from vibest.calculation.hessian import default_workers, finite_difference_hessian
-from vibest.predict import CalculationOptions, compute_record
+from vibest.pipeline import CalculationOptions, compute_record
 from vibest.structure import build_molecule
 
 MOLECULES = [

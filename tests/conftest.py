@@ -6,7 +6,7 @@ import functools
 
 import pytest
 
-from vibest.predict import CalculationOptions, analyse, compute_record
+from vibest.pipeline import CalculationOptions, analyse, compute_record
 from vibest.structure import build_molecule
 
 

@@ -419,7 +419,7 @@ def test_region_model_scales_each_region_by_its_factor():
 
 
 def test_isotopologue_and_spectrum_use_the_chosen_scale_model():
-    from vibest.predict import SpectrumOptions, analyse, isotopologue
+    from vibest.pipeline import SpectrumOptions, analyse, isotopologue
 
     rec = record_of("CO")
     for name in (REGION, PER_COORDINATE):

@@ -10,7 +10,7 @@ from vibest.analysis.isotopes import isotopologue_masses
 from vibest.analysis.thermo import rotational_symmetry_number, thermochemistry
 from vibest.calculation.record import record_molecule
 from vibest.errors import InputError
-from vibest.predict import isotopologue, prediction_thermochemistry
+from vibest.pipeline import isotopologue, prediction_thermochemistry
 
 from .conftest import prediction_of, record_of
 

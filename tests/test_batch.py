@@ -22,7 +22,7 @@ from vibest.batch import predict_many
 from vibest.batch.pool import LocalPool
 from vibest.batch.task import run_task
 from vibest.cli import main
-from vibest.predict import CalculationOptions
+from vibest.pipeline import CalculationOptions
 from vibest.store import RecordStore
 
 SMALL = [("water", "O"), ("methanol", "CO"), ("formaldehyde", "C=O"), ("acetonitrile", "CC#N"),

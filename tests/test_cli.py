@@ -14,9 +14,12 @@ def run(*args):
     return CliRunner().invoke(main, list(args))
 
 
-@pytest.mark.parametrize("smiles", ["C1CC", "", "C(C", "[Na+].[Cl-]", "[U]"])
-def test_bad_input_exit_2_one_line(smiles):
-    res = subprocess.run([sys.executable, "-m", "vibest.cli", "predict", smiles, "-q"],
+@pytest.mark.parametrize("args", [["C1CC"], [""], ["C(C"], ["[Na+].[Cl-]"], ["[U]"], ["CC(=O) C"], ["CCO\u2603"],
+                                  ["C1C/C=C/C1"], ["[99CH4]"], ["CCO", "--isotope", "99Xx"],
+                                  ["CCO", "--isotope", "2Xx@1"]])
+def test_bad_input_exit_2_one_line(args):
+    # one line on stderr, no Python traceback and no C++ stack trace from RDKit
+    res = subprocess.run([sys.executable, "-m", "vibest.cli", "predict", *args, "-q", "--workers", "1"],
                          capture_output=True, text=True)
     assert res.returncode == 2
     lines = [l for l in res.stderr.splitlines() if l.strip()]
@@ -78,3 +81,18 @@ def test_the_demo_script_commands_run(tmp_path, monkeypatch):
         assert res.exit_code == 0, (args, res.output)
     assert (tmp_path / "out" / "demo" / "hx07-ranking.csv").exists()
     assert (tmp_path / "out" / "demo" / "hx07-2-butanone.png").exists()
+
+
+@pytest.mark.parametrize("args, message", [(["--isotope", "99Xx"], "unknown element"),
+                                           (["--isotope", "99C"], "no isotope 99C"),
+                                           (["--thermo", "--temperature", "-5"], "temperature"),
+                                           (["--thermo", "--pressure", "0"], "pressure")])
+def test_analysis_options_are_checked_before_any_calculation(monkeypatch, args, message):
+    import vibest.pipeline
+
+    def no_calculation(*a, **k):
+        raise AssertionError("computed before checking the options")
+
+    monkeypatch.setattr(vibest.pipeline, "predict", no_calculation)
+    res = run("predict", "CCO", "-q", *args)
+    assert res.exit_code == 2 and message in res.output, res.output

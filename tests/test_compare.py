@@ -6,7 +6,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from vibest.compare import compare, match_peaks, Peak, predicted_curve, score, SCORES
+from vibest.comparison import compare, match_peaks, Peak, predicted_curve, score, SCORES
 from vibest.measured import ABSORBANCE, MeasuredSpectrum, load_spectrum
 from vibest.ranking import Candidate, rank_candidates, read_candidates
 from vibest.spectrum import grid, line_shape_values

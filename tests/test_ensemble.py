@@ -6,7 +6,7 @@ from scipy import constants as sc
 
 from vibest.ensemble import EnsembleOptions, boltzmann_weights, predict_ensemble
 from vibest.errors import InputError
-from vibest.predict import CalculationOptions, predict
+from vibest.pipeline import CalculationOptions, predict
 
 from .conftest import prediction_of
 

@@ -10,7 +10,7 @@ from vibest.calculation.engine import EngineSettings, make_engine
 from vibest.calculation.hessian import finite_difference_hessian
 from vibest.calculation.optimizer import OptimizerSettings, optimize
 from vibest.calculation.record import HessianRecord
-from vibest.predict import CalculationOptions, analyse, compute_record, predict
+from vibest.pipeline import CalculationOptions, analyse, compute_record, predict
 from vibest.structure import build_molecule
 
 from .conftest import record_of
@@ -281,3 +281,20 @@ def test_predict_is_deterministic_and_reports_counts():
     assert t["optimization_coordinates"] == "internal"
     d = a.to_dict()
     assert d["caution"] and d["versions"]["tblite"] and len(d["bands"]) == 12
+
+
+def test_isotopes_written_in_the_smiles_are_used_and_kept_in_the_record(tmp_path):
+    # Harmonic O-D / O-H ratio of an O-H oscillator: sqrt(mu_OH / mu_OD) = 0.728 from the reduced
+    # masses (16*1.008/17.008 and 16*2.014/18.014 amu); alcohols show about 0.73-0.74 (from
+    # memory). The normal-isotope spectrum must not come back for "[2H]OCC".
+    plain = analyse(record_of("CCO"))
+    oh = max(b.wavenumber_cm1 for b in plain.bands)
+    record = record_of("[2H]OCC")
+    deuterated = analyse(record)
+    assert max(b.wavenumber_cm1 for b in deuterated.bands) < 3150  # no O-H stretch left; C-H on top
+    ratios = [b.wavenumber_cm1 / oh for b in deuterated.bands]
+    assert any(0.71 < r < 0.75 for r in ratios), ratios
+    path = tmp_path / "record.json"
+    record.save(path)
+    again = analyse(HessianRecord.load(path))
+    assert np.allclose(again.wavenumbers_cm1, deuterated.wavenumbers_cm1)

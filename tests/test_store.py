@@ -19,7 +19,7 @@ import pytest
 
 from vibest.calculation.engine import EngineSettings
 from vibest.errors import InputError
-from vibest.predict import CalculationOptions
+from vibest.pipeline import CalculationOptions
 from vibest.store import MIGRATIONS, SCHEMA_VERSION, RecordStore, _encode, structure_identity
 
 from .conftest import record_of
@@ -127,7 +127,7 @@ def test_failures_are_kept_until_success(tmp_path):
 
 WRITER = textwrap.dedent("""
     import dataclasses, pickle, sys
-    from vibest.predict import CalculationOptions
+    from vibest.pipeline import CalculationOptions
     from vibest.store import RecordStore
     path, rec_file, worker, count = sys.argv[1], sys.argv[2], int(sys.argv[3]), int(sys.argv[4])
     rec = pickle.load(open(rec_file, "rb"))

@@ -1,6 +1,6 @@
 """vibest: estimate infrared spectra from molecular structure and compare them with measured ones.
 
-Main entry points: :func:`vibest.predict` (SMILES -> :class:`vibest.predict.Prediction`) and
+Main entry points: :func:`vibest.predict` (SMILES -> :class:`vibest.pipeline.Prediction`) and
 :func:`vibest.analyse` (stored Hessian record -> prediction, no new gradients).
 The names are loaded on first use, so that light submodules (e.g. the Hessian worker processes)
 do not import RDKit, ASE or matplotlib.
@@ -12,15 +12,17 @@ __version__ = "0.1.0"
 
 from .errors import CalculationError, InputError, VibestError  # noqa: E402
 
-_LAZY = {"predict": "predict", "analyse": "predict", "compute_record": "predict", "Prediction": "predict",
-         "CAUTION": "predict", "isotopologue": "predict", "prediction_thermochemistry": "predict",
-         "compare": "compare", "rank_candidates": "ranking", "load_spectrum": "measured",
+#: public name -> submodule that defines it. No submodule shares a public name (``vibest.predict``
+#: is the function; the pipeline lives in ``vibest.pipeline``), so importing a submodule never
+#: replaces a public name of the package (tests/test_api.py calls each one twice).
+_LAZY = {"predict": "pipeline", "analyse": "pipeline", "compute_record": "pipeline", "Prediction": "pipeline",
+         "CalculationOptions": "pipeline", "SpectrumOptions": "pipeline",
+         "CAUTION": "pipeline", "isotopologue": "pipeline", "prediction_thermochemistry": "pipeline",
+         "HessianRecord": "calculation.record",
+         "compare": "comparison", "rank_candidates": "ranking", "load_spectrum": "measured",
          "predict_many": "batch", "RecordStore": "store"}
 
-__all__ = ["predict", "analyse", "compute_record", "Prediction", "CAUTION", "isotopologue",
-           "prediction_thermochemistry", "compare", "rank_candidates", "load_spectrum", "predict_many", "RecordStore",
-           "InputError",
-           "CalculationError", "VibestError", "__version__"]
+__all__ = [*_LAZY, "InputError", "CalculationError", "VibestError", "__version__"]
 
 
 def __getattr__(name: str):

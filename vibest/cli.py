@@ -123,7 +123,7 @@ def spectrum_options(f):
 
 
 def comparison_options(f):
-    from .compare import (DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER, DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_MAX_SHIFT_CM1,
+    from .comparison import (DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER, DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_MAX_SHIFT_CM1,
                           DEFAULT_SCORE, SCORES)
 
     for opt in reversed([
@@ -173,7 +173,7 @@ def _store(path, disabled: bool):
 
 def _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model="alpb"):
     from .calculation.engine import EngineSettings
-    from .predict import CalculationOptions
+    from .pipeline import CalculationOptions
 
     return CalculationOptions(seed=seed, largest_fragment=largest_fragment,
                               engine=EngineSettings(backend=backend, solvent=solvent, solvent_model=solvent_model),
@@ -181,7 +181,7 @@ def _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_mod
 
 
 def _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1=(400.0, 4000.0)):
-    from .predict import SpectrumOptions
+    from .pipeline import SpectrumOptions
 
     opts = SpectrumOptions(scale_factor=scale_factor, fwhm_cm1=fwhm, line_shape=line_shape,
                            range_cm1=tuple(range_cm1), scale_model=scale_model)
@@ -238,13 +238,14 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                     symmetry_number, conformers, max_conformers, energy_window, weighting, verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
-    from .predict import isotopologue, predict, prediction_thermochemistry
+    from .pipeline import isotopologue, predict, prediction_thermochemistry
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_output_path(plot_path, output.PLOT_FORMATS)
         for p in (csv_path, jcamp_path, bands_csv, json_path, record_path):
             _check_output_path(p)
+        _check_analysis_options(isotopes, temperature, pressure)
         if conformers:
             _predict_ensemble(smiles, progress, temperature=temperature, csv_path=csv_path, jcamp_path=jcamp_path,
                               json_path=json_path, plot_path=plot_path, transmittance=transmittance,
@@ -272,6 +273,18 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
             if path:
                 write(pred, path)
                 click.echo(f"wrote {path}", err=True)
+
+
+def _check_analysis_options(isotopes, temperature_K: float, pressure_Pa: float) -> None:
+    """Options used after the expensive stage, checked before it (a mistake costs no calculation)."""
+    from .analysis.isotopes import parse_isotope_spec
+
+    for spec in isotopes:
+        parse_isotope_spec(spec)
+    if not (0 < temperature_K < 1e5):
+        raise InputError(f"temperature {temperature_K} K must be above 0 (and below 1e5)")
+    if not (0 < pressure_Pa < 1e12):
+        raise InputError(f"pressure {pressure_Pa} Pa must be above 0")
 
 
 def _predict_ensemble(smiles, progress, *, temperature, csv_path, jcamp_path, json_path, plot_path, transmittance,
@@ -321,7 +334,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
                     line_shape, plot_path, json_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
-    from .compare import compare
+    from .comparison import compare
     from .measured import load_spectrum
     from .ranking import predict_stored
 
@@ -481,7 +494,7 @@ def batch_command(input_path, table_path, output_dir, seed, workers, largest_fra
 
     from .batch import predict_many, read_batch_input
     from .batch.run import write_batch_table
-    from .predict import CAUTION
+    from .pipeline import CAUTION
     from .store import RecordStore
 
     bar = BatchBar(enabled=not quiet)

@@ -30,7 +30,7 @@ from scipy import constants as sc
 from .calculation.engine import calculation_threads, make_engine
 from .calculation.optimizer import optimize
 from .errors import InputError
-from .predict import (CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record,
+from .pipeline import (CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record,
                       prediction_thermochemistry)
 from .spectrum import Spectrum
 from .structure import build_molecule, embed, molecule_from_conformer, parse_smiles

@@ -34,9 +34,10 @@ def band_contour_inputs(pred) -> tuple[float, np.ndarray]:
 
     member = pred.members[0].prediction if hasattr(pred, "members") else pred
     rec = member.record
-    b = effective_b_cm1(rec.numbers, rec.positions_angstrom)
+    masses = member.modes.masses_amu
+    b = effective_b_cm1(rec.numbers, rec.positions_angstrom, masses)
     dirs = member.modes.displacements.reshape(member.modes.count, -1) @ rec.dipole_derivatives_e
-    q = q_fractions(rec.numbers, rec.positions_angstrom, dirs, is_linear(rec.positions_angstrom))
+    q = q_fractions(rec.numbers, rec.positions_angstrom, dirs, is_linear(rec.positions_angstrom), masses_amu=masses)
     if hasattr(pred, "members"):
         q = np.concatenate([np.full(m.prediction.modes.count, q.mean() if len(q) else 0.0) for m in pred.members])
     return b, q
@@ -63,9 +64,9 @@ def rotational_constants_cm1(numbers, positions_angstrom, masses_amu=None) -> np
     return np.sort(np.where(moments > 1e-50, b, np.inf))[::-1]
 
 
-def effective_b_cm1(numbers, positions_angstrom) -> float:
+def effective_b_cm1(numbers, positions_angstrom, masses_amu=None) -> float:
     """One B for the envelope: the mean of the finite rotational constants (cm^-1)."""
-    b = rotational_constants_cm1(numbers, positions_angstrom)
+    b = rotational_constants_cm1(numbers, positions_angstrom, masses_amu)
     finite = b[np.isfinite(b)]
     return float(finite.mean()) if len(finite) else 0.0
 
@@ -80,7 +81,7 @@ def branch_profile(offsets_cm1, b_cm1: float, temperature_K: float = DEFAULT_TEM
 
 
 def q_fractions(numbers, positions_angstrom, dipole_derivatives_mode, linear: bool,
-                q_nonlinear: float = DEFAULT_Q_FRACTION) -> np.ndarray:
+                q_nonlinear: float = DEFAULT_Q_FRACTION, masses_amu=None) -> np.ndarray:
     """Fraction of each band's intensity in its Q branch (see module docstring).
 
     ``dipole_derivatives_mode``: (modes, 3) transition dipole directions in the molecule frame."""
@@ -90,7 +91,7 @@ def q_fractions(numbers, positions_angstrom, dipole_derivatives_mode, linear: bo
     from ase.data import atomic_masses
 
     x = np.asarray(positions_angstrom, dtype=float)
-    m = atomic_masses[np.asarray(numbers)]
+    m = atomic_masses[np.asarray(numbers)] if masses_amu is None else np.asarray(masses_amu, dtype=float)
     x = x - (m[:, None] * x).sum(0) / m.sum()
     axis = x[np.argmax(np.linalg.norm(x, axis=1))]
     axis = axis / np.linalg.norm(axis)

@@ -8,7 +8,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .predict import CAUTION, Prediction
+from .pipeline import CAUTION, Prediction
 
 #: Below this wavenumber chemists speak of the fingerprint region (common practice, no source).
 FINGERPRINT_BELOW_CM1 = 1500.0
@@ -129,7 +129,7 @@ def write_spectrum_jcamp(pred: Prediction, path: str | Path) -> None:
 
 
 def peak_table(comp) -> str:
-    """Plain-text peak-match table of a :class:`vibest.compare.Comparison`."""
+    """Plain-text peak-match table of a :class:`vibest.comparison.Comparison`."""
     lines = [f"{'measured':>9} {'height':>6}  {'predicted':>9} {'height':>6}  {'shift':>6}  {'region':<11}  character"]
     for m in comp.matches:
         meas = f"{m.measured_cm1:9.1f} {m.measured_height:6.2f}" if m.measured_cm1 is not None else f"{'-':>9} {'':>6}"

@@ -7,10 +7,10 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
-from .compare import DEFAULT_SCORE, SCORES, Comparison, compare
+from .comparison import DEFAULT_SCORE, SCORES, Comparison, compare
 from .errors import InputError, VibestError
 from .measured import MeasuredSpectrum
-from .predict import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record
+from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record
 from .store import RecordStore
 from .structure import build_molecule
 
@@ -117,7 +117,7 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
 
     A candidate that cannot be predicted is listed last with its error; it never stops the ranking.
-    ``compare_options`` go to :func:`vibest.compare.compare` (range_cm1, fit_scale, baseline, ...).
+    ``compare_options`` go to :func:`vibest.comparison.compare` (range_cm1, fit_scale, baseline, ...).
     """
     if not candidates:
         raise InputError("no candidate structures given")

@@ -9,7 +9,7 @@ fundamentals belong to the most stable conformer (trans 1,2-dichloroethane, Z fo
 from __future__ import annotations
 
 from .calculation.record import HessianRecord
-from .predict import CalculationOptions, compute_record
+from .pipeline import CalculationOptions, compute_record
 
 REFERENCE_OPTIONS = CalculationOptions(workers=1)
 

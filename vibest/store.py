@@ -29,7 +29,7 @@ from typing import Callable, Iterator
 
 from .calculation.record import RECORD_VERSION, HessianRecord
 from .errors import InputError
-from .predict import CalculationOptions
+from .pipeline import CalculationOptions
 
 #: Raised when a vibest release changes the numbers of the expensive stage for the same settings.
 CALCULATION_VERSION = 1

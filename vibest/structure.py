@@ -16,6 +16,8 @@ from .errors import InputError
 
 #: Elements GFN2-xTB is parametrised for (Z = 1-86).
 MAX_ATOMIC_NUMBER = 86
+#: Longest SMILES accepted (characters); far beyond any molecule vibest can compute.
+MAX_SMILES_CHARACTERS = 2000
 
 
 @dataclass(frozen=True)
@@ -32,6 +34,8 @@ class Molecule:
         symbols: element symbols.
         molblock: MDL molblock with H (keeps the atom order; used to rebuild RDKit objects).
         notes: human-readable remarks made while building the structure.
+        mass_numbers: per-atom mass numbers written in the SMILES (``[2H]``, ``[13CH3]``), 0 where
+            none was written; empty when the SMILES names no isotope at all.
     """
 
     smiles: str
@@ -43,10 +47,17 @@ class Molecule:
     symbols: tuple[str, ...]
     molblock: str = ""
     notes: tuple[str, ...] = field(default=())
+    mass_numbers: tuple[int, ...] = ()
 
     @property
     def natoms(self) -> int:
         return len(self.numbers)
+
+    @property
+    def masses_amu(self) -> np.ndarray:
+        """Atomic masses (amu): the isotope's mass where the SMILES names one, else the standard
+        atomic weight."""
+        return atomic_masses_amu(self.numbers, self.mass_numbers)
 
     @property
     def formula(self) -> str:
@@ -66,29 +77,105 @@ class Molecule:
         return dataclasses.replace(self, positions_angstrom=np.asarray(positions_angstrom, float).copy())
 
 
+def isotope_mass(z: int, mass_number: int) -> float:
+    """Mass (amu) of the isotope ``mass_number`` of element ``z`` (RDKit's periodic table);
+    InputError for an isotope the table does not know."""
+    from ase.data import chemical_symbols
+
+    symbol = chemical_symbols[int(z)] if 0 < int(z) < len(chemical_symbols) else f"element {z}"
+    m = 0.0
+    if 0 < int(z) <= MAX_ATOMIC_NUMBER and 0 < int(mass_number) < 400:
+        m = Chem.GetPeriodicTable().GetMassForIsotope(int(z), int(mass_number))
+    if m <= 0 or abs(m - mass_number) > 0.5:
+        raise InputError(f"no isotope {mass_number}{symbol} is known")
+    return float(m)
+
+
+def atomic_masses_amu(numbers, mass_numbers=()) -> np.ndarray:
+    """Masses (amu) of atoms ``numbers``: standard atomic weights (ase.data), or the isotope's
+    mass (:func:`isotope_mass`) where ``mass_numbers`` gives a non-zero mass number."""
+    from ase.data import atomic_masses
+
+    masses = np.array([atomic_masses[int(z)] for z in numbers], dtype=float)
+    for i, a in enumerate(mass_numbers):
+        if a:
+            masses[i] = isotope_mass(int(numbers[i]), int(a))
+    return masses
+
+
+def _check_text(smiles) -> str:
+    """The SMILES as a stripped string; refuses what RDKit would silently cut or misread.
+
+    RDKit reads a SMILES up to the first whitespace and takes the rest as a name, so
+    ``"CC(=O) C"`` would be acetaldehyde: a SMILES with inner whitespace or a non-ASCII character
+    is refused instead."""
+    if not isinstance(smiles, str):
+        raise InputError(f"a SMILES must be a string, not {type(smiles).__name__}")
+    text = smiles.strip()
+    if not text:
+        raise InputError("empty SMILES: give a structure such as 'CC(=O)C' (acetone)")
+    if len(text) > MAX_SMILES_CHARACTERS:
+        raise InputError(f"SMILES of {len(text)} characters: vibest takes at most {MAX_SMILES_CHARACTERS}")
+    for k, ch in enumerate(text):
+        if ch.isspace():
+            raise InputError(f"SMILES {text!r} contains whitespace at position {k + 1}: a SMILES has none "
+                             "(remove it, or quote a name separately)")
+        if not ch.isascii() or not ch.isprintable():
+            raise InputError(f"SMILES {text!r} contains the character {ch!r} at position {k + 1}, "
+                             "which no SMILES has")
+    return text
+
+
+def _requested_double_bond_stereo(text: str) -> int:
+    """Double bonds whose configuration the SMILES writes with / or \\ (read unsanitised, before
+    RDKit drops configurations it considers impossible, e.g. trans in rings of fewer than 8)."""
+    raw = Chem.MolFromSmiles(text, sanitize=False)
+    if raw is None:
+        return 0
+    count = 0
+    for bond in raw.GetBonds():
+        if bond.GetBondType() != Chem.BondType.DOUBLE:
+            continue
+        ends = [[b for b in bond.GetBeginAtom().GetBonds() if b.GetIdx() != bond.GetIdx()],
+                [b for b in bond.GetEndAtom().GetBonds() if b.GetIdx() != bond.GetIdx()]]
+        if all(any(b.GetBondDir() != Chem.BondDir.NONE for b in side) for side in ends):
+            count += 1
+    return count
+
+
+def _kept_double_bond_stereo(mol: Chem.Mol) -> int:
+    return sum(1 for b in mol.GetBonds() if b.GetStereo() != Chem.BondStereo.STEREONONE)
+
+
 def parse_smiles(smiles: str, largest_fragment: bool = False) -> tuple[Chem.Mol, list[str]]:
     """Validate a SMILES string and return the RDKit molecule (no H) and notes.
 
-    Raises :class:`InputError` with a one-line message for empty input, unparsable SMILES,
-    unsupported elements, or several fragments (unless ``largest_fragment`` is set).
+    Raises :class:`InputError` with a one-line message for empty input, whitespace or non-ASCII
+    characters inside the SMILES, unparsable SMILES, a double-bond configuration that cannot be
+    built (trans in a small ring), unsupported elements, or several fragments (unless
+    ``largest_fragment`` is set).
     """
     notes: list[str] = []
-    if smiles is None or not str(smiles).strip():
-        raise InputError("empty SMILES: give a structure such as 'CC(=O)C' (acetone)")
-    text = str(smiles).strip()
+    text = _check_text(smiles)
     RDLogger.DisableLog("rdApp.*")
     try:
         mol = Chem.MolFromSmiles(text)
+        requested = _requested_double_bond_stereo(text) if mol is not None and ("/" in text or "\\" in text) else 0
     finally:
         RDLogger.EnableLog("rdApp.*")
     if mol is None:
         raise InputError(f"invalid SMILES {text!r}: RDKit could not parse it (check brackets, ring closures, valences)")
+    if requested > _kept_double_bond_stereo(mol):
+        raise InputError(f"SMILES {text!r} gives a double-bond configuration that cannot be built (e.g. trans in "
+                         "a ring of fewer than 8 atoms); write the configuration that exists, or none")
     if mol.GetNumAtoms() == 0:
         raise InputError(f"SMILES {text!r} has no atoms")
     for atom in mol.GetAtoms():
         z = atom.GetAtomicNum()
         if z < 1 or z > MAX_ATOMIC_NUMBER:
             raise InputError(f"unsupported element {atom.GetSymbol()!r} in {text!r}: GFN2-xTB covers H to Rn (Z 1-86)")
+        if atom.GetIsotope():
+            isotope_mass(z, atom.GetIsotope())
     frags = Chem.GetMolFrags(mol, asMols=True, sanitizeFrags=True)
     if len(frags) > 1:
         if not largest_fragment:
@@ -167,6 +254,12 @@ def build_molecule(smiles: str, seed: int = 0xB1B, largest_fragment: bool = Fals
 def molecule_from_conformer(mol_noh: Chem.Mol, mol_h: Chem.Mol, conf_id: int, notes=()) -> Molecule:
     """:class:`Molecule` of conformer ``conf_id`` of ``mol_h`` (``mol_noh`` gives SMILES, charge, spin)."""
     charge, uhf = charge_and_uhf(mol_noh)
+    mass_numbers = tuple(int(a.GetIsotope()) for a in mol_h.GetAtoms())
+    if any(mass_numbers):
+        labelled = sorted({f"{a.GetIsotope()}{a.GetSymbol()}" for a in mol_h.GetAtoms() if a.GetIsotope()})
+        notes = tuple(notes) + (f"isotopes from the SMILES ({', '.join(labelled)}): their masses are used",)
+    else:
+        mass_numbers = ()
     return Molecule(
         smiles=Chem.MolToSmiles(mol_noh),
         numbers=np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()], dtype=int),
@@ -177,6 +270,7 @@ def molecule_from_conformer(mol_noh: Chem.Mol, mol_h: Chem.Mol, conf_id: int, no
         symbols=tuple(a.GetSymbol() for a in mol_h.GetAtoms()),
         molblock=Chem.MolToMolBlock(mol_h, confId=conf_id),
         notes=tuple(notes),
+        mass_numbers=mass_numbers,
     )
 
 

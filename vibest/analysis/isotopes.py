@@ -14,62 +14,87 @@ import re
 from dataclasses import dataclass
 
 import numpy as np
-from rdkit import Chem
+from ase.data import atomic_numbers, chemical_symbols
 from scipy.optimize import linear_sum_assignment
 
 from ..errors import InputError
+from ..structure import isotope_mass
 from .harmonic import HarmonicModes, default_masses
 
 _ITEM = re.compile(r"^(\d+)([A-Z][a-z]?)(?:@(\d+))?$")
 
 
-def isotope_mass(z: int, mass_number: int) -> float:
-    table = Chem.GetPeriodicTable()
-    m = table.GetMassForIsotope(int(z), int(mass_number))
-    if m <= 0 or abs(m - mass_number) > 0.5:
-        raise InputError(f"no isotope {mass_number}{table.GetElementSymbol(int(z))} is known")
-    return float(m)
+@dataclass(frozen=True)
+class Substitution:
+    """One item of an isotope specification: ``kind`` is "exchangeable-H" (every H on N, O or S
+    becomes D), "all-H" (every H becomes D), or "element" (``atomic_number`` becomes the isotope
+    ``mass_number``, on atom ``atom`` (0-based) only, or on every such atom when ``atom`` is None)."""
+
+    text: str
+    kind: str
+    atomic_number: int = 1
+    mass_number: int = 2
+    atom: int | None = None
+
+    @property
+    def mass_amu(self) -> float:
+        return isotope_mass(self.atomic_number, self.mass_number)
 
 
-def isotopologue_masses(numbers, bonds, spec: str) -> np.ndarray:
-    """Masses (amu) for the substitutions in ``spec`` (see module docstring)."""
-    numbers = np.asarray(numbers, int)
-    masses = default_masses(numbers)
-    if not spec or not spec.strip():
+def parse_isotope_spec(spec: str) -> tuple[Substitution, ...]:
+    """Read a specification (see module docstring) without a molecule: syntax, element and
+    isotope are checked here, so that a mistake is reported before any calculation."""
+    if not isinstance(spec, str) or not spec.strip():
         raise InputError("empty isotope specification; e.g. 'D', '13C@2', '18O'")
-    neighbours: dict[int, set[int]] = {i: set() for i in range(len(numbers))}
-    for i, j, _ in bonds:
-        neighbours[int(i)].add(int(j))
-        neighbours[int(j)].add(int(i))
-    table = Chem.GetPeriodicTable()
+    out = []
     for item in (t.strip() for t in spec.split(",")):
         if item in ("D", "D-exchangeable"):
-            hits = [i for i in range(len(numbers)) if numbers[i] == 1 and any(numbers[n] in (7, 8, 16) for n in neighbours[i])]
-            if not hits:
-                raise InputError("'D': the molecule has no exchangeable (N-H, O-H, S-H) hydrogen")
-            masses[hits] = isotope_mass(1, 2)
+            out.append(Substitution(item, "exchangeable-H"))
             continue
         if item == "D-all":
-            masses[numbers == 1] = isotope_mass(1, 2)
+            out.append(Substitution(item, "all-H"))
             continue
         m = _ITEM.match(item)
         if not m:
             raise InputError(f"cannot read isotope {item!r}; write e.g. D, D-all, 13C@2, 18O")
         mass_number, symbol, atom = int(m.group(1)), m.group(2), m.group(3)
-        try:
-            z = table.GetAtomicNumber(symbol)
-        except RuntimeError:
-            raise InputError(f"unknown element {symbol!r} in {item!r}") from None
-        mass = isotope_mass(z, mass_number)
-        if atom is not None:
-            k = int(atom) - 1
-            if not 0 <= k < len(numbers) or numbers[k] != z:
-                raise InputError(f"{item!r}: atom {atom} is not a {symbol} atom of this molecule")
-            masses[k] = mass
+        z = atomic_numbers.get(symbol, 0)  # not RDKit's table: it prints a C++ trace for unknown symbols
+        if z < 1:
+            raise InputError(f"unknown element {symbol!r} in {item!r}")
+        if atom is not None and int(atom) < 1:
+            raise InputError(f"{item!r}: atoms are numbered from 1")
+        sub = Substitution(item, "element", z, mass_number, None if atom is None else int(atom) - 1)
+        sub.mass_amu  # noqa: B018 - raises InputError for an unknown isotope
+        out.append(sub)
+    return tuple(out)
+
+
+def isotopologue_masses(numbers, bonds, spec: str, base_masses_amu=None) -> np.ndarray:
+    """Masses (amu) for the substitutions in ``spec`` (see module docstring), applied to
+    ``base_masses_amu`` (default: standard atomic weights)."""
+    numbers = np.asarray(numbers, int)
+    masses = default_masses(numbers) if base_masses_amu is None else np.array(base_masses_amu, dtype=float)
+    neighbours: dict[int, set[int]] = {i: set() for i in range(len(numbers))}
+    for i, j, _ in bonds:
+        neighbours[int(i)].add(int(j))
+        neighbours[int(j)].add(int(i))
+    for sub in parse_isotope_spec(spec):
+        if sub.kind == "exchangeable-H":
+            hits = [i for i in range(len(numbers)) if numbers[i] == 1 and any(numbers[n] in (7, 8, 16) for n in neighbours[i])]
+            if not hits:
+                raise InputError("'D': the molecule has no exchangeable (N-H, O-H, S-H) hydrogen")
+            masses[hits] = sub.mass_amu
+        elif sub.kind == "all-H":
+            masses[numbers == 1] = sub.mass_amu
+        elif sub.atom is not None:
+            if not sub.atom < len(numbers) or numbers[sub.atom] != sub.atomic_number:
+                raise InputError(f"{sub.text!r}: atom {sub.atom + 1} is not a {chemical_symbols[sub.atomic_number]} "
+                                 "atom of this molecule")
+            masses[sub.atom] = sub.mass_amu
         else:
-            if not np.any(numbers == z):
-                raise InputError(f"{item!r}: the molecule has no {symbol} atom")
-            masses[numbers == z] = mass
+            if not np.any(numbers == sub.atomic_number):
+                raise InputError(f"{sub.text!r}: the molecule has no {chemical_symbols[sub.atomic_number]} atom")
+            masses[numbers == sub.atomic_number] = sub.mass_amu
     return masses
 
 

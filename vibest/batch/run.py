@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Callable, Iterable
 
 from ..errors import InputError, VibestError
-from ..predict import CAUTION, CalculationOptions, SpectrumOptions, analyse
+from ..pipeline import CAUTION, CalculationOptions, SpectrumOptions, analyse
 from ..ranking import Candidate, read_candidates
 from ..store import RecordStore, structure_identity
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 from ..calculation.record import HessianRecord
 from ..errors import VibestError
-from ..predict import CalculationOptions
+from ..pipeline import CalculationOptions
 
 
 @dataclass(frozen=True)
@@ -29,7 +29,7 @@ class TaskOutcome:
 
 def run_task(job_id: int, smiles: str, options: CalculationOptions) -> TaskOutcome:
     """Build the molecule of ``smiles`` and compute its record with ``options`` (one core)."""
-    from ..predict import compute_record
+    from ..pipeline import compute_record
     from ..structure import build_molecule
 
     t0 = time.perf_counter()

@@ -32,6 +32,8 @@ class HessianRecord:
         timings: counts and seconds per stage (JSON-able).
         molblock: MDL molblock with H in the record's atom order (bond types, formal charges), or "".
         notes: remarks of the calculation for the user (fragment choice, retries, non-convergence).
+        mass_numbers: per-atom mass numbers the structure names (0: none), or empty when it names
+            no isotope; :attr:`masses_amu` gives the masses the analysis uses.
     """
 
     smiles: str
@@ -48,10 +50,18 @@ class HessianRecord:
     timings: dict = field(default_factory=dict)
     molblock: str = ""
     notes: tuple[str, ...] = ()
+    mass_numbers: tuple[int, ...] = ()
 
     @property
     def natoms(self) -> int:
         return len(self.numbers)
+
+    @property
+    def masses_amu(self) -> np.ndarray:
+        """Atomic masses (amu): isotopes named by the structure, else standard atomic weights."""
+        from ..structure import atomic_masses_amu
+
+        return atomic_masses_amu(self.numbers, self.mass_numbers)
 
     def to_dict(self) -> dict:
         return {
@@ -71,7 +81,7 @@ class HessianRecord:
             "timings": self.timings,
             "molblock": self.molblock,
             "notes": list(self.notes),
-        }
+        } | ({"mass_numbers": list(self.mass_numbers)} if any(self.mass_numbers) else {})
 
     @classmethod
     def from_dict(cls, d: dict) -> "HessianRecord":
@@ -94,6 +104,7 @@ class HessianRecord:
             timings=dict(d.get("timings", {})),
             molblock=str(d.get("molblock", "")),
             notes=tuple(str(n) for n in d.get("notes", ())),
+            mass_numbers=tuple(int(a) for a in d.get("mass_numbers", ())),
         )
 
     def save(self, path: str | Path) -> None:

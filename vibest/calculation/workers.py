@@ -5,7 +5,7 @@ OpenMP/BLAS thread, so N workers use N cores without over-subscription. Workers 
 the caller's main script (unlike multiprocessing's spawn), so they are safe from any script.
 
 The pool lives for the whole process: the first Hessian (or :func:`prestart`, which
-:func:`vibest.predict.compute_record` calls right after the first gradient when the Hessian is
+:func:`vibest.pipeline.compute_record` calls right after the first gradient when the Hessian is
 expected to be long enough) starts the workers, and every later Hessian reuses them, so their
 start-up (importing tblite, ~0.3 s on the benchmark machine) is paid once and overlaps the
 optimisation; while a worker is still starting, the calling process computes displacements

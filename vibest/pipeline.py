@@ -329,7 +329,7 @@ def _compute_record(molecule: Molecule, options: CalculationOptions,
         hessian_hartree_bohr2=hes.hessian_hartree_bohr2, dipole_e_bohr=ev.dipole_e_bohr,
         dipole_derivatives_e=hes.dipole_derivatives_e,
         settings=options.to_dict() | {"converged": bool(opt.converged)}, timings=timings,
-        molblock=molecule.molblock, notes=tuple(molecule.notes) + tuple(notes),
+        molblock=molecule.molblock, notes=tuple(molecule.notes) + tuple(notes), mass_numbers=molecule.mass_numbers,
     )
     return record, bool(opt.converged), notes
 
@@ -338,8 +338,12 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
             masses_amu=None, notes: tuple[str, ...] = ()) -> Prediction:
     """Turn a Hessian record into bands and a spectrum (no gradients are computed).
 
-    The prediction's notes are the record's notes followed by ``notes``."""
+    ``masses_amu`` (N,) replaces the record's masses (:attr:`HessianRecord.masses_amu`: isotopes
+    named in the SMILES, else standard atomic weights). The prediction's notes are the record's
+    notes followed by ``notes``."""
     options.validate()
+    if masses_amu is None:
+        masses_amu = record.masses_amu
     scale = options.resolve_scale()
     space = InternalSpace.build(record.positions_angstrom, record.bonds)
     if scale.per_coordinate:
@@ -435,7 +439,7 @@ def isotopologue(parent: Prediction, spec: str, options: SpectrumOptions | None 
     from .analysis.isotopes import band_shifts, isotopologue_masses
 
     rec = parent.record
-    masses = isotopologue_masses(rec.numbers, rec.bonds, spec)
+    masses = isotopologue_masses(rec.numbers, rec.bonds, spec, base_masses_amu=rec.masses_amu)
     opts = options or SpectrumOptions(fwhm_cm1=parent.spectrum.fwhm_cm1, line_shape=parent.spectrum.line_shape,
                                       scale_factor=parent.scale.factor if parent.scale.name == "user" else None,
                                       scale_model=None if parent.scale.name == "user" else parent.scale.name)

@@ -26,7 +26,7 @@ from scipy import optimize, signal, stats
 
 from .errors import InputError
 from .measured import MeasuredSpectrum, preprocess
-from .predict import Prediction
+from .pipeline import Prediction
 from .spectrum import broaden, grid, line_shape_values
 
 SCORES = ("pearson", "spearman", "cosine", "overlap", "regional")

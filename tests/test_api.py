@@ -1,0 +1,67 @@
+"""The public API as the README shows it: every public name stays what it is after use, and a
+screening loop over several molecules runs in one process (issue: the second call of
+``vibest.predict`` used to raise "'module' object is not callable")."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _run(code: str) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300, cwd=ROOT)
+
+
+def test_every_public_name_is_stable_after_every_submodule_is_imported():
+    # A fresh interpreter: import order decides whether a submodule shadows a public name.
+    code = """
+import importlib, pkgutil, vibest
+before = {name: getattr(vibest, name) for name in vibest.__all__}
+for info in pkgutil.walk_packages(vibest.__path__, "vibest."):
+    if not info.name.endswith("worker_main"):
+        importlib.import_module(info.name)
+changed = [n for n in vibest.__all__ if getattr(vibest, n) is not before[n]]
+print("changed:", changed)
+assert not changed, changed
+"""
+    res = _run(code)
+    assert res.returncode == 0, res.stdout + res.stderr
+
+
+def test_predict_and_compare_called_twice_in_one_process(tmp_path):
+    # the README's calls, each twice; compare against the prediction's own curve written as CSV
+    code = f"""
+import vibest
+for _ in range(2):
+    pred = vibest.predict("O", workers=1)
+    assert callable(vibest.predict) and callable(vibest.compare)
+path = {str(tmp_path / "water.csv")!r}
+with open(path, "w") as fh:
+    fh.write("wavenumber,absorbance\\n")
+    for x, y in zip(pred.spectrum.wavenumbers_cm1, pred.spectrum.absorbance_normalised):
+        fh.write(f"{{x}},{{y}}\\n")
+for _ in range(2):
+    spec = vibest.load_spectrum(path, kind="absorbance")
+    comp = vibest.compare(pred, spec, fit_shift=False)
+    assert comp.score > 0.99, comp.score
+again = vibest.analyse(pred.record, vibest.SpectrumOptions(fwhm_cm1=8.0))
+assert isinstance(again, vibest.Prediction)
+print("ok")
+"""
+    res = _run(code)
+    assert res.returncode == 0 and "ok" in res.stdout, res.stdout + res.stderr
+
+
+@pytest.mark.slow
+def test_screening_loop_example_runs():
+    res = subprocess.run([sys.executable, str(ROOT / "examples" / "screening_loop.py")], capture_output=True,
+                         text=True, timeout=300, cwd=ROOT)
+    assert res.returncode == 0, res.stderr
+    lines = [line for line in res.stdout.splitlines() if "cm^-1" in line]
+    assert len(lines) == 3, res.stdout  # three molecules in one process, each predicted
+    assert "caution" in res.stdout
