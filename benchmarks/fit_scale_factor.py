@@ -34,10 +34,14 @@ from vibest.analysis.calibration import (cross_validated_mad, error_statistics, 
                                          fit_uniform, pooled, predicted_wavenumbers, prepare_case, reference_molecules,
                                          split_train_test)
 from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM, ScaleModel
-from vibest.reference_records import reference_record
+from vibest.calculation.driver import calculation_options
+from vibest.calculation.methods import parse_level
+from vibest.reference_records import REFERENCE_OPTIONS, reference_record
 
 
-def compute_cases(verbose: bool = True, cache: Path | None = None):
+def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFERENCE_OPTIONS):
+    """Assigned cases of every reference molecule; records are kept in ``cache`` (a pickle,
+    written after each new molecule, so that an interrupted run resumes)."""
     records = {}
     if cache and cache.exists():
         records = pickle.loads(cache.read_bytes())
@@ -45,7 +49,9 @@ def compute_cases(verbose: bool = True, cache: Path | None = None):
     for ref in reference_molecules():
         t0 = time.perf_counter()
         if ref.smiles not in records:
-            records[ref.smiles] = reference_record(ref.smiles)
+            records[ref.smiles] = reference_record(ref.smiles, options)
+            if cache:
+                cache.write_bytes(pickle.dumps(records))
         case = prepare_case(ref, records[ref.smiles])
         if verbose:
             a = case.assignment
@@ -76,13 +82,17 @@ def stats(cases, model):
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--write", action="store_true", help="update vibest/data/scale_factors.json")
+    ap.add_argument("--write", action="store_true", help="update the method's file in vibest/data (scale_factors*.json)")
+    ap.add_argument("--method", default="gfn2", help="level whose Hessians are scaled (gfn2, gfn1, b3lyp)")
     ap.add_argument("--records", type=Path, default=None, help="pickle file to keep computed records between runs")
     ap.add_argument("--cv", action="store_true",
                     help="also print the per-coordinate model's 4-fold cross-validated MAD over the training "
                          "molecules (the figure to choose coordinate types by; ~2 min)")
     args = ap.parse_args()
-    cases = compute_cases(cache=args.records)
+    level = parse_level(args.method)
+    options = REFERENCE_OPTIONS if level.key == "gfn2" else calculation_options(args.method, workers=None if
+                                                                               level.uses_dft else 1)
+    cases = compute_cases(cache=args.records, options=options)
     train, test, models = fit_models(cases)
     n_rows = sum(len(c.reference.fundamentals_cm1) for c in cases)
     n_pairs = sum(len(c.assignment.rows) for c in cases)
@@ -143,7 +153,9 @@ def main() -> None:
     default = min(candidates, key=lambda n: table[(n, "held-out")]["mad_cm1"])
     print(f"\ndefault model by held-out MAD: {default}")
     if args.write:
-        path = Path(__file__).resolve().parents[1] / "vibest" / "data" / "scale_factors.json"
+        from vibest.analysis.scaling import SCALE_FILES
+
+        path = Path(__file__).resolve().parents[1] / "vibest" / "data" / SCALE_FILES[options.engine.method]
 
         def summary(name):
             return {"train_mad_cm1": round(table[(name, "train")]["mad_cm1"], 1),
@@ -152,7 +164,7 @@ def main() -> None:
 
         out = {
             "default": default,
-            "method": "GFN2-xTB (tblite), vibest default settings; modes assigned by symmetry class and character",
+            "method": f"{options.engine.method}, vibest default settings; modes assigned by symmetry class and character",
             "script": "benchmarks/fit_scale_factor.py",
             "uniform": {"factor": round(models[UNIFORM].factor, 5), "fundamentals": table[(UNIFORM, "train")]["count"],
                         "molecules": len(train), **summary(UNIFORM)},

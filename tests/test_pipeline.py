@@ -64,6 +64,22 @@ def test_molecules_outside_the_internal_set_are_optimised_in_cartesians(smiles):
     assert res.converged and res.coordinates == "cartesian"
 
 
+def test_an_exactly_planar_start_without_out_of_plane_coordinates_uses_cartesians():
+    """Formaldehyde's set (bonds and bends) cannot move atoms out of the plane when the molecule
+    is exactly planar (as an optimised minimum is): its internal steps came out thousands of Bohr
+    long. Started from a planar geometry with a stretched C=O bond, the optimiser must use
+    Cartesians and converge in a few gradients."""
+    mol = build_molecule("C=O")
+    x = mol.positions_angstrom / Bohr
+    engine = make_engine(mol.numbers, x)
+    x = optimize(engine, mol.numbers, x).positions_bohr
+    centre = x[0]
+    x = x - centre
+    x[1] *= 1.03  # the O atom: C=O 3 % longer, the molecule exactly as planar as before
+    res = optimize(engine, mol.numbers, x + centre)
+    assert res.converged and res.coordinates == "cartesian" and res.gradient_calls < 15
+
+
 def test_a_geometry_that_becomes_linear_switches_to_cartesians():
     """HCN started with a 150 degree bend: the bend straightens (HCN is linear: common practice,
     no source), the internal set stops describing it, and the optimiser finishes in Cartesians."""

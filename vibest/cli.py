@@ -95,18 +95,37 @@ def _user_errors(progress: ProgressLine | None = None):
         _fail("interrupted", 130)
 
 
+#: Options of calculation_options, turned into one ``calc`` argument (CalculationOptions).
+_CALCULATION_KEYS = ("method", "seed", "workers", "largest_fragment", "backend", "solvent", "solvent_model",
+                     "memory", "force")
+
+
 def calculation_options(f):
-    """Options that change the computed Hessian."""
+    """Options that change the computed Hessian (and the resources of a DFT calculation); the
+    command receives them as ``calc_values``, a dict for :func:`_calc_options`."""
+    @functools.wraps(f)
+    def wrapper(*args, **kwargs):
+        kwargs["calc_values"] = {k: kwargs.pop(k) for k in _CALCULATION_KEYS}
+        return f(*args, **kwargs)
+
     for opt in reversed([
+        click.option("--method", default="gfn2", show_default=True, metavar="METHOD",
+                     help="Level of theory: gfn2, gfn1, b3lyp (DFT: minutes), or positions+intensities such as "
+                          "gfn2+b3lyp (list: vibest methods)."),
         click.option("--seed", type=int, default=0xB1B, show_default=True, help="3D embedding seed."),
-        click.option("--workers", type=click.IntRange(min=1), default=None, help="Parallel workers for the Hessian [all cores]."),
+        click.option("--workers", type=click.IntRange(min=1), default=None,
+                     help="Parallel workers for the Hessian, or DFT threads [all cores]."),
         click.option("--largest-fragment", is_flag=True, help="For salts/mixtures, keep only the largest fragment."),
-        click.option("--backend", type=click.Choice(["tblite", "xtb"]), default="tblite", show_default=True),
+        click.option("--backend", type=click.Choice(["tblite", "xtb"]), default="tblite", show_default=True,
+                     help="Library for the tight-binding methods."),
         click.option("--solvent", default=None, help="Implicit solvent (e.g. water; list: vibest solvents); default gas phase."),
         click.option("--solvent-model", type=click.Choice(["alpb", "cpcm"]), default="alpb", show_default=True),
+        click.option("--memory", type=click.IntRange(min=1), default=4000, show_default=True, metavar="MB",
+                     help="Memory a DFT calculation may use."),
+        click.option("--force", is_flag=True, help="Run a DFT calculation even when it is estimated to take hours."),
     ]):
-        f = opt(f)
-    return f
+        wrapper = opt(wrapper)
+    return wrapper
 
 
 def spectrum_options(f):
@@ -171,13 +190,12 @@ def _store(path, disabled: bool):
     return None if disabled else RecordStore(path)
 
 
-def _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model="alpb"):
-    from .calculation.engine import EngineSettings
-    from .pipeline import CalculationOptions
+def _calc_options(method="gfn2", seed=0xB1B, workers=None, largest_fragment=False, backend="tblite", solvent=None,
+                  solvent_model="alpb", memory=4000, force=False):
+    from .calculation.driver import calculation_options as build
 
-    return CalculationOptions(seed=seed, largest_fragment=largest_fragment,
-                              engine=EngineSettings(backend=backend, solvent=solvent, solvent_model=solvent_model),
-                              workers=workers)
+    return build(method, seed=seed, largest_fragment=largest_fragment, backend=backend, solvent=solvent,
+                 solvent_model=solvent_model, workers=workers, memory_mb=memory, allow_long=force)
 
 
 def _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1=(400.0, 4000.0)):
@@ -233,12 +251,12 @@ def main() -> None:
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
-                    range_cm1, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
+                    range_cm1, calc_values, scale_factor, scale_model, fwhm,
                     line_shape, min_intensity, isotopes, thermo, temperature, pressure, quasi_harmonic,
                     symmetry_number, conformers, max_conformers, energy_window, weighting, verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
-    from .pipeline import isotopologue, predict, prediction_thermochemistry
+    from .pipeline import isotopologue, predict_with, prediction_thermochemistry
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
@@ -249,14 +267,12 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
         if conformers:
             _predict_ensemble(smiles, progress, temperature=temperature, csv_path=csv_path, jcamp_path=jcamp_path,
                               json_path=json_path, plot_path=plot_path, transmittance=transmittance,
-                              calc=_calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model),
+                              calc=_calc_options(**calc_values),
                               spec=_spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
                               max_conformers=max_conformers, energy_window=energy_window, weighting=weighting)
             return
-        pred = predict(smiles, seed=seed, largest_fragment=largest_fragment, scale_factor=scale_factor,
-                       scale_model=scale_model, fwhm_cm1=fwhm, line_shape=line_shape, range_cm1=range_cm1,
-                       workers=workers, backend=backend, solvent=solvent, solvent_model=solvent_model,
-                       progress=progress)
+        pred = predict_with(smiles, _calc_options(**calc_values),
+                            _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1), progress=progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
         for spec in isotopes:
@@ -330,7 +346,7 @@ def solvents_command() -> None:
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, max_shift, baseline,
-                    tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model, fwhm,
+                    tolerance, phase, intensity_power, calc_values, scale_factor, scale_model, fwhm,
                     line_shape, plot_path, json_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
@@ -343,7 +359,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         _check_output_path(plot_path, output.PLOT_FORMATS)
         _check_output_path(json_path)
         spec = load_spectrum(measured, kind=y_kind, block=block)
-        calc = _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model)
+        calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
         pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
@@ -380,7 +396,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
-                 max_shift, baseline, tolerance, phase, intensity_power, seed, workers, largest_fragment, backend, solvent, solvent_model, scale_factor, scale_model,
+                 max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor, scale_model,
                  fwhm, line_shape, csv_path, json_path, plot_dir, top, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
@@ -397,7 +413,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         if not cands:
             raise InputError("give candidate SMILES as arguments or with --candidates-file")
         spec = load_spectrum(measured, kind=y_kind, block=block)
-        calc = _calc_options(seed, workers, largest_fragment, backend, solvent, solvent_model)
+        calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
 
         def report(done, total, name):
@@ -481,7 +497,7 @@ def _clock(seconds: float) -> str:
               help="Run on a Dask cluster (e.g. tcp://host:8786) instead of local processes.")
 @click.option("--retry-failed", is_flag=True, help="Compute again molecules whose failure is in the store.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
-def batch_command(input_path, table_path, output_dir, seed, workers, largest_fragment, backend, solvent, solvent_model,
+def batch_command(input_path, table_path, output_dir, calc_values,
                   scale_factor, scale_model, fwhm, line_shape, store_path, no_store, scheduler, retry_failed,
                   quiet) -> None:
     """Predict every molecule of INPUT (one 'SMILES [name]' per line, or CSV with smiles,name columns).
@@ -502,7 +518,8 @@ def batch_command(input_path, table_path, output_dir, seed, workers, largest_fra
         molecules = read_batch_input(input_path)
         table = Path(table_path) if table_path else Path(input_path).with_suffix(".vibest.csv")
         _check_output_path(str(table))
-        calc = _calc_options(seed, None, largest_fragment, backend, solvent, solvent_model)
+        calc = _calc_options(**(calc_values | {"workers": None}))
+        workers = calc_values["workers"] or (1 if calc.uses_dft else None)  # a DFT molecule takes every core
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
         tmp = None
         if no_store:

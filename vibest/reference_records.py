@@ -4,6 +4,8 @@ A rigid molecule is computed from its seeded embedding. A flexible one (rotatabl
 O-H/N-H/S-H rotor) is computed in its lowest GFN2-xTB conformer: the conformer search of
 :func:`vibest.ensemble.predict_ensemble` with an energy window of 0, because tabulated gas-phase
 fundamentals belong to the most stable conformer (trans 1,2-dichloroethane, Z formic acid, ...).
+At a density-functional level the molecule is computed from that GFN2-xTB record's geometry
+(re-optimised at the level itself), so every level describes the same conformer.
 """
 
 from __future__ import annotations
@@ -16,9 +18,14 @@ REFERENCE_OPTIONS = CalculationOptions(workers=1)
 
 def reference_record(smiles: str, options: CalculationOptions = REFERENCE_OPTIONS) -> HessianRecord:
     """Record of the most stable conformer of ``smiles`` (see module docstring)."""
+    from .calculation.record import structure_of_record
     from .ensemble import EnsembleOptions, predict_ensemble, rotor_count
     from .structure import build_molecule, parse_smiles
 
+    if options.uses_dft:
+        base = reference_record(smiles, REFERENCE_OPTIONS)
+        record, _, _ = compute_record(structure_of_record(base), options)
+        return record
     if rotor_count(parse_smiles(smiles)[0]) == 0:
         record, _, _ = compute_record(build_molecule(smiles, seed=options.seed), options)
         return record

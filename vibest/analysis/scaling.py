@@ -370,57 +370,72 @@ def type_family(coordinate_type: str) -> str | None:
     return FAMILY_SINGLE
 
 
-def _shipped() -> dict:
-    return json.loads(resources.files("vibest.data").joinpath("scale_factors.json").read_text())
+#: Method name -> the file in vibest/data with its fitted scale models (written by
+#: ``benchmarks/fit_scale_factor.py --method KEY --write``).
+SCALE_FILES = {"GFN2-xTB": "scale_factors.json", "GFN1-xTB": "scale_factors-gfn1.json",
+               "B3LYP-D3(BJ)/6-31G(d)": "scale_factors-b3lyp.json"}
+DEFAULT_METHOD_NAME = "GFN2-xTB"
 
 
-def uniform_scale_model() -> ScaleModel:
-    fit = _shipped()["uniform"]
+@functools.lru_cache(maxsize=None)
+def _shipped(method: str = DEFAULT_METHOD_NAME) -> dict:
+    name = SCALE_FILES.get(method)
+    path = resources.files("vibest.data").joinpath(name) if name else None
+    if path is None or not path.is_file():
+        raise InputError(f"no fitted scale factors are shipped for {method}; give a uniform one (--scale-factor)")
+    return json.loads(path.read_text())
+
+
+def _source(fit: dict, what: str, method: str) -> str:
+    return f"{what} fitted on {fit.get('train_molecules', fit.get('molecules'))} molecules ({method}), " \
+           "benchmarks/fit_scale_factor.py"
+
+
+def uniform_scale_model(method: str = DEFAULT_METHOD_NAME) -> ScaleModel:
+    fit = _shipped(method)["uniform"]
     return ScaleModel(float(fit["factor"]), UNIFORM,
-                      f"fitted on {fit['fundamentals']} gas-phase fundamentals of {fit['molecules']} molecules, "
-                      "benchmarks/fit_scale_factor.py")
+                      f"fitted on {fit['fundamentals']} gas-phase fundamentals of {fit['molecules']} molecules "
+                      f"({method}), benchmarks/fit_scale_factor.py")
 
 
-def _shipped_fit(name: str) -> tuple[dict, float]:
+def _shipped_fit(name: str, method: str) -> tuple[dict, float]:
     """(the shipped fit of model ``name``, the shipped uniform factor); InputError if not shipped."""
-    data = _shipped()
+    data = _shipped(method)
     fit = data.get(name)
     if fit is None:
-        raise InputError(f"no {name} scale factors are shipped with this installation")
+        raise InputError(f"no {name} scale factors are shipped for {method}")
     return fit, float(data["uniform"]["factor"])
 
 
-def per_coordinate_scale_model() -> ScaleModel:
-    fit, uniform = _shipped_fit(PER_COORDINATE)
-    return ScaleModel(uniform, PER_COORDINATE,
-                      f"scaled force field fitted on {fit['train_molecules']} molecules, "
-                      "benchmarks/fit_scale_factor.py",
+def per_coordinate_scale_model(method: str = DEFAULT_METHOD_NAME) -> ScaleModel:
+    fit, uniform = _shipped_fit(PER_COORDINATE, method)
+    return ScaleModel(uniform, PER_COORDINATE, _source(fit, "scaled force field", method),
                       {k: float(v) for k, v in fit["force_constant_factors"].items()})
 
 
-def region_scale_model() -> ScaleModel:
-    fit, uniform = _shipped_fit(REGION)
-    return ScaleModel(uniform, REGION,
-                      f"region factors fitted on {fit['train_molecules']} molecules, benchmarks/fit_scale_factor.py",
+def region_scale_model(method: str = DEFAULT_METHOD_NAME) -> ScaleModel:
+    fit, uniform = _shipped_fit(REGION, method)
+    return ScaleModel(uniform, REGION, _source(fit, "region factors", method),
                       region_factors=tuple(float(v) for v in fit["region_factors"]))
 
 
 SCALE_MODELS = (UNIFORM, REGION, PER_COORDINATE)
 
 
-def named_scale_model(name: str) -> ScaleModel:
+def named_scale_model(name: str, method: str = DEFAULT_METHOD_NAME) -> ScaleModel:
+    """The shipped model ``name`` of ``method`` (the method that computed the Hessian)."""
     if name == UNIFORM:
-        return uniform_scale_model()
+        return uniform_scale_model(method)
     if name == REGION:
-        return region_scale_model()
+        return region_scale_model(method)
     if name == PER_COORDINATE:
-        return per_coordinate_scale_model()
+        return per_coordinate_scale_model(method)
     raise InputError(f"unknown scale model {name!r}; choose one of {', '.join(SCALE_MODELS)}")
 
 
-def default_scale_model() -> ScaleModel:
-    """The shipped model with the lower held-out error (named in scale_factors.json)."""
-    return named_scale_model(_shipped().get("default", UNIFORM))
+def default_scale_model(method: str = DEFAULT_METHOD_NAME) -> ScaleModel:
+    """The shipped default model of ``method`` (named in its scale-factor file)."""
+    return named_scale_model(_shipped(method).get("default", UNIFORM), method)
 
 
 def user_scale_model(factor: float) -> ScaleModel:

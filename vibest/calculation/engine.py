@@ -16,8 +16,9 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from ..errors import CalculationError, InputError
+from .methods import DFTSettings, Method
 
-BACKENDS = ("tblite", "xtb")
+BACKENDS = ("tblite", "xtb", "pyscf")
 #: Solvent names with parametrised GFN2-xTB ALPB models (Ehlert, Stahn, Spicher, Grimme,
 #: J. Chem. Theory Comput. 17, 4250 (2021)); tblite also accepts them for CPCM (ddX).
 SOLVENTS = ("acetone", "acetonitrile", "aniline", "benzaldehyde", "benzene", "ch2cl2", "chcl3", "cs2", "dioxane",
@@ -38,6 +39,7 @@ class EngineSettings:
         max_scf_iterations: SCF cycle limit.
         solvent: implicit solvent name (one of :data:`SOLVENTS`), or None for gas phase.
         solvent_model: "alpb" (analytical linearised Poisson-Boltzmann, default) or "cpcm" (tblite's ddX).
+        dft: density-functional settings (backend "pyscf" only), else None.
     """
 
     method: str = "GFN2-xTB"
@@ -47,11 +49,34 @@ class EngineSettings:
     max_scf_iterations: int = 250
     solvent: str | None = None
     solvent_model: str = "alpb"
+    dft: DFTSettings | None = None
 
     def to_dict(self) -> dict:
-        return asdict(self)
+        """All fields; ``dft`` only when set, so that tight-binding settings (and the store keys
+        made from them) are what they were before density-functional methods existed."""
+        d = asdict(self)
+        if d["dft"] is None:
+            del d["dft"]
+        return d
+
+    @classmethod
+    def for_method(cls, method: Method, backend: str = "tblite", solvent: str | None = None,
+                   solvent_model: str = "alpb") -> "EngineSettings":
+        """Settings of ``method`` (tight-binding methods with ``backend``; DFT through PySCF)."""
+        if method.is_dft:
+            return cls(method=method.name, backend="pyscf", solvent=solvent, solvent_model=solvent_model,
+                       dft=method.dft)
+        return cls(method=method.name, backend=backend, solvent=solvent, solvent_model=solvent_model)
+
+    @property
+    def is_dft(self) -> bool:
+        return self.dft is not None
 
     def validate(self) -> None:
+        if self.backend not in BACKENDS:
+            raise InputError(f"unknown backend {self.backend!r}; choose one of {', '.join(BACKENDS)}")
+        if self.is_dft and self.solvent:
+            raise InputError(f"implicit solvent is available with the tight-binding methods only, not {self.method}")
         if self.solvent is not None and self.solvent.lower() not in SOLVENTS:
             raise InputError(f"unknown solvent {self.solvent!r}; choose one of {', '.join(SOLVENTS)}")
         if self.solvent_model not in SOLVENT_MODELS:
@@ -248,12 +273,17 @@ _KELVIN_TO_HARTREE = _kelvin_to_hartree()
 
 
 def make_engine(numbers, positions_bohr, charge: int = 0, uhf: int = 0,
-                settings: EngineSettings = EngineSettings()) -> Engine:
-    """Create the engine named by ``settings.backend``."""
+                settings: EngineSettings = EngineSettings(), resources=None) -> Engine:
+    """Create the engine named by ``settings.backend`` (``resources``: threads and memory of a
+    density-functional engine, :class:`vibest.calculation.dft_engine.DFTResources`)."""
     if settings.backend == "tblite":
         return TBLiteEngine(numbers, positions_bohr, charge, uhf, settings)
     if settings.backend == "xtb":
         return XTBEngine(numbers, positions_bohr, charge, uhf, settings)
+    if settings.backend == "pyscf":
+        from .dft_engine import DFTResources, PySCFEngine
+
+        return PySCFEngine(numbers, positions_bohr, charge, uhf, settings, resources or DFTResources())
     raise InputError(f"unknown backend {settings.backend!r}; choose one of {', '.join(BACKENDS)}")
 
 

@@ -234,15 +234,21 @@ class _InternalSteps:
     name = "internal"
     #: Back-transformation: iterations and convergence (RMS Cartesian change, Bohr).
     BACK_ITERATIONS, BACK_TOL_BOHR = 25, 1e-5
+    #: Smallest Cholesky pivot of B^T B + R R^T of a complete set.
+    COMPLETE_PIVOT = 1e-2
 
     def __init__(self, internal: redundant_internals.InternalSet, numbers, x: np.ndarray, g: np.ndarray):
         self.ic = internal
         self.x, self.g = x, g
         self.frame = self._frame(x, g)
         # Whether the set spans all internal motions: M = B^T B + R R^T positive definite, with no
-        # Cholesky pivot below 1e-6 of the largest (an eigenvalue of M below ~1e-12 of its largest)
+        # Cholesky pivot below COMPLETE_PIVOT. A planar molecule whose set has no out-of-plane
+        # coordinate (formaldehyde: bonds and bends only) has, exactly planar, a pivot of 1.5e-4:
+        # steps along that direction came out thousands of Bohr long. Such a set counts as
+        # incomplete and the molecule is optimised in Cartesians. (The smallest pivots of the 12
+        # molecules of benchmarks/speed.py and 12 small ones, at start and minimum: 0.16-1.1.)
         pivots = np.diag(self.frame.chol) if self.frame is not None else np.zeros(1)
-        self.complete = bool(pivots.min() > 1e-6 * pivots.max())
+        self.complete = bool(pivots.min() > self.COMPLETE_PIVOT)
         # Lindh's model restricted to the set's own primitives: diagonal and cheap; on the molecules
         # of benchmarks/speed.py it needed as few or fewer gradients than the full Cartesian model
         # transformed to internals

@@ -119,6 +119,20 @@ class HessianRecord:
             raise InputError(f"cannot read Hessian record {path}: {exc}") from None
 
 
+def structure_of_record(record: HessianRecord):
+    """The :class:`vibest.structure.Molecule` at the record's geometry (for computing it again,
+    e.g. at another level of theory)."""
+    from ase.data import chemical_symbols
+
+    from ..structure import Molecule
+
+    return Molecule(smiles=record.smiles, numbers=np.asarray(record.numbers, int),
+                    positions_angstrom=np.asarray(record.positions_angstrom, float), charge=record.charge,
+                    uhf=record.uhf, bonds=tuple(record.bonds),
+                    symbols=tuple(chemical_symbols[int(z)] for z in record.numbers), molblock=record.molblock,
+                    mass_numbers=tuple(record.mass_numbers))
+
+
 def record_molecule(record: HessianRecord):
     """RDKit molecule (with H, the record's atom order) for pattern matching; from the stored
     molblock, else rebuilt from atomic numbers and bonds."""

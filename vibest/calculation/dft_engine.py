@@ -1,0 +1,329 @@
+"""The density-functional engine: the only place that talks to PySCF.
+
+Like the tight-binding engines it answers energy (Eh), gradient (Eh/Bohr) and dipole (e*Bohr)
+at a geometry (Bohr), restarting every SCF from the last density. It also does analytically
+what the tight-binding engines need finite differences for:
+
+* the Hessian (PySCF's analytic RKS Hessian: skeleton Fock derivatives, coupled-perturbed
+  Kohn-Sham equations for the nuclear displacements, their contraction; dispersion by PySCF);
+* the dipole derivatives (atomic polar tensors) from the response to an electric field. With
+  h(F) = h + F.r the dipole is mu = -dE/dF, so d mu_a / d X = -d/dF_a (dE/dX): the gradient's
+  derivative with respect to the field, from three coupled-perturbed equations (one per field
+  direction) instead of 3N:
+
+      d mu_a / d X_x = Z_X delta_xa - Tr[D dr_a/dX_x] - Tr[D^a F^X_x] + Tr[W^a S^X_x]
+
+  with D, D^a the density and its field response, W^a the response of the energy-weighted
+  density, F^X the skeleton derivative of the Fock matrix (PySCF's ``make_h1``, shared with
+  the Hessian), S^X the overlap derivative and dr_a/dX the derivative of the dipole integrals
+  (origin at the coordinate origin, like the dipole). Tested against finite differences of the
+  SCF dipole (tests/test_dft.py).
+
+PySCF computes with its own OpenMP threads (and numpy's BLAS): each call runs with
+``threads`` of them (default all cores) and at most ``memory_mb`` of memory. Closed-shell
+molecules only (restricted Kohn-Sham); no implicit solvent.
+"""
+
+from __future__ import annotations
+
+import time
+from contextlib import contextmanager
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from ..errors import CalculationError, InputError
+from .engine import Engine, EngineSettings, Evaluation
+from .methods import DFTSettings
+
+
+@dataclass(frozen=True)
+class DFTResources:
+    """How a DFT calculation may use the machine (changes no number, so never in a store key).
+
+    Attributes:
+        threads: OpenMP/BLAS threads (None: all cores).
+        memory_mb: memory PySCF may use (MB; its ``max_memory``).
+    """
+
+    threads: int | None = None
+    memory_mb: int = 4000
+
+
+#: progress(step, message) of the long steps of one engine call.
+StepProgress = Callable[[str, str], None]
+
+
+@contextmanager
+def _threads(count: int):
+    """All of ``count`` threads for PySCF's OpenMP and numpy's BLAS while the block runs."""
+    from pyscf import lib
+    from threadpoolctl import threadpool_limits
+
+    before = lib.num_threads()
+    lib.num_threads(count)
+    try:
+        with threadpool_limits(limits=count):
+            yield
+    finally:
+        lib.num_threads(before)
+
+
+class PySCFEngine(Engine):
+    """Restricted Kohn-Sham DFT through PySCF (see the module docstring).
+
+    Raises InputError at construction for what the method cannot do: an element the basis set
+    lacks, unpaired electrons, an implicit solvent."""
+
+    concurrent = False
+    dipole_about_coordinate_origin = True
+    analytic_hessian = True
+
+    def __init__(self, numbers, positions_bohr, charge: int = 0, uhf: int = 0,
+                 settings: EngineSettings = EngineSettings(), resources: DFTResources = DFTResources()):
+        from ..calculation.hessian import default_workers
+
+        if settings.dft is None:
+            raise InputError(f"method {settings.method!r} is not a density-functional method")
+        if uhf:
+            raise InputError(f"{settings.method} is available for closed-shell molecules only; this one has "
+                             f"{uhf} unpaired electron(s): use GFN2-xTB (--method gfn2)")
+        if settings.solvent:
+            raise InputError(f"implicit solvent is available with the tight-binding methods only, not {settings.method}")
+        self.settings = settings
+        self.resources = resources
+        self.threads = int(resources.threads or default_workers())
+        self.numbers = np.asarray(numbers, dtype=int)
+        self.charge, self.uhf = int(charge), int(uhf)
+        self._start = np.array(positions_bohr, dtype=float)
+        self.count = 0
+        self.mol = build_pyscf_molecule(self.numbers, self._start, self.charge, settings.dft, resources.memory_mb)
+        self._mf = None
+        self._dm = None
+
+    # -- the Engine interface --------------------------------------------------------------
+    def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:
+        with _threads(self.threads):
+            mf = self._scf(positions_bohr)
+            try:
+                grad = mf.nuc_grad_method().kernel()
+            except Exception as exc:
+                raise CalculationError(f"{self.settings.method} gradient failed: {exc}") from None
+            dipole = _dipole(mf)
+        self.count += 1
+        return Evaluation(float(mf.e_tot), np.asarray(grad, dtype=float), dipole)
+
+    def copy(self) -> "PySCFEngine":
+        return PySCFEngine(self.numbers, self._start, self.charge, self.uhf, self.settings, self.resources)
+
+    def wavefunction(self):
+        return None if self._dm is None else self._dm.copy()
+
+    def restart_from(self, wavefunction) -> None:
+        self._dm = None if wavefunction is None else np.array(wavefunction)
+
+    @property
+    def basis_functions(self) -> int:
+        return int(self.mol.nao)
+
+    # -- analytic second derivatives -------------------------------------------------------
+    def hessian_and_dipole_derivatives(self, positions_bohr: np.ndarray,
+                                       progress: StepProgress | None = None) -> tuple[np.ndarray, np.ndarray, Evaluation]:
+        """Analytic Hessian (3N, 3N) in Eh/Bohr^2, dipole derivatives (3N, 3) in e, and the
+        evaluation (energy, gradient, dipole) at ``positions_bohr``."""
+        def say(step, message=""):
+            if progress:
+                progress(step, message)
+
+        with _threads(self.threads):
+            say("SCF", f"{self.basis_functions} basis functions")
+            mf = self._scf(positions_bohr)
+            grad = mf.nuc_grad_method().kernel()
+            hobj = mf.Hessian()
+            hobj.max_memory = self.resources.memory_mb
+            mo_e, mo_c, mo_o = mf.mo_energy, mf.mo_coeff, mf.mo_occ
+            atoms = range(self.mol.natm)
+            try:
+                say("Fock derivatives")
+                h1ao = hobj.make_h1(mo_c, mo_o, None, atoms)
+                say("coupled-perturbed equations (nuclear displacements)")
+                mo1, mo_e1 = hobj.solve_mo1(mo_e, mo_c, mo_o, h1ao, None, atoms, self.resources.memory_mb)
+                say("Hessian assembly")
+                de2 = hobj.hess_elec(mo_e, mo_c, mo_o, mo1=mo1, mo_e1=mo_e1, h1ao=h1ao, atmlst=atoms,
+                                     max_memory=self.resources.memory_mb)
+                de2 = de2 + hobj.hess_nuc(self.mol, atoms)
+                if mf.do_disp():
+                    de2 = de2 + hobj.get_dispersion()
+                say("coupled-perturbed equations (electric field)")
+                apt = field_dipole_derivatives(mf, h1ao)
+            except Exception as exc:
+                raise CalculationError(f"{self.settings.method} Hessian failed: {exc}") from None
+            n = self.mol.natm
+            hessian = np.asarray(de2).transpose(0, 2, 1, 3).reshape(3 * n, 3 * n)
+            evaluation = Evaluation(float(mf.e_tot), np.asarray(grad, dtype=float), _dipole(mf))
+        self.count += 1
+        return 0.5 * (hessian + hessian.T), apt, evaluation
+
+    def dipole_derivatives(self, positions_bohr: np.ndarray, progress: StepProgress | None = None) -> np.ndarray:
+        """Dipole derivatives (3N, 3) in e at ``positions_bohr`` (field response; no Hessian)."""
+        with _threads(self.threads):
+            if progress:
+                progress("SCF", f"{self.basis_functions} basis functions")
+            mf = self._scf(positions_bohr)
+            try:
+                if progress:
+                    progress("Fock derivatives", "")
+                h1ao = mf.Hessian().make_h1(mf.mo_coeff, mf.mo_occ, None, range(self.mol.natm))
+                if progress:
+                    progress("coupled-perturbed equations (electric field)", "")
+                return field_dipole_derivatives(mf, h1ao)
+            except Exception as exc:
+                raise CalculationError(f"{self.settings.method} dipole derivatives failed: {exc}") from None
+
+    # -- internals -------------------------------------------------------------------------
+    def _scf(self, positions_bohr):
+        """Converged RKS object at ``positions_bohr``, started from the last density."""
+        x = np.asarray(positions_bohr, dtype=float).reshape(-1, 3)
+        self.mol.set_geom_(x, unit="Bohr")
+        mf = make_rks(self.mol, self.settings.dft, self.resources.memory_mb)
+        try:
+            mf.kernel(dm0=self._dm)
+        except Exception as exc:
+            raise CalculationError(f"{self.settings.method} SCF failed: {exc}") from None
+        if not mf.converged:
+            mf = mf.newton()  # second-order SCF from where the DIIS run stopped
+            mf.kernel(mf.make_rdm1())
+            if not mf.converged:
+                raise CalculationError(f"{self.settings.method} SCF did not converge")
+        self._mf, self._dm = mf, mf.make_rdm1()
+        return mf
+
+
+def build_pyscf_molecule(numbers, positions_bohr, charge: int, dft: DFTSettings, memory_mb: int = 4000):
+    """PySCF ``Mole`` (Bohr, closed shell); InputError when the basis lacks an element."""
+    from ase.data import chemical_symbols
+    from pyscf import gto
+
+    atoms = [(chemical_symbols[int(z)], tuple(map(float, p))) for z, p in zip(numbers, np.reshape(positions_bohr, (-1, 3)))]
+    try:
+        mol = gto.M(atom=atoms, unit="Bohr", basis=dft.basis, charge=int(charge), spin=0, verbose=0,
+                    max_memory=int(memory_mb))
+    except (KeyError, RuntimeError, ValueError) as exc:
+        missing = sorted({a for a, _ in atoms if not _basis_has(a, dft.basis)})
+        if missing:
+            raise InputError(f"basis set {dft.basis} has no functions for {', '.join(missing)}: "
+                             "use GFN2-xTB (--method gfn2) for this molecule") from None
+        raise InputError(f"PySCF cannot set up this molecule with {dft.basis}: {exc}") from None
+    missing = sorted({mol.atom_symbol(i) for i in range(mol.natm) if mol.atom_nshells(i) == 0})
+    if missing:
+        raise InputError(f"basis set {dft.basis} has no functions for {', '.join(missing)}: "
+                         "use GFN2-xTB (--method gfn2) for this molecule")
+    return mol
+
+
+def _basis_has(symbol: str, basis: str) -> bool:
+    import warnings
+
+    from pyscf import gto
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # PySCF suggests installing basis-set-exchange
+        try:
+            return bool(gto.basis.load(basis, symbol))
+        except Exception:
+            return False
+
+
+def make_rks(mol, dft: DFTSettings, memory_mb: int):
+    """A restricted Kohn-Sham object with the settings (not yet run)."""
+    from pyscf import dft as pyscf_dft
+
+    mf = pyscf_dft.RKS(mol)
+    mf.xc = dft.functional
+    mf.grids.level = int(dft.grid_level)
+    mf.conv_tol = float(dft.scf_tolerance_hartree)
+    mf.conv_tol_grad = float(np.sqrt(dft.scf_tolerance_hartree)) / 10.0  # orbital gradient: densities, dipoles
+    mf.max_memory = int(memory_mb)
+    mf.verbose = 0
+    if dft.dispersion:
+        mf.disp = dft.dispersion
+    if dft.density_fitting:
+        mf = mf.density_fit()
+    return mf
+
+
+def _dipole(mf) -> np.ndarray:
+    """Dipole (e*Bohr) about the coordinate origin (PySCF's dip_moment uses origin 0)."""
+    return np.asarray(mf.dip_moment(unit="AU", verbose=0), dtype=float)
+
+
+def _dipole_integrals(mol) -> np.ndarray:
+    with mol.with_common_orig((0.0, 0.0, 0.0)):
+        return mol.intor_symmetric("int1e_r", comp=3)
+
+
+def field_dipole_derivatives(mf, h1ao) -> np.ndarray:
+    """Atomic polar tensors (3N, 3), e, of a converged closed-shell SCF ``mf`` from the response
+    to an electric field (module docstring). ``h1ao``: per atom, the skeleton Fock derivatives
+    (3, nao, nao) as PySCF's ``make_h1`` gives them."""
+    from pyscf.scf import cphf
+
+    mol = mf.mol
+    nao = mol.nao
+    mo_e, mo_c, mo_o = mf.mo_energy, mf.mo_coeff, mf.mo_occ
+    occ, vir = mo_o > 0, mo_o == 0
+    c_occ, c_vir = mo_c[:, occ], mo_c[:, vir]
+    e_occ = mo_e[occ]
+    r = _dipole_integrals(mol)  # (3, nao, nao)
+    vresp = mf.gen_response(mo_c, mo_o, hermi=1)
+
+    def response_density(u):  # u: (k, nvir, nocc) -> (k, nao, nao), factor 2 for double occupancy
+        d = np.einsum("pa,kai,qi->kpq", c_vir, u, c_occ) * 2.0
+        return d + d.transpose(0, 2, 1)
+
+    def fvind(u):
+        u = u.reshape(-1, c_vir.shape[1], c_occ.shape[1])
+        return np.einsum("pa,kpq,qi->kai", c_vir, vresp(response_density(u)), c_occ)
+
+    h1vo = np.einsum("pa,kpq,qi->kai", c_vir, r, c_occ)
+    u, _ = cphf.solve(fvind, mo_e, mo_o, h1vo, None, max_cycle=100, tol=1e-10)
+    u = u.reshape(3, c_vir.shape[1], c_occ.shape[1])
+    d1 = response_density(u)  # dD/dF_a
+    v1 = vresp(d1)
+    e1 = np.einsum("pi,kpq,qj->kij", c_occ, r + v1, c_occ)  # occupied block of dF/dF_a
+    cu = np.einsum("pa,kai->kpi", c_vir, u)
+    w1 = 2.0 * (np.einsum("pi,kij,qj->kpq", c_occ, e1, c_occ) + np.einsum("kpi,i,qi->kpq", cu, e_occ, c_occ))
+    w1 = w1 + 2.0 * np.einsum("pi,i,kqi->kpq", c_occ, e_occ, cu)
+    dm = mf.make_rdm1()
+    s1 = -mol.intor("int1e_ipovlp", comp=3)  # <d mu / d r | nu>, bra derivative
+    with mol.with_common_orig((0.0, 0.0, 0.0)):
+        irp = mol.intor("int1e_irp", comp=9).reshape(3, 3, nao, nao)  # [a, x] = <mu| r_a d/dx |nu>
+    charges = mol.atom_charges()
+    out = np.zeros((mol.natm, 3, 3))
+    for atom, (_, _, p0, p1) in enumerate(mol.aoslice_by_atom()):
+        for x in range(3):
+            s_x = np.zeros((nao, nao))
+            s_x[p0:p1] = s1[x, p0:p1]
+            s_x = s_x + s_x.T
+            dr = np.zeros((3, nao, nao))
+            dr[:, :, p0:p1] = -irp[:, x, :, p0:p1]
+            dr = dr + dr.transpose(0, 2, 1)
+            out[atom, x] = (-np.einsum("pq,kqp->k", dm, dr) - np.einsum("kpq,qp->k", d1, h1ao[atom][x])
+                            + np.einsum("kpq,qp->k", w1, s_x))
+            out[atom, x, x] += charges[atom]
+    return out.reshape(3 * mol.natm, 3)
+
+
+#: Cost model of :func:`estimated_seconds`: seconds = a * (basis functions / 100) ** b on 2
+#: cores, per tier, fitted by benchmarks/dft_cost.py on this project's 2-core machine.
+COST_MODEL = {"full": (300.0, 3.0), "intensities": (30.0, 3.0)}
+
+
+def estimated_seconds(basis_functions: int, atoms: int, tier: str, threads: int = 2) -> float:
+    """Rough wall time (s) of a density-functional calculation of this size (``tier``: "full"
+    or "intensities"), from :data:`COST_MODEL`, assuming the time divides over threads as it
+    does over the 2 cores it was measured on. Meant for refusing hopeless requests, not for
+    planning: expect a factor of 2 either way."""
+    a, b = COST_MODEL[tier]
+    return a * (basis_functions / 100.0) ** b * 2.0 / max(1, threads)

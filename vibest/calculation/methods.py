@@ -1,0 +1,132 @@
+"""The levels of theory a user can choose (``--method``), in one table.
+
+A *method* is one electronic-structure model (GFN2-xTB, or a density functional with a basis
+set and a dispersion correction). A *level* says which method gives the geometry and the
+Hessian (band positions) and, optionally, which other method gives the dipole derivatives
+(band intensities): ``gfn2`` (the default: everything from GFN2-xTB), ``b3lyp`` (everything
+from B3LYP-D3(BJ)/6-31G(d): geometry re-optimised from the GFN2-xTB minimum, analytic Hessian
+and dipole derivatives), ``gfn2+b3lyp`` (GFN2-xTB geometry and modes, B3LYP dipole derivatives
+at that geometry: the intensities of the density functional at a fraction of its cost).
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+from ..errors import InputError
+
+TIGHT_BINDING = "tight-binding"
+DFT = "dft"
+
+
+@dataclass(frozen=True)
+class DFTSettings:
+    """What defines a density-functional calculation (all of it changes the numbers).
+
+    Attributes:
+        functional: PySCF's name of the exchange-correlation functional (``"b3lyp"``).
+        basis: basis set name as PySCF knows it (``"6-31g*"``).
+        dispersion: PySCF's dispersion keyword (``"d3bj"``: Grimme's D3 with Becke-Johnson
+            damping, through the pyscf-dispersion package), or None.
+        grid_level: PySCF's integration grid level (0-9; 3 is PySCF's default).
+        density_fitting: resolve the two-electron integrals with an auxiliary basis.
+        scf_tolerance_hartree: SCF energy convergence (Eh); gradients and responses need it tight.
+    """
+
+    functional: str = "b3lyp"
+    basis: str = "6-31g*"
+    dispersion: str | None = "d3bj"
+    grid_level: int = 3
+    density_fitting: bool = False
+    scf_tolerance_hartree: float = 1e-10
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+@dataclass(frozen=True)
+class Method:
+    """One electronic-structure model.
+
+    Attributes:
+        key: what a user types (``--method``), e.g. ``"b3lyp"``.
+        name: the name recorded with every result, e.g. ``"B3LYP-D3(BJ)/6-31G(d)"``.
+        family: :data:`TIGHT_BINDING` or :data:`DFT`.
+        description: one line for ``vibest methods``.
+        dft: the density-functional settings (DFT family only).
+    """
+
+    key: str
+    name: str
+    family: str
+    description: str
+    dft: DFTSettings | None = None
+
+    @property
+    def is_dft(self) -> bool:
+        return self.family == DFT
+
+
+METHODS: dict[str, Method] = {m.key: m for m in (
+    Method("gfn2", "GFN2-xTB", TIGHT_BINDING,
+           "GFN2-xTB tight binding (tblite): seconds per molecule, the default"),
+    Method("gfn1", "GFN1-xTB", TIGHT_BINDING,
+           "GFN1-xTB tight binding (tblite): for comparison; no fitted scale model"),
+    Method("b3lyp", "B3LYP-D3(BJ)/6-31G(d)", DFT,
+           "B3LYP with D3(BJ) dispersion, 6-31G(d) basis (PySCF): minutes per molecule, closed shell only",
+           DFTSettings(functional="b3lyp", basis="6-31g*", dispersion="d3bj", grid_level=3)),
+)}
+DEFAULT_METHOD = "gfn2"
+
+
+def method_named(text: str) -> Method:
+    """The method a user typed (its key or its recorded name, any case)."""
+    wanted = str(text).strip().lower()
+    for m in METHODS.values():
+        if wanted in (m.key, m.name.lower()):
+            return m
+    raise InputError(f"unknown method {text!r}; choose one of {', '.join(METHODS)} "
+                     "(or positions+intensities, e.g. gfn2+b3lyp)")
+
+
+@dataclass(frozen=True)
+class Level:
+    """Which method gives positions (geometry, Hessian) and which gives intensities (dipole
+    derivatives); ``intensities`` None means the same method."""
+
+    positions: Method
+    intensities: Method | None = None
+
+    @property
+    def key(self) -> str:
+        return self.positions.key + (f"+{self.intensities.key}" if self.intensities else "")
+
+    @property
+    def name(self) -> str:
+        if self.intensities is None:
+            return self.positions.name
+        return f"{self.positions.name} positions, {self.intensities.name} intensities"
+
+    @property
+    def uses_dft(self) -> bool:
+        return self.positions.is_dft or bool(self.intensities and self.intensities.is_dft)
+
+
+def parse_level(text: str) -> Level:
+    """``"gfn2"``, ``"b3lyp"``, or ``"positions+intensities"`` such as ``"gfn2+b3lyp"``."""
+    parts = [p for p in str(text).split("+")]
+    if len(parts) == 1:
+        return Level(method_named(parts[0]))
+    if len(parts) != 2 or not all(p.strip() for p in parts):
+        raise InputError(f"cannot read method {text!r}: write one method (e.g. b3lyp) or positions+intensities "
+                         "(e.g. gfn2+b3lyp)")
+    positions, intensities = method_named(parts[0]), method_named(parts[1])
+    if positions == intensities:
+        return Level(positions)
+    if not intensities.is_dft:
+        raise InputError(f"{text!r}: intensities can come from a density-functional method only "
+                         f"({', '.join(k for k, m in METHODS.items() if m.is_dft)})")
+    if positions.is_dft:
+        raise InputError(f"{text!r}: with density-functional positions the intensities come from the same method; "
+                         f"use --method {positions.key}")
+    return Level(positions, intensities)
