@@ -35,6 +35,7 @@ from vibest.analysis.calibration import (cross_validated_mad, error_statistics, 
                                          split_train_test)
 from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM, ScaleModel
 from vibest.calculation.driver import calculation_options
+from vibest.errors import VibestError
 from vibest.calculation.methods import parse_level
 from vibest.reference_records import REFERENCE_OPTIONS, reference_record
 
@@ -49,9 +50,15 @@ def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFER
     for ref in reference_molecules():
         t0 = time.perf_counter()
         if ref.smiles not in records:
-            records[ref.smiles] = reference_record(ref.smiles, options)
+            try:
+                records[ref.smiles] = reference_record(ref.smiles, options)
+            except VibestError as exc:  # e.g. an element the basis set lacks
+                records[ref.smiles] = str(exc)
             if cache:
                 cache.write_bytes(pickle.dumps(records))
+        if isinstance(records[ref.smiles], str):
+            print(f"  {ref.name:<36} skipped: {records[ref.smiles]}", file=sys.stderr)
+            continue
         case = prepare_case(ref, records[ref.smiles])
         if verbose:
             a = case.assignment

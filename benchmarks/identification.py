@@ -24,8 +24,10 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import measured_set  # noqa: E402
 
 from vibest.comparison import DEFAULT_SCORE, SCORES, compare  # noqa: E402
+from vibest.errors import VibestError  # noqa: E402
 from vibest.measured import load_spectrum  # noqa: E402
-from vibest.pipeline import CalculationOptions, SpectrumOptions  # noqa: E402
+from vibest.calculation.driver import calculation_options  # noqa: E402
+from vibest.pipeline import SpectrumOptions  # noqa: E402
 from vibest.ranking import predict_stored  # noqa: E402
 from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
 from vibest.store import RecordStore  # noqa: E402
@@ -35,31 +37,51 @@ def formula(smiles: str) -> str:
     return rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(smiles))
 
 
-def evaluate(entries, spectra, preds, score_name: str, fwhm: float, **compare_kw):
-    """Per measured entry: (rank among all, rank among isomers or None, margin, score, comparison)."""
+def ranked(candidates, scores, refined_scores=None, refine: int = 0) -> list[str]:
+    """Candidates best first, as vibest.ranking.rank_candidates orders them: by ``scores``; with
+    ``refine`` K the first K again by ``refined_scores`` (a function of the SMILES)."""
+    order = sorted(candidates, key=lambda s: -scores[s])
+    if refine:
+        top = order[:refine]
+        new = {s: refined_scores(s) for s in top}
+        order = sorted(top, key=lambda s: -new[s]) + order[refine:]
+    return order
+
+
+def evaluate(entries, spectra, preds, score_name: str, fwhm: float, refine_preds=None, refine: int = 0, **compare_kw):
+    """Per measured entry: (rank among all, rank among isomers or None, margin, score, comparison,
+    best candidate). With ``refine`` K, the best K are ranked again with ``refine_preds`` (a
+    function SMILES -> prediction, called only for candidates that reach a top K)."""
     unique = sorted({e.smiles for e in entries})
     out = []
     for e in entries:
-        scores = {}
-        comps = {}
-        for smi in unique:
-            c = compare(preds[smi], spectra[e.file], score_name=score_name, fwhm_cm1=fwhm, **compare_kw)
-            scores[smi] = c.score
-            comps[smi] = c
-        order = sorted(unique, key=lambda s: -scores[s])
+        comps = {smi: compare(preds[smi], spectra[e.file], score_name=score_name, fwhm_cm1=fwhm, **compare_kw)
+                 for smi in unique}
+        scores = {smi: c.score for smi, c in comps.items()}
+        refined = {}
+
+        def refined_score(smi):
+            if smi not in refined:
+                refined[smi] = compare(refine_preds(smi), spectra[e.file], score_name=score_name, fwhm_cm1=fwhm,
+                                       **compare_kw)
+            return refined[smi].score
+
+        order = ranked(unique, scores, refined_score, refine)
         rank = order.index(e.smiles) + 1
-        others = [scores[s] for s in unique if s != e.smiles]
-        margin = scores[e.smiles] - max(others)
+        final = {s: (refined[s].score if s in refined else scores[s]) for s in unique}
+        same_level = [s for s in unique if s != e.smiles and (s in refined) == (e.smiles in refined)]
+        margin = final[e.smiles] - max(final[s] for s in same_level) if same_level else float("nan")
         iso = [s for s in unique if formula(s) == formula(e.smiles)]
-        iso_rank = sorted(iso, key=lambda s: -scores[s]).index(e.smiles) + 1 if len(iso) > 1 else None
-        out.append((e, rank, iso_rank, margin, scores[e.smiles], comps[e.smiles], order[0]))
+        iso_rank = ranked(iso, scores, refined_score, refine).index(e.smiles) + 1 if len(iso) > 1 else None
+        comp = refined.get(e.smiles, comps[e.smiles])
+        out.append((e, rank, iso_rank, margin, final[e.smiles], comp, order[0]))
     return out
 
 
 def summary(rows) -> str:
     ranks = np.array([r[1] for r in rows])
     iso = np.array([r[2] for r in rows if r[2] is not None])
-    margins = np.array([r[3] for r in rows])
+    margins = np.array([r[3] for r in rows if np.isfinite(r[3])])
     return (f"top-1 {np.mean(ranks == 1):6.1%}  top-3 {np.mean(ranks <= 3):6.1%}  mean rank {ranks.mean():5.2f}  "
             f"isomers top-1 {np.mean(iso == 1):6.1%} ({len(iso)})  median margin {np.median(margins):+.3f}")
 
@@ -83,6 +105,9 @@ def main() -> None:
     ap.add_argument("--store", default=None, help="result store (SQLite file) [the default store]")
     ap.add_argument("--fwhm", type=float, nargs="+", default=[DEFAULT_FWHM_CM1, 30.0])
     ap.add_argument("--quick", action="store_true", help="default score and first FWHM only")
+    ap.add_argument("--method", default="gfn2", help="level of theory of every candidate (gfn2, b3lyp, gfn2+b3lyp)")
+    ap.add_argument("--refine", type=int, default=0, metavar="K", help="recompute the best K at --refine-method")
+    ap.add_argument("--refine-method", default="b3lyp")
     args = ap.parse_args()
     try:
         folder = measured_set.fetch()
@@ -92,11 +117,32 @@ def main() -> None:
     entries = measured_set.entries()
     spectra = {e.file: load_spectrum(folder / e.file) for e in entries}
     store = RecordStore(args.store)
-    calc = CalculationOptions()
+    calc = calculation_options(args.method)
     preds = {}
+    fallback = calculation_options("gfn2")
     for smi in sorted({e.smiles for e in entries}):
-        preds[smi], hit = predict_stored(smi, calc, SpectrumOptions(), store)
+        try:
+            preds[smi], hit = predict_stored(smi, calc, SpectrumOptions(), store)
+        except VibestError as exc:  # e.g. iodine with a basis set that lacks it: GFN2-xTB instead, said here
+            print(f"  {smi}: {exc}; GFN2-xTB used instead")
+            preds[smi], hit = predict_stored(smi, fallback, SpectrumOptions(), store)
         print(f"  predicted {smi:<16} {'(stored)' if hit else ''}", file=sys.stderr)
+    refine_calc = calculation_options(args.refine_method) if args.refine else None
+    refine_cache = {}
+
+    def refine_preds(smi):
+        if smi not in refine_cache:
+            try:
+                refine_cache[smi], hit = predict_stored(smi, refine_calc, SpectrumOptions(), store)
+            except VibestError as exc:  # as rank --refine: the candidate keeps its first-level prediction
+                print(f"  {smi}: not refined ({exc})")
+                refine_cache[smi], hit = preds[smi], True
+            print(f"  refined {smi:<16} at {refine_calc.method_name} {'(stored)' if hit else ''}", file=sys.stderr)
+        return refine_cache[smi]
+
+    print(f"level: {calc.method_name}" + (f"; best {args.refine} refined at {refine_calc.method_name}"
+                                           if args.refine else ""))
+    refine_kw = {"refine_preds": refine_preds, "refine": args.refine} if args.refine else {}
     groups = defaultdict(list)
     for e in entries:
         groups[formula(e.smiles)].append(e.name)
@@ -106,7 +152,7 @@ def main() -> None:
           "gives predicted bands rotational P/Q/R contours, vibest.gas_phase):")
     default_variant = None
     for label, score_name, kw in VARIANTS:
-        rows = evaluate(entries, spectra, preds, score_name, args.fwhm[0], **kw)
+        rows = evaluate(entries, spectra, preds, score_name, args.fwhm[0], **refine_kw, **kw)
         print(f"  {label:<40} {summary(rows)}", flush=True)
         if not kw and score_name == DEFAULT_SCORE:
             default_variant = rows
@@ -116,8 +162,8 @@ def main() -> None:
     print("scores and widths (default comparison options):")
     for fwhm in widths:
         for name in scores:
-            rows = evaluate(entries, spectra, preds, name, fwhm) if (name, fwhm) != (DEFAULT_SCORE, widths[0]) \
-                else default_variant
+            rows = evaluate(entries, spectra, preds, name, fwhm, **refine_kw) \
+                if (name, fwhm) != (DEFAULT_SCORE, widths[0]) else default_variant
             print(f"  {name:<9} FWHM {fwhm:4.0f}: {summary(rows)}")
             if name == DEFAULT_SCORE and fwhm == widths[0]:
                 default_rows = rows

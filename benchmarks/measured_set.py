@@ -42,7 +42,11 @@ def cache_dir() -> Path:
 
 
 class FetchError(RuntimeError):
-    """The sdist could not be fetched or did not verify (callers skip with this reason)."""
+    """The sdist could not be fetched (no network, no pip): callers may skip with this reason."""
+
+
+class IntegrityError(FetchError):
+    """The sdist was fetched but is not the expected file (SHA-256 mismatch): never a skip."""
 
 
 def _sha256(path: Path) -> str:
@@ -73,7 +77,7 @@ def fetch(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
         raise FetchError("pip did not produce jcamp-1.3.2.tar.gz")
     digest = _sha256(sdist)
     if digest != SHA256:
-        raise FetchError(f"jcamp-1.3.2.tar.gz has SHA-256 {digest}, expected {SHA256}")
+        raise IntegrityError(f"jcamp-1.3.2.tar.gz has SHA-256 {digest}, expected {SHA256}")
     out.mkdir(parents=True, exist_ok=True)
     with tarfile.open(sdist) as tar:
         for f in wanted:

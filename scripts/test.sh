@@ -3,4 +3,4 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash scripts/setup.sh
-.venv/bin/python -m pytest -q "$@"
+.venv/bin/python -m pytest -q -rs "$@"

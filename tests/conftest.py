@@ -31,3 +31,22 @@ def water():
 @pytest.fixture(scope="session")
 def co2():
     return prediction_of("O=C=O")
+
+
+@pytest.fixture(scope="session")
+def measured_folder():
+    """Folder of the real measured spectra of benchmarks/data/measured_set.csv (jcamp 1.3.2 sdist,
+    fetched and SHA-256-checked at test time). A download that cannot happen skips; a file that
+    does not verify fails."""
+    import sys
+    from pathlib import Path
+
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+    import measured_set
+
+    try:
+        return measured_set.fetch()
+    except measured_set.IntegrityError as exc:
+        pytest.fail(f"measured spectra do not verify: {exc}")
+    except measured_set.FetchError as exc:
+        pytest.skip(f"measured spectra not available: {exc}")

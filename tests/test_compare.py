@@ -157,14 +157,8 @@ def test_candidates_file_forms(tmp_path):
     ("chlorobenzene.jdx", "Clc1ccccc1", ["c1ccccc1", "Cc1ccccc1", "C=CCl", "ClCCCl"]),
     ("carbon dioxide.jdx", "O=C=O", ["[C-]#[O+]", "O=S=O", "O", "C"]),
 ])
-def test_ranking_against_real_measured_spectra(file, right, others):
-    import measured_set
-
-    try:
-        folder = measured_set.fetch()
-    except measured_set.FetchError as exc:
-        pytest.skip(f"measured spectra not available: {exc}")
-    measured = load_spectrum(folder / file)
+def test_ranking_against_real_measured_spectra(file, right, others, measured_folder):
+    measured = load_spectrum(measured_folder / file)
     ranking = rank_candidates(measured, [Candidate(s, s) for s in [right] + others])
     assert ranking.entries[0].candidate.smiles == right, [(e.candidate.name, e.score) for e in ranking.entries]
     assert ranking.entries[0].margin_to_next > 0.05

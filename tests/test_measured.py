@@ -152,22 +152,16 @@ KNOWN_BAND_CENTRES = [("methane.jdx", 2900, 3150, 3019), ("carbon dioxide.jdx", 
 
 
 @pytest.mark.slow
-def test_every_used_real_spectrum_parses_with_npoints_and_shows_known_bands():
+def test_every_used_real_spectrum_parses_with_npoints_and_shows_known_bands(measured_folder):
     """The 36 used files of the jcamp 1.3.2 sdist (benchmarks/data/measured_set.csv, fetched and
     SHA-256-checked at test time, never stored here): each parses with as many points as its own
     ##NPOINTS, its ##ORIGIN is the mapped one, and a few band centres (absorbance-weighted mean
     over the band's window, the P/R envelope included) lie within 15 cm^-1 of the known values: the
     files are digitised from hard copy at 2-4 cm^-1, and the digitised P and R branches are not
     equally strong (methane: 3007 against 3019), while a misread X axis would be off by far more."""
-    import sys
+    import measured_set  # on the path through the measured_folder fixture
 
-    sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
-    import measured_set
-
-    try:
-        folder = measured_set.fetch()
-    except measured_set.FetchError as exc:
-        pytest.skip(f"measured spectra not available: {exc}")
+    folder = measured_folder
     entries = measured_set.entries()
     assert len(entries) == 36
     for e in entries:

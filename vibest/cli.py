@@ -1,7 +1,10 @@
 """Command line: a thin layer over the Python API (every command is a call a script could make).
 
 Commands: ``predict`` (one structure), ``compare`` (one structure against a measured spectrum),
-``rank`` (many candidates against a measured spectrum).
+``rank`` (many candidates against a measured spectrum), ``check`` (is a measured sample the
+intended structure? verdict, decoys, confidence, group evidence), ``batch`` (many structures,
+result store), ``store`` (what the store holds), ``methods`` and ``solvents`` (what --method and
+--solvent accept).
 Exit codes: 0 success, 2 bad input (one-line message), 3 calculation failed, 130 interrupted.
 """
 
@@ -184,6 +187,13 @@ def _phase(choice: str):
     return {"auto": None, "gas": True, "condensed": False}[choice]
 
 
+def _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power) -> dict:
+    """Keyword arguments of vibest.comparison.compare from the comparison options."""
+    return {"range_cm1": tuple(compare_range), "fit_scale": fit_scale, "fit_shift": fit_shift,
+            "shift_bounds_cm1": (-max_shift, max_shift), "baseline": baseline, "tolerance_cm1": tolerance,
+            "gas_phase": _phase(phase), "intensity_power": intensity_power}
+
+
 def _store(path, disabled: bool):
     from .store import RecordStore
 
@@ -326,6 +336,16 @@ def _predict_ensemble(smiles, progress, *, temperature, csv_path, jcamp_path, js
             click.echo(f"wrote {p}", err=True)
 
 
+@main.command("methods")
+def methods_command() -> None:
+    """List the levels of theory (--method)."""
+    from .calculation.methods import METHODS
+
+    for m in METHODS.values():
+        click.echo(f"{m.key:<8} {m.name:<24} {m.description}")
+    click.echo("positions+intensities, e.g. gfn2+b3lyp: GFN2-xTB geometry and modes, B3LYP dipole derivatives")
+
+
 @main.command("solvents")
 def solvents_command() -> None:
     """List the implicit solvents (--solvent) and models (--solvent-model)."""
@@ -363,10 +383,9 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
         pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
-        comp = compare(pred, spec, score_name=score_name, range_cm1=compare_range, fit_scale=fit_scale,
-                       fit_shift=fit_shift, shift_bounds_cm1=(-max_shift, max_shift), baseline=baseline,
-                       tolerance_cm1=tolerance, gas_phase=_phase(phase),
-                       intensity_power=intensity_power)
+        comp = compare(pred, spec, score_name=score_name,
+                       **_compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
+                                     intensity_power))
         for note in spec.notes:
             click.echo(f"# note: {note}")
         click.echo(output.comparison_summary(comp))
@@ -393,15 +412,23 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @click.option("--json", "json_path", metavar="FILE", help="Ranking with peak tables as JSON.")
 @click.option("--plot-dir", metavar="DIR", default=None, help="Write overlay plots of the best candidates here.")
 @click.option("--top", type=click.IntRange(min=1), default=3, show_default=True, help="How many overlays to plot.")
+@click.option("--refine", type=click.IntRange(min=0), default=0, show_default=True, metavar="K",
+              help="Recompute the best K candidates at --refine-method and rank them again.")
+@click.option("--refine-method", default="b3lyp", show_default=True, metavar="METHOD",
+              help="Level of theory for --refine (a density-functional one, e.g. b3lyp or gfn2+b3lyp).")
+@click.option("--decoys", type=click.IntRange(min=0), default=0, show_default=True, metavar="N",
+              help="Also rank up to N decoys (isomers, functional-group changes) of each candidate.")
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
                  max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor, scale_model,
-                 fwhm, line_shape, csv_path, json_path, plot_dir, top, store_path, no_store, quiet) -> None:
+                 fwhm, line_shape, csv_path, json_path, plot_dir, top, refine, refine_method, decoys, store_path,
+                 no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
+    from .confidence import assess
     from .measured import load_spectrum
-    from .ranking import Candidate, rank_candidates, read_candidates
+    from .ranking import Candidate, rank_candidates, read_candidates, with_decoys
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
@@ -412,20 +439,22 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
             cands += read_candidates(candidates_file)
         if not cands:
             raise InputError("give candidate SMILES as arguments or with --candidates-file")
+        if decoys:
+            cands = with_decoys(cands, decoys)
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        refine_calc = _calc_options(**(calc_values | {"method": refine_method})) if refine else None
 
         def report(done, total, name):
             progress("candidates", done, total, f"{done}/{total} {name}")
 
-        ranking = rank_candidates(spec, cands, calc=calc, spec=sopts,
-                                  store=_store(store_path, no_store), score_name=score_name,
-                                  progress=report, range_cm1=compare_range, fit_scale=fit_scale, fit_shift=fit_shift,
-                                  shift_bounds_cm1=(-max_shift, max_shift), baseline=baseline, tolerance_cm1=tolerance, gas_phase=_phase(phase),
-                                  intensity_power=intensity_power)
+        kw = _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power)
+        ranking = rank_candidates(spec, cands, calc=calc, spec=sopts, store=_store(store_path, no_store),
+                                  score_name=score_name, progress=report, refine=refine, refine_calc=refine_calc, **kw)
+        assessment = assess(ranking, kw, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
         progress.finish()
-        click.echo(output.ranking_table(ranking))
+        click.echo(output.ranking_table(ranking, assessment))
         if csv_path:
             ranking.write_csv(csv_path)
             click.echo(f"wrote {csv_path}", err=True)
@@ -439,6 +468,59 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
                 output.plot_overlay(e.comparison, path, measured_label=f"measured {Path(measured).name}",
                                     title=f"rank {e.rank}: {e.candidate.name}  {score_name} {e.score:.3f}")
                 click.echo(f"wrote {path}", err=True)
+
+
+@main.command("check")
+@click.argument("measured", type=click.Path(dir_okay=False))
+@click.argument("smiles")
+@click.option("--name", default=None, help="Name of the intended structure in the report [its SMILES].")
+@click.option("--decoys", type=click.IntRange(min=0), default=8, show_default=True, metavar="N",
+              help="How many decoys (isomers, functional-group changes) to rank against it.")
+@click.option("--candidates-file", type=click.Path(dir_okay=False), default=None,
+              help="Further candidates: 'SMILES [name]' per line, or CSV with smiles,name columns.")
+@comparison_options
+@calculation_options
+@spectrum_options
+@click.option("--json", "json_path", metavar="FILE", help="The verdict with ranking and evidence as JSON.")
+@click.option("--plot", "plot_path", metavar="FILE", help="Overlay of the intended structure (.png, .svg, .pdf).")
+@store_options
+@click.option("-q", "--quiet", is_flag=True, help="No progress output.")
+def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block, score_name, compare_range, fit_scale,
+                  fit_shift, max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor,
+                  scale_model, fwhm, line_shape, json_path, plot_path, store_path, no_store, quiet) -> None:
+    """Is the MEASURED sample the structure SMILES? A verdict in plain words, with its decoys
+    ranked, a calibrated confidence, flags and the evidence of each functional group."""
+    from . import output
+    from .measured import load_spectrum
+    from .ranking import read_candidates
+    from .verdict import check_structure
+
+    progress = ProgressLine(enabled=not quiet)
+    with _user_errors(progress):
+        _check_output_path(json_path)
+        _check_output_path(plot_path, output.PLOT_FORMATS)
+        extra = read_candidates(candidates_file) if candidates_file else []
+        spec = load_spectrum(measured, kind=y_kind, block=block)
+        calc = _calc_options(**calc_values)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+
+        def report(done, total, label):
+            progress("candidates", done, total, f"{done}/{total} {label}")
+
+        verdict = check_structure(spec, smiles, name=name, decoys=decoys, candidates=extra, calc=calc, spec=sopts,
+                                  store=_store(store_path, no_store), progress=report, score_name=score_name,
+                                  **_compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance,
+                                                phase, intensity_power))
+        progress.finish()
+        click.echo(output.verdict_report(verdict))
+        if json_path:
+            Path(json_path).write_text(json.dumps(verdict.to_dict(), indent=1))
+            click.echo(f"wrote {json_path}", err=True)
+        if plot_path:
+            mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)
+            output.plot_overlay(mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
+                                title=f"{verdict.intended.name}: {verdict.conclusion} (rank {mine.rank})")
+            click.echo(f"wrote {plot_path}", err=True)
 
 
 class BatchBar:

@@ -154,7 +154,20 @@ def comparison_summary(comp) -> str:
     return text + f"\n  peaks: {n} of {nm} measured peaks matched within {comp.settings['tolerance_cm1']:g} cm-1"
 
 
-def ranking_table(ranking) -> str:
+def assessment_lines(assessment) -> list[str]:
+    """How sure a ranking is, in plain lines (vibest.confidence.Assessment)."""
+    if assessment is None:
+        return []
+    if assessment.confidence is not None:
+        lines = [f"confidence that the first candidate is right: {assessment.confidence:.2f}"
+                 + ("" if assessment.confidence >= 0.7 else " (low)")]
+    else:
+        lines = [f"confidence: not given ({assessment.note})"]
+    lines += [f"flag ({f.kind}): {f.message}" for f in assessment.flags]
+    return lines
+
+
+def ranking_table(ranking, assessment=None) -> str:
     lines = [f"# measured: {ranking.measured.source}  ({ranking.measured.title})"]
     for note in ranking.measured.notes:
         lines.append(f"# note: {note}")
@@ -168,9 +181,18 @@ def ranking_table(ranking) -> str:
         peaks = f"{sum(m.matched for m in c.matches)}/{sum(m.measured_cm1 is not None for m in c.matches)}"
         margin = f"{e.margin_to_next:7.4f}" if e.margin_to_next is not None else f"{'':>7}"
         shift = f"{c.shift_cm1:+6.1f}" if c.settings.get("fit_shift") else f"{'-':>6}"
-        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {shift}  {peaks:>7}  {e.candidate.name}  ({e.candidate.smiles})")
+        mark = " *" if e.refined else ""
+        note = f"  [{e.note}]" if e.note else ""
+        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {shift}  {peaks:>7}  {e.candidate.name}{mark}  "
+                     f"({e.candidate.smiles}){note}")
     lines.append(f"# score: {ranking.score_name}; margin: score minus the next candidate's; shift: fitted shift of "
                  f"the predicted wavenumbers (cm^-1), '-' when not fitted; peaks: measured peaks matched / picked")
+    refined = [e for e in ranking.entries if e.refined]
+    if refined:
+        lines.append(f"# * recomputed at {refined[0].method} and ranked among themselves (the first {len(refined)}); "
+                     f"the others at {next((e.method for e in ranking.entries if not e.refined), '')}: scores of two "
+                     "levels are not compared with each other, so no margin is given across the line")
+    lines += assessment_lines(assessment)
     lines.append(f"# caution: {CAUTION}")
     return "\n".join(lines)
 
@@ -243,5 +265,31 @@ def ensemble_table(ens) -> str:
         b = m.prediction.strongest(1)[0]
         lines.append(f"{k:>4}  {m.relative_energy_kcal_mol:11.3f}  {m.weight:7.3f}  {m.gradient_calls:>9}  "
                      f"{m.seconds:7.2f}  {b.wavenumber_cm1:.0f} cm-1 {b.label}")
+    lines.append(f"# caution: {CAUTION}")
+    return "\n".join(lines)
+
+
+def verdict_report(verdict) -> str:
+    """The verdict of vibest.verdict.check_structure as text: conclusion, reasons, how sure,
+    the ranking, and the evidence by functional group."""
+    m = verdict.ranking.measured
+    lines = [f"sample: {m.source}" + (f"  ({m.title})" if m.title else ""),
+             f"intended structure: {verdict.intended.name} ({verdict.intended.smiles})",
+             f"verdict: {verdict.conclusion.upper()}"]
+    lines += [f"  {r}" for r in verdict.reasons]
+    lines += [f"  {line}" for line in assessment_lines(verdict.assessment)]
+    lines.append("")
+    lines.append(f"ranking ({len(verdict.decoys)} decoys: isomers and functional-group changes of the intended structure):")
+    table = ranking_table(verdict.ranking).splitlines()
+    lines += [line for line in table if not line.startswith("# caution")]
+    lines.append("")
+    lines.append("evidence by functional group (intended structure):")
+    width = max(len(e.name) for e in verdict.evidence)
+    for e in verdict.evidence:
+        if e.in_structure or e.status != "absent":
+            lines.append(f"  {e.name:<{width}}  {e.status:<21}  {e.message}")
+    absent = [e.name for e in verdict.evidence if not e.in_structure and e.status == "absent"]
+    if absent:
+        lines.append(f"  no strong band of groups the structure lacks: {', '.join(absent)}")
     lines.append(f"# caution: {CAUTION}")
     return "\n".join(lines)

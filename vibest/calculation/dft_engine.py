@@ -86,9 +86,6 @@ class PySCFEngine(Engine):
 
         if settings.dft is None:
             raise InputError(f"method {settings.method!r} is not a density-functional method")
-        if uhf:
-            raise InputError(f"{settings.method} is available for closed-shell molecules only; this one has "
-                             f"{uhf} unpaired electron(s): use GFN2-xTB (--method gfn2)")
         if settings.solvent:
             raise InputError(f"implicit solvent is available with the tight-binding methods only, not {settings.method}")
         self.settings = settings
@@ -98,7 +95,7 @@ class PySCFEngine(Engine):
         self.charge, self.uhf = int(charge), int(uhf)
         self._start = np.array(positions_bohr, dtype=float)
         self.count = 0
-        self.mol = build_pyscf_molecule(self.numbers, self._start, self.charge, settings.dft, resources.memory_mb)
+        self.mol = build_pyscf_molecule(self.numbers, self._start, self.charge, self.uhf, settings, resources.memory_mb)
         self._mf = None
         self._dm = None
 
@@ -200,15 +197,25 @@ class PySCFEngine(Engine):
         return mf
 
 
-def build_pyscf_molecule(numbers, positions_bohr, charge: int, dft: DFTSettings, memory_mb: int = 4000):
-    """PySCF ``Mole`` (Bohr, closed shell); InputError when the basis lacks an element."""
+def build_pyscf_molecule(numbers, positions_bohr, charge: int, uhf: int, settings: EngineSettings,
+                         memory_mb: int = 4000):
+    """PySCF ``Mole`` (Bohr, closed shell); InputError for unpaired electrons or an element the
+    basis set lacks."""
+    import warnings
+
     from ase.data import chemical_symbols
     from pyscf import gto
 
+    if uhf:
+        raise InputError(f"{settings.method} is available for closed-shell molecules only; this one has "
+                         f"{uhf} unpaired electron(s): use GFN2-xTB (--method gfn2)")
+    dft = settings.dft
     atoms = [(chemical_symbols[int(z)], tuple(map(float, p))) for z, p in zip(numbers, np.reshape(positions_bohr, (-1, 3)))]
     try:
-        mol = gto.M(atom=atoms, unit="Bohr", basis=dft.basis, charge=int(charge), spin=0, verbose=0,
-                    max_memory=int(memory_mb))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # PySCF suggests basis-set-exchange for a missing basis
+            mol = gto.M(atom=atoms, unit="Bohr", basis=dft.basis, charge=int(charge), spin=0, verbose=0,
+                        max_memory=int(memory_mb))
     except (KeyError, RuntimeError, ValueError) as exc:
         missing = sorted({a for a, _ in atoms if not _basis_has(a, dft.basis)})
         if missing:

@@ -135,6 +135,21 @@ def _rfo_step(hess: np.ndarray, grad: np.ndarray, rigid: np.ndarray, proj: np.nd
     return _rfo_solve(w[internal], v[:, internal], grad)
 
 
+#: Smallest curvature (Eh/Bohr^2 or Eh/rad^2) of a start Hessian taken from a calculation: a
+#: computed Hessian of another method can be nearly flat or slightly negative along soft modes,
+#: where a quasi-Newton step would be far too long.
+MIN_START_CURVATURE = 0.005
+
+
+def _floored(hess: np.ndarray) -> np.ndarray:
+    """``hess`` with its eigenvalues raised to at least MIN_START_CURVATURE, except those that
+    are zero by construction (projected-out or redundant directions, below 1e-8)."""
+    w, v = np.linalg.eigh(0.5 * (hess + hess.T))
+    keep = np.abs(w) < 1e-8
+    w = np.where(keep, w, np.maximum(w, MIN_START_CURVATURE))
+    return (v * w) @ v.T
+
+
 def _bfgs(hess: np.ndarray, step: np.ndarray, y: np.ndarray) -> np.ndarray:
     """BFGS update of ``hess`` (symmetric, C-ordered; updated in place and returned) from a step
     and its gradient change (unchanged when s.y <= 0)."""
@@ -160,9 +175,14 @@ class _CartesianSteps:
 
     name = "cartesian"
 
-    def __init__(self, numbers, x: np.ndarray, g: np.ndarray):
+    def __init__(self, numbers, x: np.ndarray, g: np.ndarray, hessian: np.ndarray | None = None):
         self.x, self.g = x, g
-        self.hess = lindh_hessian(numbers, x)
+        if hessian is None:
+            self.hess = lindh_hessian(numbers, x)
+        else:
+            rb = rigid_body_basis(x)
+            proj = np.eye(x.size) - rb @ rb.T
+            self.hess = np.ascontiguousarray(_floored(proj @ hessian @ proj))
 
     def propose(self, trust: float):
         n = len(self.x)
@@ -237,7 +257,8 @@ class _InternalSteps:
     #: Smallest Cholesky pivot of B^T B + R R^T of a complete set.
     COMPLETE_PIVOT = 1e-2
 
-    def __init__(self, internal: redundant_internals.InternalSet, numbers, x: np.ndarray, g: np.ndarray):
+    def __init__(self, internal: redundant_internals.InternalSet, numbers, x: np.ndarray, g: np.ndarray,
+                 hessian: np.ndarray | None = None):
         self.ic = internal
         self.x, self.g = x, g
         self.frame = self._frame(x, g)
@@ -253,6 +274,10 @@ class _InternalSteps:
         # of benchmarks/speed.py it needed as few or fewer gradients than the full Cartesian model
         # transformed to internals
         self.hess = np.diag(lindh_diagonal(numbers, x, internal.bonds, internal.bends, internal.torsions))
+        if hessian is not None and self.frame is not None and self.complete:
+            # H_q = G^T H_x G with G = M^-1 B^T, the generalised inverse of B (dx = G dq)
+            g_inv = _cho_solve(self.frame.chol, self.frame.b.T)
+            self.hess = np.ascontiguousarray(_floored(g_inv.T @ hessian @ g_inv))
 
     def _frame(self, x: np.ndarray, g: np.ndarray) -> _Frame | None:
         """The :class:`_Frame` at ``x``; None when M is not positive definite (the set no longer
@@ -324,11 +349,14 @@ class _InternalSteps:
 
 def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSettings = OptimizerSettings(),
              progress: Callable[[int, float, float], None] | None = None,
-             first: Evaluation | None = None) -> OptimizationResult:
+             first: Evaluation | None = None, hessian: np.ndarray | None = None) -> OptimizationResult:
     """Minimise the engine's energy from ``positions_bohr``.
 
     ``progress(step, energy_hartree, max_force)`` is called after each gradient.
-    ``first`` may carry an evaluation already made at the start geometry.
+    ``first`` may carry an evaluation already made at the start geometry. ``hessian`` (3N, 3N,
+    Eh/Bohr^2) is a start curvature at the start geometry instead of Lindh's model (e.g. a
+    cheaper method's Hessian when a costly method re-optimises its minimum); its eigenvalues are
+    raised to at least :data:`MIN_START_CURVATURE`.
     """
     if settings.coordinates not in COORDINATES:
         raise InputError(f"unknown optimiser coordinates {settings.coordinates!r}; choose one of {', '.join(COORDINATES)}")
@@ -353,11 +381,11 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
     if settings.coordinates == "internal":
         internal = redundant_internals.build(numbers, x)
         if internal is not None:
-            steps = _InternalSteps(internal, numbers, x, g)
+            steps = _InternalSteps(internal, numbers, x, g, hessian)
             if not steps.complete:
                 steps = None
     if steps is None:
-        steps = _CartesianSteps(numbers, x, g)
+        steps = _CartesianSteps(numbers, x, g, hessian)
     used = [steps.name]
     trust = settings.trust_radius_bohr
     converged = _max_atom_force(g) < settings.max_force_hartree_bohr

@@ -1,0 +1,241 @@
+"""Calibrate the confidence of a ranking on real measured gas-phase spectra, and print how it does.
+
+Rankings (default comparison settings, GFN2-xTB, benchmarks/data/measured_set.csv):
+  all       every distinct molecule of the set as candidates;
+  isomers   the molecules of the same formula (where there are several);
+  decoys    the right structure with its decoys (vibest.decoys, up to 8);
+  without   every molecule but the right one (the first candidate is always wrong).
+For each ranking the first candidate's score s1, margin m to the second and share f of the
+measured peaks it matches are the features (chosen by the cross-validated calibration error and
+log loss among score, margin, the margin's noise, order flips, group evidence against and matched
+share; benchmarks/confidence.py prints the figures of the chosen set), and whether it is the
+right structure the label. A logistic model P(right | s1, m, f) is fitted
+(vibest.confidence.fit_logistic); its calibration is measured with folds that hold out whole
+measured spectra (leave-one-spectrum-out), never with the model's own training rows. Printed:
+the reliability table, expected calibration error (ECE), and the two targets (wrong first
+candidates flagged by low confidence or a poor fit; right ones with confidence >= 0.7).
+
+    python benchmarks/confidence.py [--store FILE] [--write]
+
+``--write`` stores the features (benchmarks/data/confidence_features.csv; the test refits from
+it) and the model fitted on all rows (vibest/data/confidence.json).
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import sys
+from pathlib import Path
+
+import numpy as np
+from rdkit import Chem
+from rdkit.Chem import rdMolDescriptors
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import measured_set  # noqa: E402
+
+from vibest.calculation.driver import calculation_options  # noqa: E402
+from vibest.comparison import DEFAULT_MAX_SHIFT_CM1, DEFAULT_SCORE, compare  # noqa: E402
+from vibest.confidence import (LOW_CONFIDENCE, expected_calibration_error, fit_logistic,  # noqa: E402
+                               margin_noise, matched_share)
+from vibest.evidence import group_evidence  # noqa: E402
+from vibest.decoys import make_decoys  # noqa: E402
+from vibest.errors import VibestError  # noqa: E402
+from vibest.measured import load_spectrum  # noqa: E402
+from vibest.pipeline import SpectrumOptions  # noqa: E402
+from vibest.ranking import predict_stored  # noqa: E402
+from vibest.store import RecordStore  # noqa: E402
+
+ROOT = Path(__file__).resolve().parents[1]
+FEATURES = ROOT / "benchmarks" / "data" / "confidence_features.csv"
+MODEL = ROOT / "vibest" / "data" / "confidence.json"
+DECOYS_PER_SPECTRUM = 8
+#: The comparison settings the model holds for (vibest.comparison defaults; the benchmark files
+#: are gas-phase spectra, compared with rotational contours).
+SETTINGS = {"score": DEFAULT_SCORE, "method": "GFN2-xTB", "fit_shift": True, "max_shift_cm1": DEFAULT_MAX_SHIFT_CM1,
+            "intensity_power": 0.5, "fwhm_cm1": 16.0, "range_cm1": [500.0, 3800.0]}
+
+
+def formula(smiles: str) -> str:
+    return rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(smiles))
+
+
+def canonical(smiles: str) -> str:
+    return Chem.MolToSmiles(Chem.MolFromSmiles(smiles))
+
+
+def features(spectrum, candidates: list[str], right: str, preds: dict) -> dict:
+    """Features of the first candidate of a ranking: score, margin, the margin's noise (spread
+    under vibest.confidence.PERTURBATIONS) and how often the order flips under them, the share of
+    measured peaks its prediction matches, the group evidence against it; and the label."""
+    comps = {s: compare(preds[s], spectrum) for s in candidates}
+    order = sorted(candidates, key=lambda s: -comps[s].score)
+    first, second = order[0], order[1]
+    s1, s2 = comps[first].score, comps[second].score
+    spread, flips = margin_noise(spectrum, preds[first], preds[second], {})
+    c = comps[first]
+    matched = matched_share(c)
+    against = sum(e.against for e in group_evidence(preds[first], c))
+    return {"score": round(s1, 6), "margin": round(s1 - s2, 6), "noise": round(spread, 6), "flips": len(flips),
+            "matched": round(matched, 4), "against": against, "right": int(canonical(first) == canonical(right))}
+
+
+def build_rows(store: RecordStore) -> list[dict]:
+    folder = measured_set.fetch()
+    entries = measured_set.entries()
+    calc = calculation_options("gfn2")
+    preds = {}
+
+    def pred(smi):
+        if smi not in preds:
+            preds[smi], _ = predict_stored(smi, calc, SpectrumOptions(), store)
+        return preds[smi]
+
+    every = sorted({e.smiles for e in entries})
+    for smi in every:
+        pred(smi)
+    rows = []
+    for e in entries:
+        spectrum = load_spectrum(folder / e.file)
+        sets = {"all": every, "without": [s for s in every if s != e.smiles]}
+        iso = [s for s in every if formula(s) == formula(e.smiles)]
+        if len(iso) > 1:
+            sets["isomers"] = iso
+        decoys = []
+        for d in make_decoys(e.smiles):
+            if len(decoys) == DECOYS_PER_SPECTRUM:
+                break
+            try:
+                pred(d.smiles)
+                decoys.append(d.smiles)
+            except VibestError as exc:
+                print(f"  decoy {d.smiles} of {e.name} left out: {exc}", file=sys.stderr)
+        if decoys:
+            sets["decoys"] = [e.smiles] + decoys
+        for kind, cands in sets.items():
+            rows.append({"spectrum": e.name, "ranking": kind, "candidates": len(cands),
+                         **features(spectrum, cands, e.smiles, preds)})
+        print(f"  {e.name}: {len(sets)} rankings", file=sys.stderr)
+    return rows
+
+
+def read_rows(path: Path = FEATURES) -> list[dict]:
+    with open(path) as fh:
+        out = []
+        for r in csv.DictReader(line for line in fh if not line.startswith("#")):
+            out.append({**r, **{k: float(r[k]) for k in ("score", "margin", "noise", "matched")},
+                        **{k: int(r[k]) for k in ("right", "candidates", "flips", "against")}})
+        return out
+
+
+FEATURE_NAMES = ("score", "margin", "matched")
+
+
+def fit_rows(rows: list[dict]) -> np.ndarray:
+    x = np.array([[r[k] for k in FEATURE_NAMES] for r in rows])
+    y = np.array([r["right"] for r in rows])
+    return fit_logistic(x, y)
+
+
+def probability(coef: np.ndarray, row: dict) -> float:
+    z = coef[0] + sum(c * row[k] for c, k in zip(coef[1:], FEATURE_NAMES))
+    return float(1.0 / (1.0 + np.exp(-z)))
+
+
+def poor_fit_threshold(rows: list[dict]) -> float:
+    """The 5th percentile of the scores of right first candidates (below it: 'no good fit')."""
+    right = np.array([r["score"] for r in rows if r["right"]])
+    return float(np.percentile(right, 5)) if len(right) else 0.0
+
+
+def cross_validated(rows: list[dict]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Held-out probabilities by leave-one-spectrum-out (every ranking of a spectrum held out
+    together), with the poor-fit threshold also fitted without it; returns (p, labels, poor)."""
+    spectra = sorted({r["spectrum"] for r in rows})
+    p = np.zeros(len(rows))
+    poor = np.zeros(len(rows), dtype=bool)
+    for name in spectra:
+        train = [r for r in rows if r["spectrum"] != name]
+        coef = fit_rows(train)
+        threshold = poor_fit_threshold(train)
+        for k, r in enumerate(rows):
+            if r["spectrum"] == name:
+                p[k] = probability(coef, r)
+                poor[k] = r["score"] < threshold
+    return p, np.array([r["right"] for r in rows]), poor
+
+
+def report(rows: list[dict]) -> dict:
+    p, y, poor = cross_validated(rows)
+    ece = expected_calibration_error(p, y)
+    print(f"{len(rows)} rankings of {len({r['spectrum'] for r in rows})} spectra; first candidate right in "
+          f"{y.mean():.0%}")
+    for kind in ("all", "isomers", "decoys", "without"):
+        sel = np.array([r["ranking"] == kind for r in rows])
+        if sel.any():
+            print(f"  {kind:<8} {sel.sum():>3} rankings, right first {y[sel].mean():5.0%}, "
+                  f"mean held-out confidence {p[sel].mean():.2f}")
+    print("\nreliability (held-out, leave-one-spectrum-out):")
+    print(f"  {'confidence':<12} {'rankings':>8} {'right':>7} {'mean p':>7}")
+    edges = np.linspace(0, 1, 6)
+    for lo, hi in zip(edges[:-1], edges[1:]):
+        sel = (p >= lo) & ((p < hi) | (hi == 1.0))
+        if sel.any():
+            print(f"  {lo:.1f}-{hi:.1f}      {sel.sum():>8} {y[sel].mean():7.0%} {p[sel].mean():7.2f}")
+    flagged = (p < LOW_CONFIDENCE) | poor
+    wrong, right = y == 0, y == 1
+    print(f"\nexpected calibration error (10 bins, held out): {ece:.3f}   (target <= 0.10)")
+    print(f"wrong first candidates flagged (confidence < {LOW_CONFIDENCE} or no good fit): "
+          f"{flagged[wrong].mean():.0%} of {wrong.sum()}   (target >= 80 %)")
+    print(f"right first candidates with confidence >= {LOW_CONFIDENCE} (and no poor-fit flag): "
+          f"{(~flagged[right]).mean():.0%} of {right.sum()}   (target >= 80 %)")
+    return {"ece": ece, "wrong_flagged": float(flagged[wrong].mean()), "right_confident": float((~flagged[right]).mean())}
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--store", default=None, help="result store (SQLite) [the default store]")
+    ap.add_argument("--write", action="store_true", help="write the features table and vibest/data/confidence.json")
+    ap.add_argument("--from-table", action="store_true", help="use the stored features table instead of computing")
+    ap.add_argument("--dump", default=None, help="also write the features to this CSV file")
+    args = ap.parse_args()
+    if args.from_table:
+        rows = read_rows()
+    else:
+        try:
+            rows = build_rows(RecordStore(args.store))
+        except measured_set.FetchError as exc:
+            print(f"skipped: {exc}")
+            return
+    figures = report(rows)
+    coef = fit_rows(rows)
+    print(f"\nmodel on all rows: P = 1 / (1 + exp(-({coef[0]:.3f} + {coef[1]:.3f} s1 + {coef[2]:.3f} m "
+          f"+ {coef[3]:.3f} f))); poor fit below s1 = {poor_fit_threshold(rows):.3f}")
+    if args.dump:
+        with open(args.dump, "w", newline="") as fh:
+            w = csv.DictWriter(fh, fieldnames=list(rows[0]))
+            w.writeheader()
+            w.writerows(rows)
+    if args.write:
+        if not args.from_table:
+            with open(FEATURES, "w", newline="") as fh:
+                fh.write("# Features of rankings of real measured spectra (benchmarks/confidence.py; spectra from the\n"
+                         "# jcamp 1.3.2 sdist, benchmarks/data/measured_set.csv). score: first candidate's score;\n"
+                         "# margin: to the second; right: whether the first is the measured compound.\n")
+                w = csv.DictWriter(fh, fieldnames=["spectrum", "ranking", "candidates", "score", "margin", "noise", "flips",
+                                                   "matched", "against", "right"])
+                w.writeheader()
+                w.writerows(rows)
+        MODEL.write_text(json.dumps({
+            "intercept": round(float(coef[0]), 6), "score_weight": round(float(coef[1]), 6),
+            "margin_weight": round(float(coef[2]), 6), "matched_weight": round(float(coef[3]), 6), "settings": SETTINGS,
+            "poor_fit_score": round(poor_fit_threshold(rows), 6), "cross_validated_ece": round(figures["ece"], 4),
+            "script": "benchmarks/confidence.py", "rankings": len(rows)}, indent=1) + "\n")
+        print(f"wrote {FEATURES.relative_to(ROOT)} and {MODEL.relative_to(ROOT)}")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,83 @@
+"""Wall time of the density-functional tiers against molecule size, on this machine.
+
+For molecules of 3 to 24 atoms, runs both ways to use B3LYP-D3(BJ)/6-31G(d):
+  intensities  gfn2+b3lyp: GFN2-xTB record, then B3LYP dipole derivatives at its geometry;
+  full         b3lyp: GFN2-xTB pre-optimisation, B3LYP optimisation, analytic Hessian;
+and prints atoms, basis functions, DFT gradients and seconds per stage, then fits
+seconds = a * (basis functions / 100) ** b per tier (least squares in logs), the model
+vibest.calculation.dft_engine.COST_MODEL uses to refuse hopeless requests. Time it on a quiet
+machine: other work running beside it can change the figures by 2x.
+
+    python benchmarks/dft_cost.py [--quick] [--tiers intensities,full]
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+import numpy as np
+
+from vibest.calculation.driver import calculation_options, compute_record
+from vibest.calculation.hessian import default_workers
+from vibest.structure import build_molecule
+
+MOLECULES = [
+    ("water", "O"),
+    ("formaldehyde", "C=O"),
+    ("acetone", "CC(C)=O"),
+    ("benzene", "c1ccccc1"),
+    ("toluene (7 heavy atoms)", "Cc1ccccc1"),
+    ("acetophenone (9 heavy atoms)", "CC(=O)c1ccccc1"),
+    ("methyl benzoate (10 heavy atoms)", "COC(=O)c1ccccc1"),
+    ("4-ethylanisole (10 heavy atoms, 24 atoms)", "CCc1ccc(OC)cc1"),
+]
+TIERS = {"intensities": "gfn2+b3lyp", "full": "b3lyp"}
+
+
+def run(smiles: str, level: str) -> dict:
+    mol = build_molecule(smiles)
+    options = calculation_options(level, allow_long=True)
+    t0 = time.perf_counter()
+    record, converged, _ = compute_record(mol, options)
+    seconds = time.perf_counter() - t0
+    t = record.timings
+    return {"atoms": mol.natoms, "basis": t.get("basis_functions", 0), "seconds": seconds,
+            "gradients": t.get("optimization_gradients", 0) if level == "b3lyp" else 0,
+            "hessian_s": t.get("hessian_seconds", 0.0) if level == "b3lyp" else 0.0,
+            "intensity_s": t.get("intensity_seconds", 0.0), "converged": converged}
+
+
+def fit(points: list[tuple[int, float]]) -> tuple[float, float]:
+    x = np.log(np.array([p[0] for p in points]) / 100.0)
+    y = np.log(np.array([p[1] for p in points]))
+    b, log_a = np.polyfit(x, y, 1)
+    return float(np.exp(log_a)), float(b)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="the four smallest molecules only")
+    ap.add_argument("--tiers", default="intensities,full")
+    args = ap.parse_args()
+    tiers = [t.strip() for t in args.tiers.split(",")]
+    molecules = MOLECULES[:4] if args.quick else MOLECULES
+    print(f"{default_workers()} cores; B3LYP-D3(BJ)/6-31G(d), PySCF grid level 2")
+    print(f"{'molecule':<42} {'tier':<12} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
+          f"{'intens. s':>9} {'total s':>8}")
+    points: dict[str, list] = {t: [] for t in tiers}
+    for name, smiles in molecules:
+        for tier in tiers:
+            r = run(smiles, TIERS[tier])
+            points[tier].append((r["basis"], r["seconds"]))
+            print(f"{name:<42} {tier:<12} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
+                  f"{r['intensity_s']:9.1f} {r['seconds']:8.1f}" + ("" if r["converged"] else "  (not converged)"),
+                  flush=True)
+    print("\nfitted seconds = a * (basis functions / 100) ** b on this machine:")
+    for tier, pts in points.items():
+        a, b = fit([p for p in pts if p[0] >= 30])
+        print(f"  {tier:<12} a = {a:8.1f} s, b = {b:4.2f}")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,57 @@
+"""Decoys: alternative structures made from an intended one (RDKit only, no calculation).
+
+Expected isomers are facts of organic chemistry (common practice, no source): 2-butanone and
+butanal are C4H8O isomers, 3-buten-2-ol is its allylic-alcohol isomer, ethyl vinyl ether its
+enol ether; 2-chlorotoluene has 3- and 4-chlorotoluene as ring-position isomers."""
+
+import pytest
+from rdkit import Chem
+from rdkit.Chem import rdMolDescriptors
+
+from vibest.decoys import make_decoys
+from vibest.errors import InputError
+
+
+def canon(smiles: str) -> str:
+    return Chem.MolToSmiles(Chem.MolFromSmiles(smiles))
+
+
+def formula(smiles: str) -> str:
+    return rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(smiles))
+
+
+def test_decoys_of_2_butanone():
+    decoys = make_decoys("CCC(C)=O")
+    smiles = {d.smiles for d in decoys}
+    assert canon("CCCC=O") in smiles  # butanal: the carbonyl moved along the chain
+    assert canon("C=CC(C)O") in smiles  # 3-buten-2-ol
+    assert canon("C=COCC") in smiles  # ethyl vinyl ether (enol ether)
+    assert canon("CCC(C)=O") not in smiles
+    assert len(smiles) == len(decoys)  # distinct
+    for d in decoys:
+        assert Chem.MolFromSmiles(d.smiles) is not None and d.reason
+    # isomers and one-CH2 homologues only
+    assert {formula(s) for s in smiles} <= {"C4H8O", "C3H6O", "C5H10O"}
+
+
+def test_ring_positions_are_moved():
+    smiles = {d.smiles for d in make_decoys("Cc1ccccc1Cl")}
+    assert canon("Cc1cccc(Cl)c1") in smiles and canon("Cc1ccc(Cl)cc1") in smiles
+
+
+def test_functional_group_changes():
+    assert canon("COC") in {d.smiles for d in make_decoys("CCO")}  # alcohol -> ether
+    assert canon("COC(C)=O") in {d.smiles for d in make_decoys("CC(=O)O")}  # acid -> methyl ester
+    assert canon("CC(=O)O") in {d.smiles for d in make_decoys("COC(C)=O")}  # and back
+
+
+def test_count_limits_and_order_is_deterministic():
+    a = make_decoys("CCCC(C)=O")
+    assert make_decoys("CCCC(C)=O") == a
+    assert make_decoys("CCCC(C)=O", count=3) == a[:3]
+
+
+def test_a_molecule_without_substituents_has_no_decoys_and_bad_smiles_is_refused():
+    assert make_decoys("c1ccccc1") == []
+    with pytest.raises(InputError):
+        make_decoys("C1CC")

@@ -1,0 +1,147 @@
+"""The verdict: group evidence on real measured spectra, each flag on a constructed case, the
+confidence model refitted from its features table, and the check command's output.
+
+Real spectra: gas-phase files of the jcamp 1.3.2 sdist (benchmarks/data/measured_set.csv,
+fetched and SHA-256-checked at test time). Group positions: common practice (O-H stretch of
+gas-phase alcohols near 3650-3680 cm^-1, terminal alkyne C-H near 3330 cm^-1, no source)."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from vibest.comparison import compare
+from vibest.confidence import (LOW, MARGIN_IN_NOISE, POOR_FIT, SHIFT_AT_BOUND, ConfidenceModel, assess,
+                               expected_calibration_error, fit_logistic, shift_flag, shipped_model)
+from vibest.evidence import group_evidence
+from vibest.measured import MeasuredSpectrum, load_spectrum
+from vibest.ranking import Candidate, rank_candidates
+from vibest.verdict import CONSISTENT, INCONCLUSIVE, NOT_SUPPORTED, check_structure
+
+from .conftest import prediction_of
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def status(evidence, name):
+    return next(e for e in evidence if e.name == name).status
+
+
+@pytest.mark.slow
+def test_group_evidence_on_real_alcohol_spectrum(measured_folder):
+    ethanol = load_spectrum(measured_folder / "ethanol.jdx")
+    right = group_evidence(prediction_of("CCO"), compare(prediction_of("CCO"), ethanol))
+    assert status(right, "O-H stretch") == "seen"
+    assert status(right, "C=O stretch") == "absent"  # no strong band in the C=O window
+    propane = group_evidence(prediction_of("CCC"), compare(prediction_of("CCC"), ethanol))
+    oh = next(e for e in propane if e.name == "O-H stretch")
+    assert oh.status == "unexplained band" and 3600 < oh.measured_cm1 < 3700 and oh.against
+    aldehyde = group_evidence(prediction_of("CC=O"), compare(prediction_of("CC=O"), ethanol))
+    assert status(aldehyde, "C=O stretch") == "missing"
+
+
+@pytest.mark.slow
+def test_group_evidence_missing_alkyne_on_real_propylene_spectrum(measured_folder):
+    propylene = load_spectrum(measured_folder / "propylene.jdx")
+    propyne = group_evidence(prediction_of("C#CC"), compare(prediction_of("C#CC"), propylene))
+    assert status(propyne, "acetylenic C-H stretch") == "missing"
+    own = group_evidence(prediction_of("C=CC"), compare(prediction_of("C=CC"), propylene))
+    assert not any(e.against for e in own)
+
+
+def _synthetic(pred, shift_cm1=0.0, lo=400.0, hi=4000.0) -> MeasuredSpectrum:
+    """A constructed 'measured' spectrum: the prediction's own curve, shifted (for flag tests only)."""
+    x = np.arange(lo, hi, 1.0)
+    comp_grid = pred.spectrum.wavenumbers_cm1
+    y = np.interp(x - shift_cm1, comp_grid, pred.spectrum.absorbance_normalised)
+    return MeasuredSpectrum(x, y, "absorbance", source="constructed")
+
+
+def test_shift_at_bound_flag_on_a_constructed_case():
+    water = prediction_of("O")
+    shifted = compare(water, _synthetic(water, shift_cm1=45.0))
+    assert abs(shifted.shift_cm1) == pytest.approx(20.0, abs=0.5)
+    assert shift_flag(shifted, 20.0).kind == SHIFT_AT_BOUND
+    assert shift_flag(compare(water, _synthetic(water)), 20.0) is None
+
+
+def test_margin_within_noise_poor_fit_and_low_confidence_on_constructed_cases():
+    formaldehyde = prediction_of("C=O")
+    measured = _synthetic(formaldehyde)
+    # two candidates of the same structure: a margin of zero is within any noise
+    twice = rank_candidates(measured, [Candidate("a", "C=O"), Candidate("b", "O=C")])
+    model = ConfidenceModel(0.0, 1.0, 1.0, 0.0, {"score": "regional"}, poor_fit_score=1.5, cross_validated_ece=0.0)
+    kinds = {f.kind for f in assess(twice, {}, "GFN2-xTB", 16.0, model).flags}
+    assert MARGIN_IN_NOISE in kinds and POOR_FIT in kinds  # every score is below 1.5
+    low = ConfidenceModel(-10.0, 1.0, 1.0, 0.0, {"score": "regional"}, poor_fit_score=0.0, cross_validated_ece=0.0)
+    result = assess(twice, {}, "GFN2-xTB", 16.0, low)
+    assert result.confidence < 0.01 and LOW in {f.kind for f in result.flags}
+    # another setting than the model's: no confidence, and says why
+    other = assess(twice, {}, "GFN2-xTB", 16.0, dataclasses.replace(low, settings={"score": "pearson"}))
+    assert other.confidence is None and "score" in other.note
+
+
+def test_a_clear_case_has_no_flags():
+    water = prediction_of("O")
+    ranking = rank_candidates(_synthetic(water), [Candidate("water", "O"), Candidate("formaldehyde", "C=O")])
+    model = ConfidenceModel(-1.0, 1.0, 5.0, 0.0, {"score": "regional"}, poor_fit_score=0.5, cross_validated_ece=0.0)
+    result = assess(ranking, {}, "GFN2-xTB", 16.0, model)
+    assert result.flags == () and result.confidence > 0.9 and result.sure
+
+
+def test_calibration_refit_reproduces_the_shipped_model():
+    """benchmarks/confidence.py --write fitted vibest/data/confidence.json on the features table it
+    wrote; refitting from that table gives the same coefficients, threshold and held-out ECE."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import confidence as bench
+
+    rows = bench.read_rows()
+    model = shipped_model()
+    coef = bench.fit_rows(rows)
+    assert coef == pytest.approx([model.intercept, model.score_weight, model.margin_weight, model.matched_weight],
+                                 abs=1e-4)
+    assert bench.poor_fit_threshold(rows) == pytest.approx(model.poor_fit_score, abs=1e-5)
+    p, y, _ = bench.cross_validated(rows)
+    assert expected_calibration_error(p, y) == pytest.approx(model.cross_validated_ece, abs=1e-3)
+
+
+def test_logistic_fit_and_calibration_error_on_known_data():
+    # data drawn from a known logistic model: the fit recovers it (common practice, no source)
+    rng = np.random.default_rng(1)
+    x = rng.uniform(-2, 2, size=(4000, 2))
+    p = 1 / (1 + np.exp(-(0.5 + 1.5 * x[:, 0] - 2.0 * x[:, 1])))
+    y = rng.uniform(size=len(p)) < p
+    assert fit_logistic(x, y) == pytest.approx([0.5, 1.5, -2.0], abs=0.2)
+    assert expected_calibration_error(p, y) < 0.03
+    assert expected_calibration_error(np.full(100, 0.9), np.zeros(100)) == pytest.approx(0.9)
+
+
+@pytest.mark.slow
+def test_verdict_on_real_spectra(measured_folder, tmp_path):
+    store = tmp_path / "store.sqlite"
+    from vibest.store import RecordStore
+
+    methanol = load_spectrum(measured_folder / "methanol.jdx")
+    v = check_structure(methanol, "CO", name="methanol", store=RecordStore(store))
+    assert v.intended_rank is not None and v.conclusion in (CONSISTENT, INCONCLUSIVE, NOT_SUPPORTED)
+    assert any(d.smiles == "COC" or d.smiles == "CCO" for d in v.decoys)
+    assert json.loads(json.dumps(v.to_dict()))["intended"]["smiles"] == "CO"
+    # a structure lacking the O-H the spectrum shows, with a C=O it does not show: not consistent
+    wrong = check_structure(methanol, "CC=O", name="acetaldehyde", decoys=2, store=RecordStore(store))
+    assert wrong.conclusion != CONSISTENT
+    assert any("C=O" in r or "O-H" in r for r in wrong.reasons)
+
+
+@pytest.mark.slow
+def test_partial_coverage_still_gives_a_verdict_for_what_can_be_judged(measured_folder):
+    ethanol = load_spectrum(measured_folder / "ethanol.jdx")
+    keep = ethanol.wavenumbers_cm1 < 2000
+    part = dataclasses.replace(ethanol, wavenumbers_cm1=ethanol.wavenumbers_cm1[keep], values=ethanol.values[keep])
+    v = check_structure(part, "CCO", decoys=2)
+    oh = next(e for e in v.evidence if e.name == "O-H stretch")
+    assert oh.status == "not covered" and not oh.against

@@ -1,0 +1,135 @@
+"""The verdict: is the measured sample the intended structure, and how sure can one be?
+
+The intended structure is ranked against the measured spectrum together with its decoys
+(:mod:`vibest.decoys`: isomers and functional-group changes a synthesis could have given) and
+any further candidates; the ranking is assessed (:mod:`vibest.confidence`: calibrated
+confidence, flags) and the intended structure's functional groups are checked band by band
+(:mod:`vibest.evidence`). The conclusion is one of three, in plain words:
+
+* **consistent**: the intended structure ranks first with confidence of at least 0.7, no flag,
+  and no group evidence against it;
+* **not supported**: another candidate ranks first with confidence of at least 0.7 and no flag,
+  or a band the structure needs is missing while another candidate ranks first;
+* **inconclusive**: everything else (the reasons are listed).
+
+Nothing here computes more than predictions (stored) and comparisons.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+from .calculation.driver import CalculationOptions
+from .confidence import LOW_CONFIDENCE, Assessment, assess
+from .decoys import Decoy, make_decoys
+from .errors import InputError
+from .evidence import GroupEvidence, group_evidence
+from .measured import MeasuredSpectrum
+from .pipeline import CAUTION, SpectrumOptions
+from .ranking import Candidate, Ranking, rank_candidates
+from .store import RecordStore
+from .structure import canonical_smiles
+
+CONSISTENT, NOT_SUPPORTED, INCONCLUSIVE = "consistent", "not supported", "inconclusive"
+DEFAULT_DECOYS = 8
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """The answer to "is this sample the intended structure?" (see the module docstring).
+
+    Attributes:
+        intended: the intended structure (name, SMILES).
+        conclusion: "consistent", "not supported" or "inconclusive".
+        reasons: the sentences behind the conclusion, most important first.
+        ranking: the ranking of the intended structure, its decoys and further candidates.
+        assessment: confidence of the ranking's first candidate and its flags.
+        evidence: functional-group evidence for the intended structure.
+        decoys: the decoys that were ranked (with why each was made).
+    """
+
+    intended: Candidate
+    conclusion: str
+    reasons: tuple[str, ...]
+    ranking: Ranking
+    assessment: Assessment
+    evidence: tuple[GroupEvidence, ...]
+    decoys: tuple[Decoy, ...]
+
+    @property
+    def intended_rank(self) -> int | None:
+        for e in self.ranking.entries:
+            if e.candidate == self.intended:
+                return e.rank
+        return None
+
+    def to_dict(self) -> dict:
+        return {"caution": CAUTION, "intended": {"name": self.intended.name, "smiles": self.intended.smiles},
+                "conclusion": self.conclusion, "reasons": list(self.reasons), "intended_rank": self.intended_rank,
+                "assessment": self.assessment.to_dict(), "evidence": [e.to_dict() for e in self.evidence],
+                "decoys": [{"smiles": d.smiles, "reason": d.reason} for d in self.decoys],
+                "ranking": self.ranking.to_dict()}
+
+
+def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None = None,
+                    decoys: int = DEFAULT_DECOYS, candidates: list[Candidate] | tuple = (),
+                    calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
+                    store: RecordStore | None = None, progress: Callable[[int, int, str], None] | None = None,
+                    **compare_options) -> Verdict:
+    """Judge whether ``measured`` is the structure ``smiles`` (see the module docstring).
+
+    ``decoys``: how many generated decoys to rank with it; ``candidates``: further structures to
+    rank; ``compare_options`` go to :func:`vibest.comparison.compare` (and the confidence is
+    given only for the settings it was calibrated for)."""
+    if decoys < 0:
+        raise InputError("the number of decoys cannot be negative")
+    own = canonical_smiles(smiles)
+    intended = Candidate(name or smiles, smiles)
+    made = tuple(make_decoys(smiles, decoys))
+    seen = {own}
+    pool = [intended]
+    for d in made:
+        pool.append(Candidate(d.name, d.smiles))
+        seen.add(d.smiles)
+    for c in candidates:
+        key = canonical_smiles(c.smiles)
+        if key not in seen:
+            seen.add(key)
+            pool.append(c)
+    ranking = rank_candidates(measured, pool, calc=calc, spec=spec, store=store, progress=progress, **compare_options)
+    entry = next(e for e in ranking.entries if e.candidate == intended)
+    if entry.comparison is None:
+        raise InputError(f"the intended structure could not be predicted: {entry.error}")
+    if len(pool) == 1:
+        assessment = Assessment(None, (), "no decoy or other candidate to rank against")
+    else:
+        assessment = assess(ranking, compare_options, calc.method_name, spec.fwhm_cm1)
+    evidence = tuple(group_evidence(entry.prediction, entry.comparison))
+    conclusion, reasons = _conclude(intended, ranking, assessment, evidence)
+    return Verdict(intended, conclusion, tuple(reasons), ranking, assessment, evidence, made)
+
+
+def _conclude(intended: Candidate, ranking: Ranking, assessment: Assessment,
+              evidence: tuple[GroupEvidence, ...]) -> tuple[str, list[str]]:
+    scored = [e for e in ranking.entries if e.comparison is not None]
+    first = scored[0]
+    mine = next(e for e in scored if e.candidate == intended)
+    against = [e.message for e in evidence if e.against]
+    conf = assessment.confidence
+    conf_text = f"confidence {conf:.2f}" if conf is not None else f"no calibrated confidence ({assessment.note})"
+    flags = [f.message for f in assessment.flags]
+    if first.candidate == intended:
+        head = (f"{intended.name} ranks first of {len(scored)} candidates (score {mine.score:.3f}, "
+                f"{conf_text})")
+        if conf is not None and conf >= LOW_CONFIDENCE and not flags and not against:
+            seen = [e.name for e in evidence if e.in_structure and e.status == "seen"]
+            support = f"; bands seen: {', '.join(seen)}" if seen else ""
+            return CONSISTENT, [head + support]
+        return INCONCLUSIVE, [head + (", but:" if flags or against else ": not sure enough")] + flags + against
+    head = (f"{intended.name} ranks {mine.rank} of {len(scored)} (score {mine.score:.3f}); "
+            f"{first.candidate.name} ({first.candidate.smiles}) fits better (score {first.score:.3f}, {conf_text})")
+    missing = [e for e in evidence if e.in_structure and e.status == "missing"]
+    if (conf is not None and conf >= LOW_CONFIDENCE and not flags) or missing:
+        return NOT_SUPPORTED, [head] + against + flags
+    return INCONCLUSIVE, [head + (", but:" if flags or against else ": not sure enough")] + flags + against
