@@ -3,8 +3,15 @@
 from __future__ import annotations
 
 import functools
+import os
+import tempfile
+from pathlib import Path
 
 import pytest
+
+# The tests never touch the user's result store: commands that use the default store get one in a
+# temporary folder (subprocesses inherit it).
+os.environ["VIBEST_STORE"] = str(Path(tempfile.mkdtemp(prefix="vibest-test-store-")) / "store.sqlite")
 
 from vibest.pipeline import CalculationOptions, analyse, compute_record
 from vibest.structure import build_molecule

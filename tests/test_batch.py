@@ -55,7 +55,7 @@ def test_key_bands_are_trade_facts(tmp_path):
     GFN2-xTB puts it higher, so the window is wide), degenerate C-H stretches of methane count once."""
     entries = predict_many([("acetonitrile", "CC#N"), ("methane", "C")], store=tmp_path / "s.sqlite", workers=1)
     top = entries[0].key_bands[0]
-    assert "C#N stretch" in top.label and 2150 < top.wavenumber_cm1 < 2350
+    assert "C\u2261N stretch" in top.label and 2150 < top.wavenumber_cm1 < 2350
     ch = [b for b in entries[1].key_bands if "C-H stretch" in b.label]
     assert len(ch) == len({round(b.wavenumber_cm1) for b in ch})
 
@@ -204,8 +204,9 @@ def test_cli_batch_writes_table_and_reports_failures(tmp_path):
     assert "computed 2, from store 0, failed 1" in res.output and "row 2 nonsense" in res.output
     table = tmp_path / "in.vibest.csv"
     lines = table.read_text().splitlines()
-    assert lines[0].startswith("# Predicted spectra are estimates")
-    rows = list(csv.DictReader(lines[1:]))
+    assert lines[0].startswith("row,name,smiles")  # a table from its first line; the caution beside it
+    assert "Predicted spectra are estimates" in (tmp_path / "in.vibest.csv.meta.json").read_text()
+    rows = list(csv.DictReader(lines))
     assert [r["status"] for r in rows] == ["computed", "failed", "computed"]
     assert all(os.path.exists(f) for f in rows[0]["files"].split(";"))
     res = CliRunner().invoke(main, ["store", "--store", str(tmp_path / "s.sqlite"), "--list"])

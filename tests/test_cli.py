@@ -42,7 +42,10 @@ def test_predict_writes_outputs(tmp_path):
     data = json.loads(files["json"].read_text())
     assert len(data["bands"]) == 3 and data["settings"]["engine"]["method"] == "GFN2-xTB"
     rows = files["csv"].read_text().splitlines()
-    assert rows[2].startswith("wavenumber_cm1") and len(rows) == 3 + 3601
+    # header row first (spreadsheets read it as a table), what it is in the sidecar JSON
+    assert rows[0].startswith("wavenumber_cm1") and len(rows) == 1 + 3601
+    meta = json.loads((tmp_path / "w.csv.meta.json").read_text())
+    assert meta["smiles"] == "O" and "confirm" in meta["caution"] and meta["method"] == "GFN2-xTB"
     assert files["png"].stat().st_size > 10000
     assert run("predict", "O", "-q", "--plot", str(files["svg"]), "--transmittance").exit_code == 0
     assert files["svg"].read_text().lstrip().startswith("<?xml")
@@ -96,3 +99,57 @@ def test_analysis_options_are_checked_before_any_calculation(monkeypatch, args, 
     monkeypatch.setattr(vibest.pipeline, "predict", no_calculation)
     res = run("predict", "CCO", "-q", *args)
     assert res.exit_code == 2 and message in res.output, res.output
+
+
+def test_output_paths_are_checked_before_any_calculation(monkeypatch, tmp_path):
+    import vibest.ranking
+
+    def no_calculation(*a, **k):
+        raise AssertionError("computed before checking the outputs")
+
+    monkeypatch.setattr(vibest.ranking, "compute_record", no_calculation)
+    blocker = tmp_path / "a-file"
+    blocker.write_text("x")
+    same = str(tmp_path / "x.out")
+    for args, message in ((["--csv", str(blocker / "sub" / "s.csv")], "cannot create the folder"),
+                          (["--csv", same, "--json", same], "give each output its own file"),
+                          (["--plot", str(tmp_path / "p.txt")], "file type"),
+                          (["--json", str(tmp_path)], "is a folder")):
+        res = run("predict", "CCO", "-q", "--no-store", *args)
+        assert res.exit_code == 2 and message in res.output, (args, res.output)
+
+
+def test_a_failing_output_does_not_stop_the_others_and_the_result_is_kept(monkeypatch, tmp_path):
+    from vibest import output
+    from vibest.store import RecordStore
+
+    def broken(pred, path):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(output, "write_spectrum_csv", broken)
+    store = tmp_path / "store.sqlite"
+    res = run("predict", "O", "-q", "--store", str(store), "--csv", str(tmp_path / "s.csv"),
+              "--json", str(tmp_path / "s.json"), "--workers", "1")
+    assert res.exit_code == 2 and "No space left on device" in res.output
+    assert (tmp_path / "s.json").exists() and not (tmp_path / "s.csv").exists()
+    assert RecordStore(store).count() == 1  # running the command again costs no calculation
+
+
+def test_files_are_replaced_whole(tmp_path, monkeypatch):
+    """A write that fails midway leaves the previous file as it was (temporary file + rename)."""
+    from vibest.files import atomic_write_text
+
+    target = tmp_path / "result.json"
+    target.write_text("old and complete")
+
+    class Boom(Exception):
+        pass
+
+    def failing_fsync(fd):
+        raise Boom()
+
+    monkeypatch.setattr("os.fsync", failing_fsync)
+    with pytest.raises(Boom):
+        atomic_write_text(target, "new" * 1000)
+    assert target.read_text() == "old and complete"
+    assert [p.name for p in tmp_path.iterdir()] == ["result.json"]  # no temporary file left behind

@@ -42,7 +42,7 @@ def test_rank_command_table_csv_and_plots(tmp_path):
     lines = [l for l in res.output.splitlines() if l.strip().startswith("1 ")]
     assert lines and "acetone" in lines[0]
     rows = (tmp_path / "r.csv").read_text().splitlines()
-    assert rows[1].startswith("rank") and ",acetone," in rows[2]
+    assert rows[0].startswith("rank") and ",acetone," in rows[1] and "shift_cm1" in rows[0]
     assert sorted(p.name for p in (tmp_path / "plots").iterdir()) == ["rank1.png", "rank2.png"]
 
 

@@ -154,3 +154,32 @@ def test_calculation_options_check_their_values():
     with pytest.raises(InputError, match="seed"):
         calculation_options(seed=10 ** 20)
     assert calculation_options("gfn2+b3lyp").intensity_engine.method == METHODS["b3lyp"].name
+
+
+def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_path):
+    """Constructed measured spectrum (water's own GFN2-xTB curve, for the mechanics only): the
+    best candidate is recomputed at the (small-basis) DFT level and marked; the others are not;
+    a candidate the refining level cannot compute (a radical) keeps its first result with a note."""
+    from vibest.measured import MeasuredSpectrum
+    from vibest.pipeline import SpectrumOptions, analyse
+    from vibest.ranking import Candidate, rank_candidates
+    from vibest.store import RecordStore
+
+    from .conftest import record_of
+
+    water = analyse(record_of("O"))
+    measured = MeasuredSpectrum(water.spectrum.wavenumbers_cm1, water.spectrum.absorbance_normalised, "absorbance")
+    store = RecordStore(tmp_path / "store.sqlite")
+    ranking = rank_candidates(measured, [Candidate("water", "O"), Candidate("methyl", "[CH3]"),
+                                         Candidate("formaldehyde", "C=O")],
+                              calc=CalculationOptions(workers=1), spec=SpectrumOptions(scale_factor=0.97), store=store,
+                              refine=2, refine_calc=small_options())  # no scale model is fitted for the test method
+    first, second, third = ranking.entries
+    assert first.candidate.name == "water" and first.refined and first.method == SMALL.name
+    assert third.refined is False and third.method == "GFN2-xTB"
+    refused = next(e for e in ranking.entries if e.candidate.name == "methyl")
+    if refused.rank <= 2:  # it reached the refined places: kept, with the reason
+        assert not refused.refined and "closed-shell" in refused.note
+    path = tmp_path / "ranking.csv"
+    ranking.write_csv(path)
+    assert "refined" in path.read_text().splitlines()[0]

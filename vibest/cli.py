@@ -21,7 +21,7 @@ import click
 
 from . import __version__
 from .analysis.scaling import SCALE_MODELS
-from .errors import CalculationError, InputError
+from .errors import CalculationError, InputError, VibestError
 from .spectrum import DEFAULT_FWHM_CM1, LINE_SHAPES
 
 
@@ -65,14 +65,33 @@ def _fail(message: str, code: int) -> None:
     sys.exit(code)
 
 
-def _check_output_path(path: str | None, suffixes: tuple[str, ...] | None = None) -> None:
-    if path is None:
-        return
-    p = Path(path)
-    if suffixes and p.suffix.lower() not in suffixes:
-        raise InputError(f"{path}: file type must be one of {', '.join(suffixes)}")
-    if p.parent and not p.parent.exists():
-        p.parent.mkdir(parents=True, exist_ok=True)
+def _check_outputs(paths: dict[str, str | None], plots: tuple[str, ...] = ("--plot",)) -> None:
+    """Every output path checked before any work (vibest.files.check_outputs)."""
+    from .files import check_outputs
+    from .output import PLOT_FORMATS
+
+    check_outputs(paths, {name: PLOT_FORMATS for name in plots})
+
+
+def _write_all(items) -> None:
+    """Write every (option, path, write()) whose path is set; a failing one does not stop the
+    others. Afterwards, failures are reported in one line each and the command exits with 2 (the
+    calculation is kept in the result store, so running again costs no new calculation)."""
+    failed = []
+    for option, path, write in items:
+        if not path:
+            continue
+        try:
+            write()
+            click.echo(f"wrote {path}", err=True)
+        except (OSError, VibestError, ValueError) as exc:
+            failed.append(f"{option} {path}: {getattr(exc, 'strerror', None) or exc}")
+    if failed:
+        for line in failed:
+            click.echo(f"vibest: error: could not write {line}", err=True)
+        click.echo("vibest: the result is kept in the result store: the same command again costs no calculation",
+                   err=True)
+        sys.exit(2)
 
 
 @contextlib.contextmanager
@@ -258,21 +277,23 @@ def main() -> None:
               help="Hessians for conformers within this many kcal/mol of the lowest (--conformers).")
 @click.option("--weights", "weighting", type=click.Choice(["energy", "free-energy"]), default="energy",
               show_default=True, help="Boltzmann weights from electronic or harmonic free energies (--conformers).")
+@store_options
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
                     range_cm1, calc_values, scale_factor, scale_model, fwhm,
                     line_shape, min_intensity, isotopes, thermo, temperature, pressure, quasi_harmonic,
-                    symmetry_number, conformers, max_conformers, energy_window, weighting, verbose, quiet) -> None:
+                    symmetry_number, conformers, max_conformers, energy_window, weighting, store_path, no_store,
+                    verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
-    from .pipeline import isotopologue, predict_with, prediction_thermochemistry
+    from .pipeline import isotopologue, prediction_thermochemistry
+    from .ranking import predict_stored
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_output_path(plot_path, output.PLOT_FORMATS)
-        for p in (csv_path, jcamp_path, bands_csv, json_path, record_path):
-            _check_output_path(p)
+        _check_outputs({"--csv": csv_path, "--jcamp": jcamp_path, "--bands-csv": bands_csv, "--json": json_path,
+                        "--record": record_path, "--plot": plot_path})
         _check_analysis_options(isotopes, temperature, pressure)
         if conformers:
             _predict_ensemble(smiles, progress, temperature=temperature, csv_path=csv_path, jcamp_path=jcamp_path,
@@ -281,8 +302,9 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                               spec=_spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
                               max_conformers=max_conformers, energy_window=energy_window, weighting=weighting)
             return
-        pred = predict_with(smiles, _calc_options(**calc_values),
-                            _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1), progress=progress)
+        pred, _ = predict_stored(smiles, _calc_options(**calc_values),
+                                 _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
+                                 _store(store_path, no_store), progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
         for spec in isotopes:
@@ -291,14 +313,12 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
         if thermo:
             click.echo(output.thermo_summary(prediction_thermochemistry(
                 pred, temperature, pressure, symmetry_number, quasi_harmonic)))
-        writers = [(csv_path, output.write_spectrum_csv), (jcamp_path, output.write_spectrum_jcamp),
-                   (bands_csv, output.write_bands_csv), (json_path, output.write_json),
-                   (record_path, lambda pr, p: pr.record.save(p)),
-                   (plot_path, functools.partial(output.plot_prediction, transmittance=transmittance))]
-        for path, write in writers:
-            if path:
-                write(pred, path)
-                click.echo(f"wrote {path}", err=True)
+        _write_all([("--csv", csv_path, lambda: output.write_spectrum_csv(pred, csv_path)),
+                    ("--jcamp", jcamp_path, lambda: output.write_spectrum_jcamp(pred, jcamp_path)),
+                    ("--bands-csv", bands_csv, lambda: output.write_bands_csv(pred, bands_csv)),
+                    ("--json", json_path, lambda: output.write_json(pred, json_path)),
+                    ("--record", record_path, lambda: pred.record.save(record_path)),
+                    ("--plot", plot_path, lambda: output.plot_prediction(pred, plot_path, transmittance=transmittance))])
 
 
 def _check_analysis_options(isotopes, temperature_K: float, pressure_Pa: float) -> None:
@@ -317,23 +337,18 @@ def _predict_ensemble(smiles, progress, *, temperature, csv_path, jcamp_path, js
                       calc, spec, max_conformers, energy_window, weighting) -> None:
     from . import output
     from .ensemble import EnsembleOptions, predict_ensemble
+    from .files import atomic_write_text
 
     ens = predict_ensemble(smiles, calc=calc, spec=spec, progress=progress,
                            ens=EnsembleOptions(max_conformers=max_conformers, energy_window_kcal=energy_window,
                                                temperature_K=temperature, weighting=weighting))
     progress.finish()
     click.echo(output.ensemble_table(ens))
-    if csv_path:
-        output.write_spectrum_csv(ens, csv_path)
-    if jcamp_path:
-        output.write_spectrum_jcamp(ens, jcamp_path)
-    if json_path:
-        Path(json_path).write_text(json.dumps(ens.to_dict() | {"caution": output.CAUTION}, indent=1))
-    if plot_path:
-        output.plot_prediction(ens, plot_path, transmittance=transmittance)
-    for p in (csv_path, jcamp_path, json_path, plot_path):
-        if p:
-            click.echo(f"wrote {p}", err=True)
+    _write_all([("--csv", csv_path, lambda: output.write_spectrum_csv(ens, csv_path)),
+                ("--jcamp", jcamp_path, lambda: output.write_spectrum_jcamp(ens, jcamp_path)),
+                ("--json", json_path, lambda: atomic_write_text(
+                    json_path, json.dumps(ens.to_dict() | {"caution": output.CAUTION}, indent=1))),
+                ("--plot", plot_path, lambda: output.plot_prediction(ens, plot_path, transmittance=transmittance))])
 
 
 @main.command("methods")
@@ -371,13 +386,13 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
     from .comparison import compare
+    from .files import atomic_write_text
     from .measured import load_spectrum
     from .ranking import predict_stored
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_output_path(plot_path, output.PLOT_FORMATS)
-        _check_output_path(json_path)
+        _check_outputs({"--plot": plot_path, "--json": json_path})
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
@@ -391,13 +406,11 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         click.echo(output.comparison_summary(comp))
         click.echo(output.peak_table(comp))
         click.echo(f"# caution: {output.CAUTION}")
-        if plot_path:
-            output.plot_overlay(comp, plot_path, measured_label=f"measured {Path(measured).name}")
-            click.echo(f"wrote {plot_path}", err=True)
-        if json_path:
-            Path(json_path).write_text(json.dumps(comp.to_dict(include_curves=True) | {"caution": output.CAUTION,
-                                                                                      "measured_notes": list(spec.notes)}, indent=1))
-            click.echo(f"wrote {json_path}", err=True)
+        _write_all([("--plot", plot_path, lambda: output.plot_overlay(comp, plot_path,
+                                                                      measured_label=f"measured {Path(measured).name}")),
+                    ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
+                        comp.to_dict(include_curves=True) | {"caution": output.CAUTION,
+                                                             "measured_notes": list(spec.notes)}, indent=1)))])
 
 
 @main.command("rank")
@@ -427,13 +440,15 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
     from .confidence import assess
+    from .files import atomic_write_text
     from .measured import load_spectrum
     from .ranking import Candidate, rank_candidates, read_candidates, with_decoys
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        for p in (csv_path, json_path):
-            _check_output_path(p)
+        _check_outputs({"--csv": csv_path, "--json": json_path, "--plot-dir": None})
+        if plot_dir:
+            _check_outputs({"--plot-dir": str(Path(plot_dir) / "rank1.png")}, plots=())
         cands = [Candidate(s, s) for s in candidates]
         if candidates_file:
             cands += read_candidates(candidates_file)
@@ -455,19 +470,16 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         assessment = assess(ranking, kw, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
         progress.finish()
         click.echo(output.ranking_table(ranking, assessment))
-        if csv_path:
-            ranking.write_csv(csv_path)
-            click.echo(f"wrote {csv_path}", err=True)
-        if json_path:
-            Path(json_path).write_text(json.dumps(ranking.to_dict(), indent=1))
-            click.echo(f"wrote {json_path}", err=True)
+        items = [("--csv", csv_path, lambda: ranking.write_csv(csv_path)),
+                 ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
+                     ranking.to_dict() | {"assessment": assessment.to_dict()}, indent=1)))]
         if plot_dir:
-            Path(plot_dir).mkdir(parents=True, exist_ok=True)
             for e in [e for e in ranking.entries if e.comparison][:top]:
                 path = Path(plot_dir) / f"rank{e.rank}.png"
-                output.plot_overlay(e.comparison, path, measured_label=f"measured {Path(measured).name}",
-                                    title=f"rank {e.rank}: {e.candidate.name}  {score_name} {e.score:.3f}")
-                click.echo(f"wrote {path}", err=True)
+                items.append(("--plot-dir", str(path), functools.partial(
+                    output.plot_overlay, e.comparison, path, measured_label=f"measured {Path(measured).name}",
+                    title=f"rank {e.rank}: {e.candidate.name}  {score_name} {e.score:.3f}")))
+        _write_all(items)
 
 
 @main.command("check")
@@ -491,14 +503,14 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
     """Is the MEASURED sample the structure SMILES? A verdict in plain words, with its decoys
     ranked, a calibrated confidence, flags and the evidence of each functional group."""
     from . import output
+    from .files import atomic_write_text
     from .measured import load_spectrum
     from .ranking import read_candidates
     from .verdict import check_structure
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_output_path(json_path)
-        _check_output_path(plot_path, output.PLOT_FORMATS)
+        _check_outputs({"--json": json_path, "--plot": plot_path})
         extra = read_candidates(candidates_file) if candidates_file else []
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
@@ -513,14 +525,11 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
                                                 phase, intensity_power))
         progress.finish()
         click.echo(output.verdict_report(verdict))
-        if json_path:
-            Path(json_path).write_text(json.dumps(verdict.to_dict(), indent=1))
-            click.echo(f"wrote {json_path}", err=True)
-        if plot_path:
-            mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)
-            output.plot_overlay(mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
-                                title=f"{verdict.intended.name}: {verdict.conclusion} (rank {mine.rank})")
-            click.echo(f"wrote {plot_path}", err=True)
+        mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)
+        _write_all([("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(verdict.to_dict(), indent=1))),
+                    ("--plot", plot_path, lambda: output.plot_overlay(
+                        mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
+                        title=f"{verdict.intended.name}: {verdict.conclusion} (rank {mine.rank})"))])
 
 
 class BatchBar:
@@ -599,7 +608,7 @@ def batch_command(input_path, table_path, output_dir, calc_values,
     with _user_errors():
         molecules = read_batch_input(input_path)
         table = Path(table_path) if table_path else Path(input_path).with_suffix(".vibest.csv")
-        _check_output_path(str(table))
+        _check_outputs({"--table": str(table)})
         calc = _calc_options(**(calc_values | {"workers": None}))
         workers = calc_values["workers"] or (1 if calc.uses_dft else None)  # a DFT molecule takes every core
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)

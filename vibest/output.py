@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-import csv
 import json
 from pathlib import Path
 
 import numpy as np
 
+from .files import atomic_write_text, write_table, write_with
 from .pipeline import CAUTION, Prediction
 
 #: Below this wavenumber chemists speak of the fingerprint region (common practice, no source).
@@ -16,8 +16,9 @@ PLOT_FORMATS = (".png", ".svg", ".pdf")
 
 
 def region_of(wavenumber_cm1: float) -> str:
-    """'fingerprint' below 1500 cm^-1, else 'stretch' (the group-frequency region)."""
-    return "fingerprint" if wavenumber_cm1 < FINGERPRINT_BELOW_CM1 else "stretch"
+    """'fingerprint' below 1500 cm^-1, else 'group-frequency' (where stretches of X-H bonds and
+    multiple bonds, the groups' diagnostic bands, lie; bends such as NH2 scissoring too)."""
+    return "fingerprint" if wavenumber_cm1 < FINGERPRINT_BELOW_CM1 else "group-frequency"
 
 
 def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bool = False) -> str:
@@ -27,15 +28,15 @@ def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bo
              f"optimisation {'converged' if pred.converged else 'NOT converged'}"]
     for note in pred.notes:
         lines.append(f"# note: {note}")
-    header = f"{'mode':>4}  {'cm-1':>7}  {'harm.':>7}  {'km/mol':>8}  {'region':<11}  {'band':<44}  composition"
+    header = f"{'mode':>4}  {'cm-1':>7}  {'harm.':>7}  {'km/mol':>8}  {'region':<15}  {'band':<44}  composition"
     lines += [header, "-" * len(header)]
     for b in sorted(pred.bands, key=lambda b: -b.wavenumber_cm1):
         if b.intensity_km_mol < min_intensity_km_mol:
             continue
         wn = f"{b.wavenumber_cm1:7.1f}" if b.wavenumber_cm1 >= 0 else f"{abs(b.wavenumber_cm1):6.1f}i"
         lines.append(f"{b.index:>4}  {wn}  {b.harmonic_cm1:7.1f}  {b.intensity_km_mol:8.2f}  "
-                     f"{region_of(b.wavenumber_cm1):<11}  {b.label:<44}  {b.character}")
-    lines.append("# region: 'stretch' >= 1500 cm-1 (group frequencies), 'fingerprint' below")
+                     f"{region_of(b.wavenumber_cm1):<15}  {b.label:<44}  {b.character}")
+    lines.append("# region: 'group-frequency' >= 1500 cm-1, 'fingerprint' below (common practice)")
     if verbose:
         t = pred.record.timings
         coords = f" in {t['optimization_coordinates']} coordinates" if t.get("optimization_coordinates") else ""
@@ -47,31 +48,35 @@ def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bo
     return "\n".join(lines)
 
 
-def write_spectrum_csv(pred: Prediction, path: str | Path) -> None:
-    """Columns: wavenumber_cm1, absorption_km_mol_cm1, absorbance_normalised, transmittance_percent."""
+def prediction_metadata(pred: Prediction, what: str) -> dict:
+    """What the sidecar JSON of a prediction's CSV says (vibest.files.write_table)."""
     s = pred.spectrum
-    with open(path, "w", newline="") as fh:
-        fh.write(f"# vibest predicted IR spectrum of {pred.smiles}; {s.line_shape} FWHM {s.fwhm_cm1} cm-1; "
-                 f"scaling: {pred.scale.describe()}\n# {CAUTION}\n")
-        w = csv.writer(fh)
-        w.writerow(["wavenumber_cm1", "absorption_km_mol_cm1", "absorbance_normalised", "transmittance_percent"])
-        for row in zip(s.wavenumbers_cm1, s.absorption_km_mol_cm1, s.absorbance_normalised, s.transmittance_percent):
-            w.writerow([f"{row[0]:.2f}", f"{row[1]:.6g}", f"{row[2]:.6f}", f"{row[3]:.4f}"])
+    return {"what": what, "smiles": pred.smiles, "method": pred.method_name, "scaling": pred.scale.describe(),
+            "line_shape": s.line_shape, "fwhm_cm1": s.fwhm_cm1, "notes": list(pred.notes), "caution": CAUTION}
+
+
+def write_spectrum_csv(pred: Prediction, path: str | Path) -> None:
+    """Columns: wavenumber_cm1, absorption_km_mol_cm1, absorbance_normalised, transmittance_percent;
+    what it is in ``<path>.meta.json``."""
+    s = pred.spectrum
+    rows = ([f"{r[0]:.2f}", f"{r[1]:.6g}", f"{r[2]:.6f}", f"{r[3]:.4f}"] for r in
+            zip(s.wavenumbers_cm1, s.absorption_km_mol_cm1, s.absorbance_normalised, s.transmittance_percent))
+    write_table(path, ["wavenumber_cm1", "absorption_km_mol_cm1", "absorbance_normalised", "transmittance_percent"],
+                rows, prediction_metadata(pred, "vibest predicted IR spectrum"))
 
 
 def write_bands_csv(pred: Prediction, path: str | Path) -> None:
-    with open(path, "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(["mode", "wavenumber_cm1", "harmonic_cm1", "intensity_km_mol", "reduced_mass_amu",
-                    "force_constant_mdyn_angstrom", "region", "character"])
-        for b in pred.bands:
-            w.writerow([b.index, f"{b.wavenumber_cm1:.2f}", f"{b.harmonic_cm1:.2f}", f"{b.intensity_km_mol:.4f}",
-                        f"{b.reduced_mass_amu:.4f}", f"{b.force_constant_mdyn_angstrom:.4f}",
-                        region_of(b.wavenumber_cm1), b.character])
+    """One row per mode; what it is in ``<path>.meta.json``."""
+    rows = ([b.index, f"{b.wavenumber_cm1:.2f}", f"{b.harmonic_cm1:.2f}", f"{b.intensity_km_mol:.4f}",
+             f"{b.reduced_mass_amu:.4f}", f"{b.force_constant_mdyn_angstrom:.4f}", region_of(b.wavenumber_cm1),
+             b.label, b.character] for b in pred.bands)
+    write_table(path, ["mode", "wavenumber_cm1", "harmonic_cm1", "intensity_km_mol", "reduced_mass_amu",
+                       "force_constant_mdyn_angstrom", "region", "label", "character"], rows,
+                prediction_metadata(pred, "vibest predicted IR bands"))
 
 
 def write_json(pred: Prediction, path: str | Path) -> None:
-    Path(path).write_text(json.dumps(pred.to_dict(), indent=1))
+    atomic_write_text(path, json.dumps(pred.to_dict(), indent=1))
 
 
 def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = False,
@@ -107,12 +112,12 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
     ax.set_ylabel("transmittance / %" if transmittance else "absorbance (normalised)")
     if not transmittance:
         ax.set_ylim(0, 1.18)
-    ax.set_title(f"predicted IR spectrum: {pred.smiles}  (GFN2-xTB, {pred.scale.describe()}, "
+    ax.set_title(f"predicted IR spectrum: {pred.smiles}  ({pred.method_name}, {pred.scale.describe()}, "
                  f"{s.line_shape} FWHM {s.fwhm_cm1:g} cm$^{{-1}}$)", fontsize=9)
     fig.text(0.01, 0.01, "Estimate only: confirm with reference standards and validated methods.",
              fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
-    fig.savefig(path)
+    write_with(path, fig.savefig)
     plt.close(fig)
 
 
@@ -121,11 +126,16 @@ def write_spectrum_jcamp(pred: Prediction, path: str | Path) -> None:
     from .measured.jcamp import write_jcamp
 
     s = pred.spectrum
-    write_jcamp(path, s.wavenumbers_cm1, s.absorbance_normalised, title=f"vibest prediction {pred.smiles}",
-                yunits="ABSORBANCE", extra_labels={
-                    "$VIBEST SMILES": pred.smiles, "$VIBEST SCALING": pred.scale.describe(),
-                    "$VIBEST LINE SHAPE": f"{s.line_shape} FWHM {s.fwhm_cm1:g} 1/CM",
-                    "$VIBEST CAUTION": CAUTION})
+    write_with(path, lambda tmp: write_jcamp(tmp, s.wavenumbers_cm1, s.absorbance_normalised,
+                                             title=f"vibest prediction {pred.smiles}", yunits="ABSORBANCE",
+                                             extra_labels=_jcamp_labels(pred)))
+
+
+def _jcamp_labels(pred: Prediction) -> dict:
+    s = pred.spectrum
+    return {"$VIBEST SMILES": pred.smiles, "$VIBEST SCALING": pred.scale.describe(),
+            "$VIBEST LINE SHAPE": f"{s.line_shape} FWHM {s.fwhm_cm1:g} 1/CM",
+            "$VIBEST METHOD": pred.method_name, "$VIBEST CAUTION": CAUTION}
 
 
 def peak_table(comp) -> str:
@@ -230,7 +240,7 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
     fig.text(0.01, 0.005, "Estimate only: confirm with reference standards and validated methods.",
              fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
-    fig.savefig(path)
+    write_with(path, fig.savefig)
     plt.close(fig)
 
 

@@ -24,7 +24,7 @@ from .calculation.driver import (DEFAULT_DFT_MEMORY_MB, DEFAULT_SEED, IMAGINARY_
                                  CalculationOptions, Progress, calculation_options, check_cost, compute_record)
 from .calculation.methods import DEFAULT_METHOD
 from .calculation.optimizer import OptimizerSettings
-from .analysis.groups import band_label, find_groups
+from .analysis.groups import band_label, find_groups, named_band
 from .calculation.record import HessianRecord, record_molecule
 from .errors import InputError
 from .spectrum import DEFAULT_FWHM_CM1, DEFAULT_RANGE_CM1, DEFAULT_STEP_CM1, LINE_SHAPES, Spectrum, broaden, grid
@@ -119,6 +119,12 @@ class Prediction:
         return self.record.smiles
 
     @property
+    def method_name(self) -> str:
+        """The level of theory in words (e.g. "GFN2-xTB", or "GFN2-xTB positions, B3LYP-...
+        intensities")."""
+        return record_level(self.record)
+
+    @property
     def wavenumbers_cm1(self) -> np.ndarray:
         """Scaled wavenumbers, cm^-1."""
         return np.array([b.wavenumber_cm1 for b in self.bands])
@@ -183,6 +189,13 @@ def record_method(record: HessianRecord) -> str:
     return str(record.settings.get("engine", {}).get("method", DEFAULT_METHOD_NAME))
 
 
+def record_level(record: HessianRecord) -> str:
+    """The level of theory of a record in words: its method, and the intensities' method when another."""
+    other = record.settings.get("intensity_engine")
+    base = record_method(record)
+    return base if not other else f"{base} positions, {other.get('method', '?')} intensities"
+
+
 def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
             masses_amu=None, notes: tuple[str, ...] = ()) -> Prediction:
     """Turn a Hessian record into bands and a spectrum (no gradients are computed).
@@ -217,8 +230,9 @@ def analyse(record: HessianRecord, options: SpectrumOptions = SpectrumOptions(),
              reduced_mass_amu=float(modes.reduced_masses_amu[k]),
              force_constant_mdyn_angstrom=float(modes.force_constants_mdyn_angstrom[k]),
              character=comp.rough_character(k),
-             label=band_label(record.numbers, record.bonds, comp.primitives, comp.shares[k],
-                              comp.internal_displacements[k], groups, mol) if len(comp.primitives) else "")
+             label=named_band(band_label(record.numbers, record.bonds, comp.primitives, comp.shares[k],
+                                         comp.internal_displacements[k], groups, mol), float(scaled[k]))
+             if len(comp.primitives) else "")
         for k in range(modes.count)
     )
     spec = broaden(scaled, modes.intensities_km_mol, options.fwhm_cm1, options.line_shape,

@@ -10,7 +10,7 @@ from typing import Callable
 from .comparison import DEFAULT_SCORE, SCORES, Comparison, compare
 from .errors import InputError, VibestError
 from .measured import MeasuredSpectrum
-from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record
+from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record
 from .store import RecordStore
 from .structure import build_molecule
 
@@ -61,21 +61,26 @@ class Ranking:
                 "score": self.score_name, "candidates": [e.to_dict() for e in self.entries]}
 
     def write_csv(self, path: str | Path) -> None:
-        with open(path, "w", newline="") as fh:
-            fh.write(f"# {CAUTION}\n")
-            w = csv.writer(fh)
-            w.writerow(["rank", "name", "smiles", "score", "margin_to_next", *SCORES,
-                        "matched_peaks", "measured_peaks", "method", "refined", "error"])
-            for e in self.entries:
-                c = e.comparison
-                s = c.scores if c else {}
-                n_match = sum(m.matched for m in c.matches) if c else ""
-                n_meas = sum(m.measured_cm1 is not None for m in c.matches) if c else ""
-                w.writerow([e.rank or "", e.candidate.name, e.candidate.smiles,
-                            "" if e.score is None else f"{e.score:.4f}",
-                            "" if e.margin_to_next is None else f"{e.margin_to_next:.4f}",
-                            *(f"{s[k]:.4f}" if k in s else "" for k in SCORES),
-                            n_match, n_meas, e.method, "yes" if e.refined else "", e.error or ""])
+        """The ranked table (header row first); caution, measured file and score in
+        ``<path>.meta.json``."""
+        from .files import write_table
+
+        rows = []
+        for e in self.entries:
+            c = e.comparison
+            s = c.scores if c else {}
+            n_match = sum(m.matched for m in c.matches) if c else ""
+            n_meas = sum(m.measured_cm1 is not None for m in c.matches) if c else ""
+            rows.append([e.rank or "", e.candidate.name, e.candidate.smiles,
+                         "" if e.score is None else f"{e.score:.4f}",
+                         "" if e.margin_to_next is None else f"{e.margin_to_next:.4f}",
+                         *(f"{s[k]:.4f}" if k in s else "" for k in SCORES),
+                         "" if c is None else f"{c.shift_cm1:.2f}", n_match, n_meas, e.method,
+                         "yes" if e.refined else "", e.error or e.note or ""])
+        write_table(path, ["rank", "name", "smiles", "score", "margin_to_next", *SCORES, "shift_cm1",
+                           "matched_peaks", "measured_peaks", "method", "refined", "error"], rows,
+                    {"what": "vibest ranking", "measured": self.measured.source, "title": self.measured.title,
+                     "score": self.score_name, "measured_notes": list(self.measured.notes), "caution": CAUTION})
 
 
 def read_candidates(path: str | Path) -> list[Candidate]:
@@ -121,10 +126,13 @@ def with_decoys(candidates: list[Candidate], per_candidate: int) -> list[Candida
 def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions, store: RecordStore | None,
                    progress=None) -> tuple[Prediction, bool]:
     """Prediction of ``smiles``, computing the record only when the store has none (and storing it)."""
+    spec.validate()
+    spec.resolve_scale(calc.engine.method)  # a scale model missing for the method: said before computing
     record = store.get(smiles, calc) if store is not None else None
     hit = record is not None
     if record is None:
         mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
+        check_cost(mol, calc)
         record, _, _ = compute_record(mol, calc, progress)
         if store is not None:
             store.put(smiles, calc, record)

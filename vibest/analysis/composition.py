@@ -57,8 +57,9 @@ class ModeComposition:
         return dict(sorted(out.items(), key=lambda kv: -kv[1]))
 
     def rough_character(self, mode: int) -> str:
-        """Short description from the dominant coordinate types, e.g. "C=O stretch 82%"."""
-        types = list(self.type_shares(mode).items())
+        """Short description from the dominant coordinate types, e.g. "C=O stretch 82%", in the
+        trade's notation (triple bonds as the triple-bar sign, aromatic bonds in words)."""
+        types = [(trade_notation(t), v) for t, v in self.type_shares(mode).items()]
         if not types:
             return ""
         (t1, p1), rest = types[0], types[1:]
@@ -66,6 +67,15 @@ class ModeComposition:
         if p1 < 60 and rest:
             text += f", {rest[0][0]} {rest[0][1]:.0f}%"
         return text
+
+
+def trade_notation(text: str) -> str:
+    """Bond symbols of SMILES turned into the trade's: "C#N" -> "C\u2261N", "C:C stretch" ->
+    "aromatic C-C stretch"."""
+    import re
+
+    text = text.replace("#", "\u2261")
+    return re.sub(r"\b([A-Z][a-z]?):([A-Z][a-z]?)\b", r"aromatic \1-\2", text)
 
 
 def _atom_label(numbers, i: int) -> str:

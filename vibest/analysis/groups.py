@@ -16,6 +16,7 @@ from ..internal_coordinates import BEND, LINEAR_BEND, OUT_OF_PLANE, STRETCH, TOR
 
 #: (name, SMARTS). Most specific first.
 GROUP_TABLE: tuple[tuple[str, str], ...] = (
+    ("carboxylate", "[CX3](=O)[O-]"),
     ("carboxylic acid", "[CX3](=O)[OX2H1]"),
     ("ester", "[#6][CX3](=O)[OX2H0][#6]"),
     ("amide", "[CX3](=O)[NX3]"),
@@ -25,7 +26,8 @@ GROUP_TABLE: tuple[tuple[str, str], ...] = (
     ("acyl halide", "[CX3](=O)[F,Cl,Br,I]"),
     ("nitrile", "[NX1]#[CX2]"),
     ("isocyanate", "N=C=O"),
-    ("nitro", "[$([NX3](=O)=O),$([NX3+](=O)[O-])]"),
+    ("nitro", "[NX3+](=O)[O-]"),
+    ("nitro", "[NX3](=O)=O"),
     ("phenol", "[OX2H1][c]"),
     ("alcohol", "[OX2H1][CX4,CX3;!$(C=O)]"),
     ("water", "[OH2]"),
@@ -46,7 +48,11 @@ GROUP_TABLE: tuple[tuple[str, str], ...] = (
     ("alkane", "[CX4]"),
 )
 
-_BOND = {1.0: "-", 1.5: "=", 2.0: "=", 3.0: "#"}
+_BOND = {1.0: "-", 1.5: "=", 2.0: "=", 3.0: "\u2261"}
+#: Groups whose name adds nothing to a label (a C-H stretch of a chloroalkane is a C-H stretch).
+_SILENT_GROUPS = ("alkane", "fluoride", "chloride", "bromide", "iodide")
+#: Two-oxygen groups whose X-O stretches are named as a pair (symmetric / antisymmetric).
+_XO2_GROUPS = {"nitro": "NO2", "carboxylate": "CO2-"}
 
 
 @dataclass(frozen=True)
@@ -74,8 +80,8 @@ def find_groups(mol_with_h: Chem.Mol) -> GroupMap:
     for name, smarts in GROUP_TABLE:
         patt = Chem.MolFromSmarts(smarts)
         hits = mol_with_h.GetSubstructMatches(patt, uniquify=True, maxMatches=10000)
-        if hits:
-            out[name] = tuple(frozenset(h) for h in hits)
+        if hits:  # a name may have several patterns (nitro as charges or as double bonds)
+            out[name] = out.get(name, ()) + tuple(frozenset(h) for h in hits)
     return GroupMap(out)
 
 
@@ -99,16 +105,19 @@ def _stretch_label(numbers, a, b, order, groups: GroupMap, mol: Chem.Mol, signs:
         elif group in ("alkene",):
             name = "=C-H stretch (alkene)"
         elif group == "alkyne":
-            name = "#C-H stretch (alkyne)"
+            name = "\u2261C-H stretch (alkyne)"
         elif x == "C" and nh == 3:
             name = "CH3 stretch"
         elif x == "C" and nh == 2:
             name = "CH2 stretch"
         else:
-            name = f"{x}-H stretch" + (f" ({group})" if group and group != "alkane" else "")
+            name = f"{x}-H stretch" + (f" ({group})" if group and group not in _SILENT_GROUPS else "")
         s = signs.get(heavy, [])
-        if nh >= 2 and len(s) >= 2:
-            kind = "symmetric" if (np.all(np.array(s) > 0) or np.all(np.array(s) < 0)) else "antisymmetric"
+        if nh >= 2:
+            # one X-H stretch dominating the mode is an antisymmetric combination (the symmetric one
+            # moves every X-H bond alike)
+            same = len(s) >= 2 and (np.all(np.array(s) > 0) or np.all(np.array(s) < 0))
+            kind = "symmetric" if same else "antisymmetric"
             name = name[:-1] + f", {kind})" if name.endswith(")") else f"{name} ({kind})"
         return name
     order_sym = "=" if order == 1.5 else _BOND.get(order, "-")
@@ -118,11 +127,56 @@ def _stretch_label(numbers, a, b, order, groups: GroupMap, mol: Chem.Mol, signs:
     if order == 1.5 and groups.is_aromatic(a, b):
         return "ring C=C stretch (aromatic)"
     group = groups.group_of([a, b])
+    if group in _XO2_GROUPS and 8 in (int(numbers[a]), int(numbers[b])):
+        centre = a if int(numbers[a]) != 8 else b
+        s = signs.get(-1 - centre, [])
+        kind = "symmetric" if len(s) >= 2 and (all(v > 0 for v in s) or all(v < 0 for v in s)) else "antisymmetric"
+        return f"{_XO2_GROUPS[group]} {kind} stretch ({group})"
     label = f"{x}{order_sym}{y} stretch"
     if group is None:
         # C-O of an ester/acid: the single-bonded O belongs to the ester group match
         group = groups.group_of([a]) if groups.group_of([a]) == groups.group_of([b]) else None
-    return label + (f" ({group})" if group and group != "alkane" else "")
+    return label + (f" ({group})" if group and group not in _SILENT_GROUPS else "")
+
+
+def _torsion_label(numbers, atoms, orders, groups: GroupMap, mol: Chem.Mol) -> str:
+    """Name of a torsion i-j-k-l by what turns: an X-H about its own bond to a heteroatom
+    (O-H, N-H, S-H torsion), a methyl group (CH3 torsion), a terminal C=O moving out of its plane
+    (C=O out-of-plane wag), ring out-of-plane motions."""
+    i, j, k, l = (int(v) for v in atoms)
+    if groups.is_aromatic(j, k):
+        return "aromatic C-H out-of-plane bend" if 1 in (int(numbers[i]), int(numbers[l])) else \
+            "ring out-of-plane deformation"
+    for end, axis in ((i, j), (l, k)):
+        if int(numbers[end]) == 1 and int(numbers[axis]) in (7, 8, 16):
+            return f"{_sym(numbers, axis)}-H torsion"
+    for end, axis in ((i, j), (l, k)):
+        atom = mol.GetAtomWithIdx(axis)
+        if int(numbers[end]) == 1 and atom.GetAtomicNum() == 6 and \
+                sum(n.GetAtomicNum() == 1 for n in atom.GetNeighbors()) == 3:
+            return "CH3 torsion"
+    for end, axis in ((i, j), (l, k)):
+        if int(numbers[end]) == 8 and orders.get((min(end, axis), max(end, axis)), 1.0) == 2.0 \
+                and mol.GetAtomWithIdx(end).GetDegree() == 1:
+            return "C=O out-of-plane wag"
+    return "torsion"
+
+
+#: Amide band names (common practice, no source): amide I mainly C=O stretch (1630-1700
+#: cm^-1), amide II N-H in-plane bend with C-N stretch (about 1480-1600), amide III C-N stretch
+#: with N-H bend (about 1200-1350).
+_AMIDE_BANDS = (("C=O stretch (amide)", None, "C=O stretch (amide I)"),
+                ("N-H bend (amide)", (1450.0, 1620.0), "N-H bend (amide II)"),
+                ("NH2 bend (amide)", (1550.0, 1680.0), "NH2 bend (amide II)"),
+                ("C-N stretch (amide)", (1180.0, 1360.0), "C-N stretch (amide III)"))
+
+
+def named_band(label: str, wavenumber_cm1: float) -> str:
+    """``label`` with the trade's name where a band has one (amide I, II, III)."""
+    for plain, window, name in _AMIDE_BANDS:
+        if label == plain and (window is None or window[0] <= wavenumber_cm1 <= window[1]):
+            return name
+    return label
 
 
 def band_label(numbers, bonds, primitives, shares_row, dq_row, groups: GroupMap, mol: Chem.Mol) -> str:
@@ -140,6 +194,9 @@ def band_label(numbers, bonds, primitives, shares_row, dq_row, groups: GroupMap,
             if 1 in (int(numbers[a]), int(numbers[b])):
                 heavy = a if int(numbers[b]) == 1 else b
                 signs.setdefault(heavy, []).append(float(dq_row[k]))
+            elif 8 in (int(numbers[a]), int(numbers[b])) and groups.group_of([a, b]) in _XO2_GROUPS:
+                centre = a if int(numbers[a]) != 8 else b
+                signs.setdefault(-1 - centre, []).append(float(dq_row[k]))
     for k in np.argsort(-shares_row)[:12]:
         share = shares_row[k]
         if share < 0.03:
@@ -176,18 +233,37 @@ def band_label(numbers, bonds, primitives, shares_row, dq_row, groups: GroupMap,
             key = ("aromatic C-H out-of-plane bend" if group == "aromatic" and has_h else
                    f"{_sym(numbers, centre)} out-of-plane wag" + (f" ({group})" if group and group != "alkane" else ""))
         elif p.kind == TORSION:
-            i, j, k2, l = a
-            if groups.is_aromatic(j, k2):
-                key = ("aromatic C-H out-of-plane bend" if 1 in (int(numbers[i]), int(numbers[l]))
-                       else "ring out-of-plane deformation")
-            elif 1 in (int(numbers[i]), int(numbers[l])) and {int(numbers[j]), int(numbers[k2])} & {7, 8, 16}:
-                key = f"{_sym(numbers, j if int(numbers[j]) != 6 else k2)}-H torsion"
-            else:
-                key = "torsion"
+            key = _torsion_label(numbers, a, orders, groups, mol)
         else:
             key = p.kind
         totals[key] = totals.get(key, 0.0) + float(share)
     if not totals:
         return ""
     best = max(totals.items(), key=lambda kv: kv[1])
+    if best[0] in ("CH3 torsion", "torsion") and _carbonyl_out_of_plane(numbers, primitives, dq_row, orders, mol):
+        return "C=O out-of-plane wag"
     return best[0]
+
+
+def _carbonyl_out_of_plane(numbers, primitives, dq_row, orders, mol: Chem.Mol) -> bool:
+    """Whether a mode described by torsions moves a terminal carbonyl O out of its plane: the
+    torsions i-j-k-O and i-j-k-X (X the carbonyl carbon's other substituent) change in opposite
+    directions (O and X move to opposite sides), where a methyl rotation turns both alike."""
+    by_frame: dict[tuple, dict[str, float]] = {}
+    for p, dq in zip(primitives, dq_row):
+        if p.kind != TORSION:
+            continue
+        i, j, k, l = (int(v) for v in p.atoms)
+        for a, b, c, end in ((i, j, k, l), (l, k, j, i)):
+            if int(numbers[end]) == 8 and orders.get((min(c, end), max(c, end)), 1.0) == 2.0 \
+                    and mol.GetAtomWithIdx(end).GetDegree() == 1:
+                by_frame.setdefault((a, b, c), {})["O"] = float(dq)
+            elif int(numbers[end]) != 1 and c in (j, k) and any(
+                    int(numbers[n.GetIdx()]) == 8 and orders.get((min(c, n.GetIdx()), max(c, n.GetIdx())), 1.0) == 2.0
+                    for n in mol.GetAtomWithIdx(c).GetNeighbors()):
+                by_frame.setdefault((a, b, c), {})["X"] = float(dq)
+    pairs = [(v["O"], v["X"]) for v in by_frame.values() if "O" in v and "X" in v]
+    if not pairs:
+        return False
+    o, x = np.array(pairs).T
+    return bool(np.sum(o * x) < -0.25 * np.sum(o * o + x * x) / 2)

@@ -8,7 +8,6 @@ most the molecules in flight) -> cheap analysis for the summary table and option
 
 from __future__ import annotations
 
-import csv
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -233,18 +232,20 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
 
 
 def write_batch_table(entries: list[BatchEntry], path: str | Path) -> None:
-    """The batch summary as CSV (one row per input row; caution line first)."""
-    with open(path, "w", newline="") as fh:
-        fh.write(f"# {CAUTION}\n")
-        w = csv.writer(fh)
-        w.writerow(["row", "name", "smiles", "canonical_smiles", "status", "reason", "atoms", "energy_hartree",
-                    "seconds", "band1_cm1", "band1_km_mol", "band1_label", "band2_cm1", "band2_km_mol", "band2_label",
-                    "band3_cm1", "band3_km_mol", "band3_label", "files"])
-        for e in entries:
-            bands = []
-            for b in list(e.key_bands[:3]) + [None] * (3 - min(3, len(e.key_bands))):
-                bands += ["", "", ""] if b is None else [f"{b.wavenumber_cm1:.1f}", f"{b.intensity_km_mol:.1f}", b.label]
-            w.writerow([e.row, e.name, e.smiles, e.canonical_smiles, e.status, e.reason,
-                        "" if e.natoms is None else e.natoms,
-                        "" if e.energy_hartree is None else f"{e.energy_hartree:.8f}", f"{e.seconds:.2f}",
-                        *bands, ";".join(e.files)])
+    """The batch summary as CSV (one row per input row, header row first; the caution in
+    ``<path>.meta.json``)."""
+    from ..files import write_table
+
+    rows = []
+    for e in entries:
+        bands = []
+        for b in list(e.key_bands[:3]) + [None] * (3 - min(3, len(e.key_bands))):
+            bands += ["", "", ""] if b is None else [f"{b.wavenumber_cm1:.1f}", f"{b.intensity_km_mol:.1f}", b.label]
+        rows.append([e.row, e.name, e.smiles, e.canonical_smiles, e.status, e.reason,
+                     "" if e.natoms is None else e.natoms,
+                     "" if e.energy_hartree is None else f"{e.energy_hartree:.8f}", f"{e.seconds:.2f}",
+                     *bands, ";".join(e.files)])
+    write_table(path, ["row", "name", "smiles", "canonical_smiles", "status", "reason", "atoms", "energy_hartree",
+                       "seconds", "band1_cm1", "band1_km_mol", "band1_label", "band2_cm1", "band2_km_mol", "band2_label",
+                       "band3_cm1", "band3_km_mol", "band3_label", "files"], rows,
+                {"what": "vibest batch summary", "caution": CAUTION})

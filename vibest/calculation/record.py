@@ -108,8 +108,10 @@ class HessianRecord:
         )
 
     def save(self, path: str | Path) -> None:
-        """Write as JSON (exact to float repr)."""
-        Path(path).write_text(json.dumps(self.to_dict()))
+        """Write as JSON (exact to float repr), atomically (a temporary file renamed over ``path``)."""
+        from ..files import atomic_write_text
+
+        atomic_write_text(path, json.dumps(self.to_dict()))
 
     @classmethod
     def load(cls, path: str | Path) -> "HessianRecord":
