@@ -215,7 +215,7 @@ def test_cli_batch_writes_table_and_reports_failures(tmp_path):
 
 def test_cli_batch_bad_input_is_one_line(tmp_path):
     res = CliRunner().invoke(main, ["batch", str(tmp_path / "missing.txt")])
-    assert res.exit_code == 2 and "cannot read" in res.output and "Traceback" not in res.output
+    assert res.exit_code == 2 and "no such file" in res.output and "Traceback" not in res.output
 
 
 def test_run_task_never_raises_for_a_bad_molecule():

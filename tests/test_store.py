@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import pickle
+import os
 import sqlite3
 import subprocess
 import sys
@@ -96,7 +97,8 @@ def test_version_1_file_is_migrated(tmp_path):
     store = RecordStore(path)
     assert store.schema_version() == SCHEMA_VERSION
     assert store.get_by_key("k1").energy_hartree == rec.energy_hartree
-    assert list(store.rows()) == [("k1", "O", "XLYOFNOQVPJJNP-UHFFFAOYSA-N", 3, rec.energy_hartree)]
+    assert list(store.rows()) == [("k1", "O", "XLYOFNOQVPJJNP-UHFFFAOYSA-N", 3, rec.energy_hartree, "", "")]
+    assert store.integrity_check() == "ok"  # the migration gave the old row its checksum
     assert store.integrity_check() == "ok"
 
 
@@ -153,3 +155,75 @@ def test_concurrent_writers_lose_nothing(tmp_path):
     for w in range(4):
         for i in (0, 24):
             assert store.get("O", dataclasses.replace(CalculationOptions(), seed=1000 * w + i)) is not None
+
+
+def test_another_programs_sqlite_file_is_refused_and_left_unaltered(tmp_path):
+    path = tmp_path / "theirs.sqlite"
+    conn = sqlite3.connect(path)
+    conn.execute("CREATE TABLE invoices (id INTEGER, total REAL)")
+    conn.commit()
+    conn.close()
+    before = path.read_bytes()
+    with pytest.raises(InputError, match="another program"):
+        RecordStore(path).count()
+    assert path.read_bytes() == before and not (tmp_path / "theirs.sqlite-wal").exists()
+
+
+def test_a_damaged_record_is_found_by_the_integrity_check_and_recomputed(tmp_path):
+    from .conftest import record_of
+
+    store = RecordStore(tmp_path / "s.sqlite")
+    options = CalculationOptions(workers=1)
+    key = store.put("O", options, record_of("O"))
+    conn = sqlite3.connect(tmp_path / "s.sqlite")
+    blob = conn.execute("SELECT record FROM records WHERE key = ?", (key,)).fetchone()[0]
+    damaged = bytearray(blob)
+    damaged[len(damaged) // 2] ^= 0xFF  # one flipped byte inside the compressed record
+    conn.execute("UPDATE records SET record = ? WHERE key = ?", (bytes(damaged), key))
+    conn.commit()
+    conn.close()
+    fresh = RecordStore(tmp_path / "s.sqlite")
+    assert "1 damaged record(s): O" in fresh.integrity_check()
+    assert fresh.get("O", options) is None  # not served: computed anew on request
+
+
+def test_claims_share_work_between_processes(tmp_path):
+    """A key claimed by a live process is not claimed again; a dead process's claim is taken over."""
+    import subprocess
+    import sys as _sys
+
+    store = RecordStore(tmp_path / "s.sqlite")
+    store.count()
+    mine, held = store.claim(["a", "b"])
+    assert mine == ["a", "b"] and not held
+    other = subprocess.run([_sys.executable, "-c", (
+        "from vibest.store import RecordStore; import sys; s = RecordStore(sys.argv[1]);"
+        "mine, held = s.claim(['b', 'c']); print(mine, sorted(held))"), str(tmp_path / "s.sqlite")],
+        capture_output=True, text=True)
+    assert other.stdout.strip() == "['c'] ['b']", other.stderr
+    # the other process has exited: its claim on c is void and taken over
+    assert store.claim(["c"]) == (["c"], {})
+    store.release(["a", "b", "c"])
+    assert sqlite3.connect(tmp_path / "s.sqlite").execute("SELECT COUNT(*) FROM claims").fetchone()[0] == 0
+
+
+def test_a_store_that_cannot_be_written_or_read_never_costs_the_result(tmp_path, monkeypatch):
+    """A read-only or full store (sqlite3 errors as SQLite raises them) only adds a note."""
+    from vibest.pipeline import SpectrumOptions
+    from vibest.ranking import predict_stored
+
+    store = RecordStore(tmp_path / "s.sqlite")
+
+    def full(*a, **k):
+        raise sqlite3.OperationalError("database or disk is full")
+
+    monkeypatch.setattr(store, "put", full)
+    pred, hit = predict_stored("O", CalculationOptions(workers=1), SpectrumOptions(), store)
+    assert pred.bands and not hit and any("could not be written" in n for n in pred.notes)
+
+    def unreadable(*a, **k):
+        raise sqlite3.OperationalError("attempt to read a locked database")
+
+    monkeypatch.setattr(store, "get", unreadable)
+    pred, hit = predict_stored("O", CalculationOptions(workers=1), SpectrumOptions(), store)
+    assert pred.bands and any("could not be read" in n for n in pred.notes)

@@ -13,6 +13,7 @@ from __future__ import annotations
 import contextlib
 import functools
 import json
+import os
 import sys
 import time
 from pathlib import Path
@@ -107,6 +108,8 @@ def _user_errors(progress: ProgressLine | None = None):
         if progress:
             progress.finish()
         _fail(str(exc), 3)
+    except BrokenPipeError:
+        _quiet_broken_pipe()
     except OSError as exc:
         if progress:
             progress.finish()
@@ -144,7 +147,8 @@ def calculation_options(f):
         click.option("--solvent-model", type=click.Choice(["alpb", "cpcm"]), default="alpb", show_default=True),
         click.option("--memory", type=click.IntRange(min=1), default=4000, show_default=True, metavar="MB",
                      help="Memory a DFT calculation may use."),
-        click.option("--force", is_flag=True, help="Run a DFT calculation even when it is estimated to take hours."),
+        click.option("--force", is_flag=True, help="Compute a molecule above 250 atoms, or a DFT calculation "
+                                                   "estimated to take hours."),
     ]):
         wrapper = opt(wrapper)
     return wrapper
@@ -207,7 +211,12 @@ def _phase(choice: str):
 
 
 def _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power) -> dict:
-    """Keyword arguments of vibest.comparison.compare from the comparison options."""
+    """Keyword arguments of vibest.comparison.compare from the comparison options (checked)."""
+    from .comparison import check_range
+
+    check_range(compare_range)
+    if tolerance <= 0:
+        raise InputError(f"--tolerance {tolerance:g}: the peak-match tolerance must be positive (cm^-1)")
     return {"range_cm1": tuple(compare_range), "fit_scale": fit_scale, "fit_shift": fit_shift,
             "shift_bounds_cm1": (-max_shift, max_shift), "baseline": baseline, "tolerance_cm1": tolerance,
             "gas_phase": _phase(phase), "intensity_power": intensity_power}
@@ -237,14 +246,50 @@ def _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1=(400.0,
     return opts
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+class _Commands(click.Group):
+    """The command group, with click's own usage errors turned into one line like vibest's."""
+
+    def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True, **extra):
+        try:
+            return super().main(args=args, prog_name=prog_name, complete_var=complete_var, standalone_mode=False,
+                                **extra)
+        except click.exceptions.Abort:
+            _fail("interrupted", 130)
+        except click.ClickException as exc:
+            ctx = getattr(exc, "ctx", None)
+            hint = f" (see {ctx.command_path} --help)" if ctx is not None else ""
+            _fail(exc.format_message().replace("\n", " ") + hint, exc.exit_code)
+        except BrokenPipeError:
+            _quiet_broken_pipe()
+
+
+def _quiet_broken_pipe() -> None:
+    """Output piped into a program that stopped reading (``| head``): end quietly, as Unix tools do."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except OSError:
+        pass
+    sys.exit(0)
+
+
+@click.group(cls=_Commands, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="vibest")
 def main() -> None:
-    """vibest: predicted IR spectra from structure (GFN2-xTB, harmonic, scaled),
-    compared with measured spectra.
+    """vibest: predicted IR spectra from structure (GFN2-xTB or DFT, harmonic, scaled),
+    compared with measured spectra; verdicts on whether a sample is the intended structure.
 
     Predictions are estimates: confirm identifications with reference standards.
     """
+    import signal
+
+    def terminate(signum, frame):  # SIGTERM ends a command the way Ctrl-C does (summary, exit 130)
+        raise KeyboardInterrupt
+
+    try:
+        signal.signal(signal.SIGTERM, terminate)
+    except ValueError:  # not the main thread (e.g. a test runner's worker thread)
+        pass
 
 
 @main.command("predict")
@@ -393,14 +438,13 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--plot": plot_path, "--json": json_path})
+        kw = _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power)
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
         pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
-        comp = compare(pred, spec, score_name=score_name,
-                       **_compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
-                                     intensity_power))
+        comp = compare(pred, spec, score_name=score_name, **kw)
         for note in spec.notes:
             click.echo(f"# note: {note}")
         click.echo(output.comparison_summary(comp))
@@ -467,8 +511,12 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         kw = _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power)
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts, store=_store(store_path, no_store),
                                   score_name=score_name, progress=report, refine=refine, refine_calc=refine_calc, **kw)
-        assessment = assess(ranking, kw, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
         progress.finish()
+        if not any(e.comparison is not None for e in ranking.entries):
+            reasons = "; ".join(f"{e.candidate.name}: {e.error}" for e in ranking.entries[:3])
+            raise InputError(f"no candidate could be ranked ({reasons}"
+                             + (" ..." if len(ranking.entries) > 3 else "") + ")")
+        assessment = assess(ranking, kw, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
         click.echo(output.ranking_table(ranking, assessment))
         items = [("--csv", csv_path, lambda: ranking.write_csv(csv_path)),
                  ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
@@ -664,9 +712,12 @@ def store_command(store_path, list_rows) -> None:
         click.echo(f"store {store.path}: schema version {store.schema_version()}, {store.count()} records, "
                    f"{store.failure_count()} failures, integrity {store.integrity_check()}")
         if list_rows:
-            for key, smiles, inchikey, natoms, energy in store.rows():
-                click.echo(f"{key[:12]}  {inchikey or '-':27}  {natoms or '':>4}  "
-                           f"{'' if energy is None else f'{energy:.8f}':>16}  {smiles}")
+            click.echo(f"{'key':<12}  {'InChIKey':<27}  {'atoms':>5}  {'energy / Eh':>16}  {'method':<22}  "
+                       f"SMILES  (name)")
+            for key, smiles, inchikey, natoms, energy, name, method in store.rows():
+                click.echo(f"{key[:12]}  {inchikey or '-':27}  {natoms or '':>5}  "
+                           f"{'' if energy is None else f'{energy:.8f}':>16}  {method[:22]:<22}  {smiles}"
+                           + (f"  ({name})" if name else ""))
         store.close()
 
 

@@ -36,6 +36,8 @@ REGIONAL_EDGES_CM1 = (1500.0, 2500.0)
 #: top-1 61 %, top-3 72 %, isomers 79 %; regional 64 %, 81 %, 100 % (FWHM 16 and 30 alike).
 DEFAULT_SCORE = "regional"
 DEFAULT_COMPARE_RANGE_CM1 = (500.0, 3800.0)
+#: Narrowest range compared (cm^-1): a few bands' worth.
+MIN_COMPARE_WIDTH_CM1 = 50.0
 DEFAULT_COMPARE_STEP_CM1 = 2.0
 DEFAULT_MATCH_TOLERANCE_CM1 = 40.0
 #: Both normalised curves are compared as y**p: p = 0.5 (square root) lets medium and weak bands
@@ -161,11 +163,17 @@ class Comparison:
     predicted_curve: np.ndarray
     matches: tuple[PeakMatch, ...]
     settings: dict = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+
+    @property
+    def coverage(self) -> float:
+        """Fraction of the requested comparison range that the measured data cover."""
+        return float(self.settings.get("coverage", 1.0))
 
     def to_dict(self, include_curves: bool = False) -> dict:
         d = {"smiles": self.smiles, "score_name": self.score_name, "score": self.score, "scores": self.scores,
              "extra_scale": self.extra_scale, "shift_cm1": self.shift_cm1, "settings": self.settings,
-             "peak_matches": [m.to_dict() for m in self.matches]}
+             "notes": list(self.notes), "peak_matches": [m.to_dict() for m in self.matches]}
         if include_curves:
             d["grid_cm1"] = self.grid_cm1.tolist()
             d["measured_curve"] = self.measured_curve.tolist()
@@ -246,6 +254,20 @@ def match_peaks(measured: list[Peak], predicted: list[Peak], tolerance_cm1: floa
     return sorted(pairs, key=lambda mp: -(mp[0] or mp[1]).wavenumber_cm1)
 
 
+def check_range(range_cm1) -> None:
+    """A comparison range must be two numbers, low < high, at least MIN_COMPARE_WIDTH_CM1 apart."""
+    try:
+        lo, hi = (float(v) for v in range_cm1)
+    except (TypeError, ValueError):
+        raise InputError(f"comparison range {range_cm1!r}: give two wavenumbers, low and high") from None
+    if not (np.isfinite(lo) and np.isfinite(hi)) or lo >= hi:
+        raise InputError(f"comparison range {lo:g}-{hi:g} cm^-1: the low end must be below the high end")
+    if hi - lo < MIN_COMPARE_WIDTH_CM1:
+        raise InputError(f"comparison range {lo:g}-{hi:g} cm^-1 is narrower than {MIN_COMPARE_WIDTH_CM1:.0f} cm^-1")
+    if lo < 0 or hi > 10000:
+        raise InputError(f"comparison range {lo:g}-{hi:g} cm^-1 must lie within 0-10000 cm^-1")
+
+
 def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = DEFAULT_SCORE,
             range_cm1: tuple[float, float] = DEFAULT_COMPARE_RANGE_CM1, step_cm1: float = DEFAULT_COMPARE_STEP_CM1,
             fit_scale: bool = False, scale_bounds: tuple[float, float] = (0.95, 1.05),
@@ -271,12 +293,18 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     """
     if score_name not in SCORES:
         raise InputError(f"unknown score {score_name!r}; choose one of {', '.join(SCORES)}")
+    check_range(range_cm1)
     lo, hi = range_cm1
     mlo, mhi = measured.range_cm1
     lo, hi = max(lo, mlo), min(hi, mhi)
-    if hi - lo < 50:
-        raise InputError(f"{measured.source}: the measured range {mlo:.0f}-{mhi:.0f} cm^-1 does not overlap "
-                         f"the comparison range {range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1")
+    if hi - lo < MIN_COMPARE_WIDTH_CM1:
+        raise InputError(f"{measured.source}: the measured range {mlo:.0f}-{mhi:.0f} cm^-1 overlaps the comparison "
+                         f"range {range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1 by less than {MIN_COMPARE_WIDTH_CM1:.0f} cm^-1")
+    coverage = (hi - lo) / (range_cm1[1] - range_cm1[0])
+    notes = []
+    if coverage < 0.9:
+        notes.append(f"the measured data cover {lo:.0f}-{hi:.0f} cm^-1, {coverage:.0%} of the compared "
+                     f"{range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1: bands outside are not judged")
     if gas_phase is None:
         gas_phase = measured.phase == "gas"
     if not (0.1 <= intensity_power <= 2.0):
@@ -347,6 +375,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     settings = {"range_cm1": [lo, hi], "step_cm1": step_cm1, "fwhm_cm1": fwhm, "line_shape": shape,
                 "baseline": baseline, "fit_scale": fit_scale, "fit_shift": fit_shift,
                 "tolerance_cm1": tolerance_cm1, "prominence": prominence, "gas_phase": gas_phase,
-                "smooth_measured_cm1": smooth_measured_cm1, "intensity_power": intensity_power}
+                "smooth_measured_cm1": smooth_measured_cm1, "intensity_power": intensity_power,
+                "coverage": coverage}
     return Comparison(pred.smiles, score_name, scores[score_name], scores, f_best, s_best, g, m_curve, p_curve,
-                      tuple(rows), settings)
+                      tuple(rows), settings, tuple(notes))

@@ -157,7 +157,8 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
     n_rot = rotor_count(mol_noh)
     notes = list(notes)
     if n_rot == 0:
-        mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
+        mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment,
+                              allow_large=calc.allow_long)
         t0 = time.perf_counter()
         record, _, n = compute_record(mol, calc, progress)
         pred = analyse(record, spec)

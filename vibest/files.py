@@ -103,3 +103,32 @@ def check_outputs(paths: dict[str, str | None], suffixes: dict[str, tuple[str, .
             raise InputError(f"{option} {value}: the folder {folder} is not writable")
         if p.exists() and not os.access(p, os.W_OK):
             raise InputError(f"{option} {value}: the file exists and is not writable")
+
+
+def read_limited(path: str | Path, max_bytes: int, what: str = "file") -> bytes:
+    """The bytes of a regular file of at most ``max_bytes``; InputError (one line) for a missing
+    file, a folder, a device or pipe (/dev/zero, a FIFO: never read until memory runs out), or a
+    larger file."""
+    import stat
+
+    p = Path(path)
+    try:
+        st = p.stat()
+    except FileNotFoundError:
+        raise InputError(f"{path}: no such file") from None
+    except OSError as exc:
+        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if stat.S_ISDIR(st.st_mode):
+        raise InputError(f"{path} is a folder, not a {what}")
+    if not stat.S_ISREG(st.st_mode):
+        raise InputError(f"{path} is not a regular file (a device or a pipe): give a {what} on disk")
+    if st.st_size > max_bytes:
+        raise InputError(f"{path} is {st.st_size / 1e6:.0f} MB, more than the {max_bytes / 1e6:.0f} MB a {what} may have")
+    try:
+        with open(p, "rb") as fh:
+            data = fh.read(max_bytes + 1)
+    except OSError as exc:
+        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if len(data) > max_bytes:
+        raise InputError(f"{path} grew beyond {max_bytes / 1e6:.0f} MB while being read")
+    return data

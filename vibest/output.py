@@ -154,8 +154,15 @@ def comparison_summary(comp) -> str:
     s = comp.scores
     others = ", ".join(f"{k} {v:.3f}" for k, v in s.items() if k != comp.score_name)
     text = f"{comp.smiles}: {comp.score_name} {comp.score:.4f}  ({others})"
-    if comp.settings.get("fit_scale") or comp.settings.get("fit_shift"):
-        text += f"\n  fitted: extra scale {comp.extra_scale:.4f}, shift {comp.shift_cm1:+.1f} cm-1"
+    fitted = []
+    if comp.settings.get("fit_scale"):
+        fitted.append(f"extra scale {comp.extra_scale:.4f}")
+    if comp.settings.get("fit_shift"):
+        fitted.append(f"shift {comp.shift_cm1:+.1f} cm-1")
+    if fitted:
+        text += f"\n  fitted: {', '.join(fitted)}"
+    for note in comp.notes:
+        text += f"\n  note: {note}"
     st = comp.settings
     text += (f"\n  compared as (absorbance)^{st.get('intensity_power', 1.0):g}"
              + (", predicted bands with gas-phase rotational contours" if st.get("gas_phase") else ""))
@@ -181,6 +188,8 @@ def ranking_table(ranking, assessment=None) -> str:
     lines = [f"# measured: {ranking.measured.source}  ({ranking.measured.title})"]
     for note in ranking.measured.notes:
         lines.append(f"# note: {note}")
+    coverage = {n for e in ranking.entries if e.comparison for n in e.comparison.notes if "cover" in n}
+    lines += [f"# note: {n}" for n in sorted(coverage)]
     lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'shift':>6}  {'peaks':>7}  name  (SMILES)")
     for e in ranking.entries:
         if e.error:

@@ -34,6 +34,16 @@ CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical
            "identification with reference standards and a validated method.")
 
 
+def _is_real(value) -> bool:
+    """A finite real number (not a bool, not a string)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return False
+    try:
+        return bool(np.isfinite(float(value)))
+    except OverflowError:
+        return False
+
+
 @dataclass(frozen=True)
 class SpectrumOptions:
     """Settings of the cheap stage: scaling and broadening.
@@ -50,11 +60,22 @@ class SpectrumOptions:
     scale_model: str | None = None
 
     def validate(self) -> None:
-        if self.line_shape not in LINE_SHAPES:
+        for name in ("fwhm_cm1", "step_cm1", "scale_factor"):
+            value = getattr(self, name)
+            if value is None and name == "scale_factor":
+                continue
+            if not _is_real(value):
+                raise InputError(f"{name} must be a number, not {value!r}")
+        try:
+            lo, hi = (float(v) for v in self.range_cm1)
+        except (TypeError, ValueError, OverflowError):
+            raise InputError(f"range_cm1 must be two numbers (cm^-1), not {self.range_cm1!r}") from None
+        if not (np.isfinite(lo) and np.isfinite(hi)):
+            raise InputError(f"range_cm1 must be two finite numbers (cm^-1), not {self.range_cm1!r}")
+        if not isinstance(self.line_shape, str) or self.line_shape not in LINE_SHAPES:
             raise InputError(f"line shape {self.line_shape!r} unknown; choose one of {', '.join(LINE_SHAPES)}")
         if not (0 < self.fwhm_cm1 <= 500):
-            raise InputError(f"FWHM {self.fwhm_cm1} cm^-1 must be between 0 and 500")
-        lo, hi = self.range_cm1
+            raise InputError(f"FWHM {self.fwhm_cm1:g} cm^-1 must be above 0 and at most 500")
         if not (0 <= lo < hi <= 10000):
             raise InputError(f"range {lo}-{hi} cm^-1 must satisfy 0 <= low < high <= 10000")
         if not (0 < self.step_cm1 <= (hi - lo) / 2):
@@ -279,7 +300,11 @@ def predict(smiles: str, *, method: str = DEFAULT_METHOD, seed: int = DEFAULT_SE
         InputError: for invalid input (message suitable for the user).
         CalculationError: when the electronic-structure calculation fails.
     """
-    spec_opts = SpectrumOptions(scale_factor, fwhm_cm1, line_shape, tuple(range_cm1), step_cm1, scale_model)
+    try:
+        range_cm1 = tuple(range_cm1)
+    except TypeError:
+        raise InputError(f"range_cm1 must be two numbers (cm^-1), not {range_cm1!r}") from None
+    spec_opts = SpectrumOptions(scale_factor, fwhm_cm1, line_shape, range_cm1, step_cm1, scale_model)
     spec_opts.validate()
     calc_opts = calculation_options(method, seed=seed, largest_fragment=largest_fragment, backend=backend,
                                     solvent=solvent, solvent_model=solvent_model, workers=workers,
@@ -296,7 +321,8 @@ def predict_with(smiles: str, calc: CalculationOptions, spec: SpectrumOptions = 
     t0 = time.perf_counter()
     if progress is not None:
         progress("structure", 0, 1, smiles)
-    molecule = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
+    molecule = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment,
+                              allow_large=calc.allow_long)
     check_cost(molecule, calc)
     record, _, notes = compute_record(molecule, calc, progress)
     t1 = time.perf_counter()

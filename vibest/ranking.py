@@ -17,10 +17,12 @@ from .structure import build_molecule
 
 @dataclass(frozen=True)
 class Candidate:
-    """A candidate structure: display name and SMILES."""
+    """A candidate structure: display name and SMILES; ``problem`` says why a row of a
+    candidates file could not be read (the candidate then fails alone, with that reason)."""
 
     name: str
     smiles: str
+    problem: str = ""
 
 
 @dataclass(frozen=True)
@@ -83,29 +85,53 @@ class Ranking:
                      "score": self.score_name, "measured_notes": list(self.measured.notes), "caution": CAUTION})
 
 
+#: Largest candidates or batch file read (bytes): far beyond any list of structures.
+MAX_LIST_BYTES = 20_000_000
+
+
 def read_candidates(path: str | Path) -> list[Candidate]:
-    """Candidates from a file: one per line as ``SMILES [name]``, or CSV with 'smiles' (and 'name') columns."""
-    p = Path(path)
-    try:
-        text = p.read_text()
-    except OSError as exc:
-        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
-    lines = [l for l in text.splitlines() if l.strip() and not l.lstrip().startswith("#")]
-    if not lines:
+    """Candidates from a file: one per line as ``SMILES [name]``, or CSV with 'smiles' (and
+    'name') columns. A byte-order mark, CRLF line ends and comment lines (#) are fine. A row that
+    cannot be read (undecodable bytes, an empty SMILES cell) becomes a candidate with a
+    ``problem``, so that it fails alone; only a file that cannot be read at all, or that holds no
+    candidate, raises InputError."""
+    from .files import read_limited
+
+    data = read_limited(path, MAX_LIST_BYTES, "candidates file")
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
+    rows: list[tuple[int, str, str]] = []  # (line number, text, problem)
+    for k, raw in enumerate(data.splitlines(), start=1):
+        try:
+            text, problem = raw.decode("utf-8"), ""
+        except UnicodeDecodeError:
+            text, problem = raw.decode("utf-8", errors="replace"), f"{path}:{k}: not valid UTF-8 text"
+        if text.strip() and not text.lstrip().startswith("#"):
+            rows.append((k, text.strip(), problem))
+    if not rows:
         raise InputError(f"{path}: no candidates in the file")
-    out: list[Candidate] = []
-    header = [h.strip().lower() for h in lines[0].split(",")]
+    header = [h.strip().lower() for h in next(csv.reader([rows[0][1]]))]
     if "smiles" in header:
-        for k, row in enumerate(csv.DictReader(lines), start=2):
-            row = {(key or "").strip().lower(): (v or "").strip() for key, v in row.items()}
-            if not row.get("smiles"):
-                raise InputError(f"{path}:{k}: empty smiles")
-            out.append(Candidate(row.get("name") or row["smiles"], row["smiles"]))
-        return out
-    for line in lines:
-        parts = line.split(None, 1)
-        out.append(Candidate(parts[1].strip() if len(parts) > 1 else parts[0], parts[0]))
+        return [_csv_candidate(path, k, text, problem, header) for k, text, problem in rows[1:]] or \
+            _no_rows(path)
+    out = []
+    for k, text, problem in rows:
+        parts = text.split(None, 1)
+        out.append(Candidate(parts[1].strip() if len(parts) > 1 else parts[0], parts[0], problem))
     return out
+
+
+def _no_rows(path) -> list[Candidate]:
+    raise InputError(f"{path}: a header but no candidates")
+
+
+def _csv_candidate(path, k: int, text: str, problem: str, header: list[str]) -> Candidate:
+    cells = [c.strip() for c in next(csv.reader([text]))]
+    get = {h: (cells[i] if i < len(cells) else "") for i, h in enumerate(header)}
+    smiles, name = get.get("smiles", ""), get.get("name", "")
+    if not problem and not smiles:
+        problem = f"{path}:{k}: empty smiles cell"
+    return Candidate(name or smiles or f"row {k}", smiles, problem)
 
 
 def with_decoys(candidates: list[Candidate], per_candidate: int) -> list[Candidate]:
@@ -124,19 +150,34 @@ def with_decoys(candidates: list[Candidate], per_candidate: int) -> list[Candida
 
 
 def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions, store: RecordStore | None,
-                   progress=None) -> tuple[Prediction, bool]:
-    """Prediction of ``smiles``, computing the record only when the store has none (and storing it)."""
+                   progress=None, name: str = "") -> tuple[Prediction, bool]:
+    """Prediction of ``smiles``, computing the record only when the store has none (and storing it).
+
+    A store that cannot be read or written (read-only, full, locked) never costs the result: the
+    prediction says so in a note and is returned."""
+    import sqlite3
+
     spec.validate()
     spec.resolve_scale(calc.engine.method)  # a scale model missing for the method: said before computing
-    record = store.get(smiles, calc) if store is not None else None
+    notes: list[str] = []
+    record = None
+    if store is not None:
+        try:
+            record = store.get(smiles, calc)
+        except (sqlite3.Error, OSError) as exc:
+            notes.append(f"result store {store.path} could not be read ({exc}): computed anew")
     hit = record is not None
     if record is None:
-        mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment)
+        mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment,
+                              allow_large=calc.allow_long)
         check_cost(mol, calc)
         record, _, _ = compute_record(mol, calc, progress)
         if store is not None:
-            store.put(smiles, calc, record)
-    return analyse(record, spec), hit
+            try:
+                store.put(smiles, calc, record, name=name)
+            except (sqlite3.Error, OSError) as exc:
+                notes.append(f"result store {store.path} could not be written ({exc}): this result is not kept")
+    return analyse(record, spec, notes=tuple(notes)), hit
 
 
 def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
@@ -161,8 +202,11 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     for k, cand in enumerate(candidates):
         if progress:
             progress(k, len(candidates), cand.name)
+        if cand.problem:
+            failed.append(RankedCandidate(None, cand, None, None, None, None, cand.problem, method=calc.method_name))
+            continue
         try:
-            pred, hit = predict_stored(cand.smiles, calc, spec, store)
+            pred, hit = predict_stored(cand.smiles, calc, spec, store, name=cand.name)
             comp = compare(pred, measured, score_name=score_name, **compare_options)
             scored.append((cand, pred, comp, hit, False, ""))
         except VibestError as exc:

@@ -34,7 +34,7 @@ from .pipeline import CalculationOptions
 #: Raised when a vibest release changes the numbers of the expensive stage for the same settings.
 CALCULATION_VERSION = 1
 #: Current schema version (PRAGMA user_version).
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 #: Seconds a writer waits for another writer's lock before giving up.
 DEFAULT_TIMEOUT_S = 120.0
 
@@ -54,6 +54,9 @@ def structure_identity(smiles: str) -> tuple[str, str]:
     Raises InputError for a SMILES RDKit cannot read."""
     from rdkit import Chem, RDLogger
 
+    from .structure import _check_text
+
+    smiles = _check_text(smiles)  # whitespace and non-ASCII refused, as everywhere
     RDLogger.DisableLog("rdApp.*")
     mol = Chem.MolFromSmiles(smiles)
     if mol is None:
@@ -98,8 +101,41 @@ def _migrate_2(conn: sqlite3.Connection) -> None:
                      (rec.natoms, rec.energy_hartree, key))
 
 
+def _migrate_3(conn: sqlite3.Connection) -> None:
+    """Version 3: a SHA-256 checksum of every record (the integrity check verifies them), and
+    claims: which process is computing which key, so that two batches on one store share the work."""
+    conn.execute("ALTER TABLE records ADD COLUMN checksum TEXT")
+    conn.execute("ALTER TABLE records ADD COLUMN name TEXT")
+    for key, blob in conn.execute("SELECT key, record FROM records").fetchall():
+        conn.execute("UPDATE records SET checksum = ? WHERE key = ?", (_checksum(blob), key))
+    conn.execute("""CREATE TABLE IF NOT EXISTS claims (
+        key TEXT PRIMARY KEY, host TEXT NOT NULL, pid INTEGER NOT NULL, created REAL NOT NULL)""")
+
+
+def _claim_alive(host: str, pid: int, created: float, my_host: str, now: float) -> bool:
+    if now - created > CLAIM_LIFETIME_S:
+        return False
+    if host != my_host:
+        return True
+    try:
+        os.kill(int(pid), 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def _checksum(blob: bytes) -> str:
+    return hashlib.sha256(blob).hexdigest()
+
+
 #: schema version reached -> function that upgrades from the version before.
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _migrate_1, 2: _migrate_2}
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _migrate_1, 2: _migrate_2, 3: _migrate_3}
+#: The tables a vibest store has (another program's SQLite file is refused, never altered).
+OWN_TABLES = {"records", "failures", "claims"}
+#: A claim older than this (s) is void (its process died without releasing it, on another host).
+CLAIM_LIFETIME_S = 24 * 3600.0
 
 
 class RecordStore:
@@ -128,17 +164,24 @@ class RecordStore:
             raise InputError(f"cannot open result store {self.path}: {exc}") from None
         try:
             conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+            self._upgrade(conn)  # before WAL: another program's file is refused unaltered
             conn.execute("PRAGMA journal_mode = WAL")
             conn.execute("PRAGMA synchronous = NORMAL")
-            self._upgrade(conn)
         except sqlite3.DatabaseError as exc:
             conn.close()
             raise InputError(f"{self.path} is not a usable vibest result store: {exc}") from None
+        except InputError:
+            conn.close()
+            raise
         self._conn, self._pid = conn, os.getpid()
         return conn
 
     def _upgrade(self, conn: sqlite3.Connection) -> None:
         version = conn.execute("PRAGMA user_version").fetchone()[0]
+        tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+        if tables - OWN_TABLES:
+            raise InputError(f"{self.path} is an SQLite file of another program (tables "
+                             f"{', '.join(sorted(tables - OWN_TABLES))}): give a file of its own for the result store")
         if version > SCHEMA_VERSION:
             raise InputError(f"result store {self.path} has schema version {version}, newer than this vibest "
                              f"understands ({SCHEMA_VERSION}); upgrade vibest or use another file")
@@ -212,9 +255,11 @@ class RecordStore:
         return self.get_by_key(self.key(smiles, options))
 
     def get_by_key(self, key: str) -> HessianRecord | None:
-        row = self._connect().execute("SELECT record FROM records WHERE key = ?", (key,)).fetchone()
+        row = self._connect().execute("SELECT record, checksum FROM records WHERE key = ?", (key,)).fetchone()
         if row is None:
             return None
+        if row[1] is not None and _checksum(row[0]) != row[1]:
+            return None  # damaged row: recompute and replace
         try:
             return _decode(row[0])
         except (ValueError, KeyError, TypeError, zlib.error, InputError):
@@ -224,10 +269,11 @@ class RecordStore:
         return self._connect().execute("SELECT 1 FROM records WHERE key = ?", (key,)).fetchone() is not None
 
     def put(self, smiles: str, options: CalculationOptions, record: HessianRecord,
-            identity: tuple[str, str] | None = None) -> str:
+            identity: tuple[str, str] | None = None, name: str = "") -> str:
         """Store ``record`` (replacing any row with the same key, and clearing a stored failure); returns the key.
 
-        ``identity``: the (canonical SMILES, InChIKey) of ``smiles`` when the caller has them already."""
+        ``identity``: the (canonical SMILES, InChIKey) of ``smiles`` when the caller has them already;
+        ``name``: what the user called the molecule (shown by ``vibest store --list``)."""
         from . import __version__
 
         canonical, inchikey = identity or structure_identity(smiles)
@@ -236,9 +282,10 @@ class RecordStore:
         conn = self._connect()
         with self._write(conn):
             conn.execute("INSERT OR REPLACE INTO records (key, inchikey, smiles, settings, created, record, natoms, "
-                         "energy_hartree, vibest_version) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                         "energy_hartree, vibest_version, checksum, name) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                          (key, inchikey, canonical, json.dumps(self.settings_of(options), sort_keys=True, default=str),
-                          time.time(), blob, record.natoms, record.energy_hartree, __version__))
+                          time.time(), blob, record.natoms, record.energy_hartree, __version__, _checksum(blob),
+                          name if name and name != smiles else ""))
             conn.execute("DELETE FROM failures WHERE key = ?", (key,))
         return key
 
@@ -270,14 +317,57 @@ class RecordStore:
     def failure_count(self) -> int:
         return self._connect().execute("SELECT COUNT(*) FROM failures").fetchone()[0]
 
-    def rows(self) -> Iterator[tuple[str, str, str, int, float]]:
-        """(key, canonical SMILES, InChIKey, atoms, energy Eh) of every stored record."""
-        yield from self._connect().execute(
-            "SELECT key, smiles, inchikey, natoms, energy_hartree FROM records ORDER BY smiles")
+    def rows(self) -> Iterator[tuple[str, str, str, int, float, str, str]]:
+        """(key, canonical SMILES, InChIKey, atoms, energy Eh, name, method) of every stored record."""
+        for key, smiles, inchikey, natoms, energy, name, settings in self._connect().execute(
+                "SELECT key, smiles, inchikey, natoms, energy_hartree, name, settings FROM records ORDER BY smiles"):
+            try:
+                engine = json.loads(settings)["options"]["engine"]
+                method = engine.get("method", "")
+            except (ValueError, KeyError, TypeError):
+                method = ""
+            yield key, smiles, inchikey, natoms, energy, name or "", method
 
     def integrity_check(self) -> str:
-        """SQLite's ``PRAGMA integrity_check`` ("ok" for a sound file)."""
-        return "; ".join(r[0] for r in self._connect().execute("PRAGMA integrity_check").fetchall())
+        """SQLite's ``PRAGMA integrity_check`` and every record's checksum ("ok" for a sound
+        file; else what is wrong, naming damaged records by SMILES)."""
+        conn = self._connect()
+        problems = [r[0] for r in conn.execute("PRAGMA integrity_check").fetchall() if r[0] != "ok"]
+        damaged = [smiles for smiles, blob, checksum in conn.execute("SELECT smiles, record, checksum FROM records")
+                   if checksum is not None and _checksum(blob) != checksum]
+        if damaged:
+            problems.append(f"{len(damaged)} damaged record(s): {', '.join(sorted(damaged)[:5])}"
+                            + (" ..." if len(damaged) > 5 else "") + " (they are recomputed when asked for)")
+        return "; ".join(problems) or "ok"
+
+    # -- claims (two batches on one store share the work) -----------------------------------
+    def claim(self, keys: list[str]) -> tuple[list[str], dict[str, str]]:
+        """Claim ``keys`` for this process: (the keys claimed now, {key: holder} of those another
+        live process holds). A claim of a process that no longer runs (same host) or older than
+        :data:`CLAIM_LIFETIME_S` is taken over."""
+        import socket
+
+        host, pid, now = socket.gethostname(), os.getpid(), time.time()
+        mine, others = [], {}
+        conn = self._connect()
+        with self._write(conn):
+            for key in keys:
+                row = conn.execute("SELECT host, pid, created FROM claims WHERE key = ?", (key,)).fetchone()
+                if row is not None and (row[0], row[1]) != (host, pid) and _claim_alive(*row, host, now):
+                    others[key] = f"process {row[1]} on {row[0]}"
+                    continue
+                conn.execute("INSERT OR REPLACE INTO claims (key, host, pid, created) VALUES (?, ?, ?, ?)",
+                             (key, host, pid, now))
+                mine.append(key)
+        return mine, others
+
+    def release(self, keys: list[str]) -> None:
+        """Give up this process's claims of ``keys``."""
+        if not keys:
+            return
+        conn = self._connect()
+        with self._write(conn):
+            conn.executemany("DELETE FROM claims WHERE key = ? AND pid = ?", [(k, os.getpid()) for k in keys])
 
     def schema_version(self) -> int:
         return self._connect().execute("PRAGMA user_version").fetchone()[0]

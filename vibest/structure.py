@@ -18,6 +18,10 @@ from .errors import InputError
 MAX_ATOMIC_NUMBER = 86
 #: Longest SMILES accepted (characters); far beyond any molecule vibest can compute.
 MAX_SMILES_CHARACTERS = 2000
+#: Largest molecule (atoms with hydrogens) computed without being asked (--force): its GFN2-xTB
+#: Hessian takes 6N-12 gradients, some 10-25 minutes at 250 atoms on 2 cores, and the 3D
+#: embedding of much larger molecules runs for minutes without answering Ctrl-C.
+MAX_ATOMS = 250
 
 
 @dataclass(frozen=True)
@@ -241,10 +245,22 @@ def _embed(mol_noh: Chem.Mol, seed: int, prerelax: bool, num_conformers: int) ->
     return out
 
 
+def check_size(mol_noh: Chem.Mol, allow_large: bool = False) -> int:
+    """Atoms with hydrogens; InputError beyond :data:`MAX_ATOMS` unless ``allow_large``."""
+    atoms = mol_noh.GetNumAtoms() + sum(a.GetTotalNumHs() for a in mol_noh.GetAtoms())
+    if atoms > MAX_ATOMS and not allow_large:
+        raise InputError(f"{atoms} atoms with hydrogens: more than the {MAX_ATOMS} vibest computes unless asked "
+                         f"(a GFN2-xTB Hessian of that size takes {atoms * 6 // 60} minutes or more here); "
+                         "add --force (API: allow_long=True) to run it anyway")
+    return atoms
+
+
 def build_molecule(smiles: str, seed: int = 0xB1B, largest_fragment: bool = False,
-                   prerelax: bool = True) -> Molecule:
-    """SMILES -> validated :class:`Molecule` with one force-field-relaxed 3D geometry."""
+                   prerelax: bool = True, allow_large: bool = False) -> Molecule:
+    """SMILES -> validated :class:`Molecule` with one force-field-relaxed 3D geometry; molecules
+    above :data:`MAX_ATOMS` atoms (with hydrogens) are refused unless ``allow_large``."""
     mol_noh, notes = parse_smiles(smiles, largest_fragment=largest_fragment)
+    check_size(mol_noh, allow_large)
     mol = embed(mol_noh, seed=seed, prerelax=prerelax)
     if mol.GetNumAtoms() == 1:
         raise InputError(f"{smiles!r} is a single atom: it has no vibrations")

@@ -78,6 +78,13 @@ def read_batch_input(path: str | Path) -> list[Candidate]:
 
 
 def _as_candidates(molecules: Iterable) -> list[Candidate]:
+    if isinstance(molecules, (str, bytes)):
+        raise InputError("predict_many takes a list of molecules, not one string: write predict_many([smiles]) "
+                         "or vibest.predict(smiles)")
+    try:
+        molecules = list(molecules)
+    except TypeError:
+        raise InputError(f"predict_many takes a list of molecules, not {type(molecules).__name__}") from None
     out = []
     for m in molecules:
         if isinstance(m, Candidate):
@@ -151,7 +158,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
     from .pool import DaskPool, InProcessPool, LocalPool
 
     spec.validate()
-    spec.resolve_scale()
+    spec.resolve_scale(calc.engine.method)
     cands = _as_candidates(molecules)
     store = store if isinstance(store, RecordStore) else RecordStore(store)
     out_dir = Path(output_dir) if output_dir is not None else None
@@ -172,6 +179,9 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
     jobs: dict[str, list[tuple[int, Candidate, str]]] = {}
     identities: dict[str, tuple[str, str]] = {}
     for row, cand in enumerate(cands, start=1):
+        if cand.problem:
+            finish(row, BatchEntry(row, cand.name, cand.smiles, "", "failed", cand.problem))
+            continue
         try:
             canonical, inchikey = structure_identity(cand.smiles)
         except InputError as exc:
@@ -193,12 +203,20 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
         if reason is not None:
             for row, cand, canonical in rows:
                 finish(row, BatchEntry(row, cand.name, cand.smiles, canonical, "failed",
-                                       f"{reason} (stored failure; use retry to compute again)"))
+                                       f"{reason} (stored failure; --retry-failed computes it again)"))
             continue
         job_id = len(todo)
         by_job[job_id] = key
         todo.append((job_id, rows[0][1].smiles, calc))
 
+    # another batch on the same store may be computing some of these: leave them to it
+    claimed, held = store.claim([by_job[j] for j, _, _ in todo])
+    if held:
+        todo = [t for t in todo if by_job[t[0]] not in held]
+        for key, holder in held.items():
+            for row, cand, canonical in jobs[key]:
+                finish(row, BatchEntry(row, cand.name, cand.smiles, canonical, "not run",
+                                       f"being computed by another batch ({holder}); run again afterwards"))
     if client is not None:
         pool = DaskPool(client)
     else:
@@ -209,7 +227,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
             key = by_job[outcome.job_id]
             rows = jobs[key]
             if outcome.record is not None:
-                store.put(rows[0][1].smiles, calc, outcome.record, identity=identities[key])
+                store.put(rows[0][1].smiles, calc, outcome.record, identity=identities[key], name=rows[0][1].name)
                 for row, cand, canonical in rows:
                     try:
                         entry = _summarise(cand, row, canonical, "computed", outcome.record, spec, key_band_count,
@@ -225,6 +243,11 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
                                            seconds=outcome.seconds))
     except KeyboardInterrupt:
         pass  # everything finished is stored; the rest is reported as "not run"
+    finally:
+        try:
+            store.release(claimed)
+        except Exception:  # noqa: BLE001 - a claim left behind only delays another batch
+            pass
     for row, cand in enumerate(cands, start=1):
         if row not in entries:
             entries[row] = BatchEntry(row, cand.name, cand.smiles, "", "not run", "interrupted")

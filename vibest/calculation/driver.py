@@ -125,12 +125,24 @@ def calculation_options(method: str = DEFAULT_METHOD, *, seed: int = DEFAULT_SEE
     and :func:`vibest.predict` both build them here). ``method``: a level as
     :func:`vibest.calculation.methods.parse_level` reads it (``gfn2``, ``b3lyp``, ``gfn2+b3lyp``)."""
     level = parse_level(method)
-    if workers is not None and int(workers) < 1:
+    for name, value in (("workers", workers), ("memory_mb", memory_mb)):
+        if value is not None and (isinstance(value, bool) or not isinstance(value, int)):
+            raise InputError(f"{name} must be a whole number, not {value!r}")
+    if workers is not None and workers < 1:
         raise InputError("workers must be at least 1")
-    if not isinstance(seed, int) or not 0 <= seed < 2 ** 31:
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2 ** 31:
         raise InputError(f"seed {seed!r} must be a whole number from 0 to {2 ** 31 - 1}")
-    if int(memory_mb) < 500:
+    if not isinstance(max_force_hartree_bohr, (int, float)) or not 1e-8 <= max_force_hartree_bohr <= 1e-1:
+        raise InputError(f"max_force_hartree_bohr {max_force_hartree_bohr!r} must be a number from 1e-8 to 0.1")
+    if not isinstance(hessian_step_bohr, (int, float)) or not 1e-4 <= hessian_step_bohr <= 0.1:
+        raise InputError(f"hessian_step_bohr {hessian_step_bohr!r} must be a number from 1e-4 to 0.1")
+    if memory_mb < 500:
         raise InputError(f"memory {memory_mb} MB is too little for a density-functional calculation (at least 500)")
+    for name, value in (("backend", backend), ("solvent_model", solvent_model)):
+        if not isinstance(value, str):
+            raise InputError(f"{name} must be a name, not {value!r}")
+    if solvent is not None and not isinstance(solvent, str):
+        raise InputError(f"solvent must be a name or None, not {solvent!r}")
     engine = EngineSettings.for_method(level.positions, backend, solvent, solvent_model)
     engine.validate()
     intensities = EngineSettings.for_method(level.intensities) if level.intensities else None

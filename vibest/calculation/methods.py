@@ -85,7 +85,9 @@ DEFAULT_METHOD = "gfn2"
 
 def method_named(text: str) -> Method:
     """The method a user typed (its key or its recorded name, any case)."""
-    wanted = str(text).strip().lower()
+    if not isinstance(text, str):
+        raise InputError(f"a method is a name such as 'gfn2' or 'b3lyp', not {text!r}")
+    wanted = text.strip().lower()
     for m in METHODS.values():
         if wanted in (m.key, m.name.lower()):
             return m
@@ -118,7 +120,9 @@ class Level:
 
 def parse_level(text: str) -> Level:
     """``"gfn2"``, ``"b3lyp"``, or ``"positions+intensities"`` such as ``"gfn2+b3lyp"``."""
-    parts = [p for p in str(text).split("+")]
+    if not isinstance(text, str):
+        raise InputError(f"a method is a name such as 'gfn2' or 'b3lyp', not {text!r}")
+    parts = text.split("+")
     if len(parts) == 1:
         return Level(method_named(parts[0]))
     if len(parts) != 2 or not all(p.strip() for p in parts):

@@ -147,40 +147,99 @@ def finish(x, y, kind: str, source: str, title: str = "", notes=()) -> MeasuredS
 
 
 def load_spectrum(path: str | Path, kind: str | None = None, block: int | None = None) -> MeasuredSpectrum:
-    """Read a measured spectrum from JCAMP-DX (.jdx, .dx, .jcamp) or CSV/TSV/TXT.
+    """Read a measured spectrum from JCAMP-DX or CSV/TSV/TXT, by content (a file whose first line
+    starts with ``##`` is JCAMP-DX whatever its name).
 
     Args:
-        kind: "absorbance" or "transmittance" to state what Y is (CSV); None to use the file's
-            units (JCAMP-DX) or to guess (CSV, with a note saying so).
+        kind: "absorbance" or "transmittance" to state what Y is; None to use the file's units
+            (JCAMP-DX), the CSV header's column name, or a guess (with a note saying so).
         block: which spectrum of a multi-block JCAMP-DX file (1-based).
+
+    Raises InputError (one line) for a file that cannot be read or values that cannot be a
+    spectrum (flat, all zero, transmittance far outside 0-100 %, mostly negative absorbance).
     """
-    p = Path(path)
-    if not p.exists():
-        raise InputError(f"{path}: no such file")
+    from ..files import read_limited
+    from .jcamp import MAX_SPECTRUM_BYTES
+
     if kind not in (None, ABSORBANCE, TRANSMITTANCE):
         raise InputError(f"kind must be {ABSORBANCE!r} or {TRANSMITTANCE!r}, not {kind!r}")
+    p = Path(path)
+    data = read_limited(p, MAX_SPECTRUM_BYTES, "spectrum file")
+    looks_jcamp = data.lstrip(b"\xef\xbb\xbf \t\r\n").startswith(b"##")
     suffix = p.suffix.lower()
-    if suffix in (".jdx", ".dx", ".jcamp", ".jcm"):
-        blk = read_jcamp(p, block=block)
-        x, xnotes = _x_to_cm1(blk.x, blk.labels.get("XUNITS", "1/CM"), str(path))
-        y = blk.y
-        if kind is None:
-            y, kind, ynotes = _classify_yunits(blk.labels.get("YUNITS", ""), y, str(path))
-        else:
-            ynotes = [f"Y taken as {kind} as requested"]
-        state = blk.labels.get("STATE", "").strip().lower()
-        spec = finish(x, y, kind, str(path), blk.title(), xnotes + ynotes)
-        if state.startswith(("gas", "vapor", "vapour")):
-            spec = dataclasses.replace(spec, phase="gas")
-        return spec
-    x, y, notes = read_delimited(p)
+    if looks_jcamp or suffix in (".jdx", ".dx", ".jcamp", ".jcm"):
+        spec = _from_jcamp(p, data, kind, block)
+        if looks_jcamp and suffix not in (".jdx", ".dx", ".jcamp", ".jcm"):
+            spec = spec.with_note(f"read as JCAMP-DX by its content (the name ends in {suffix or 'nothing'})")
+        return check_values(spec)
+    x, y, notes, header = read_delimited(p, data)
+    if kind is None:
+        kind = _kind_from_header(header)
+        if kind is not None:
+            notes.append(f"Y taken as {kind}, as the header says")
     if kind is None:
         kind, guess = guess_kind(y)
         notes.append(guess)
     if kind == TRANSMITTANCE and np.nanmax(y) > 1.5:
         y = y / 100.0
         notes.append("transmittance given in percent: divided by 100")
-    return finish(x, y, kind, str(path), p.stem, notes)
+    return check_values(finish(x, y, kind, str(path), p.stem, notes))
+
+
+def _from_jcamp(p: Path, data: bytes, kind: str | None, block: int | None) -> MeasuredSpectrum:
+    blk = read_jcamp(p, block=block, data=data)
+    x, xnotes = _x_to_cm1(blk.x, blk.labels.get("XUNITS", "1/CM"), str(p))
+    y = blk.y
+    if kind is None:
+        y, kind, ynotes = _classify_yunits(blk.labels.get("YUNITS", ""), y, str(p))
+    else:
+        ynotes = [f"Y taken as {kind} as requested"]
+    state = blk.labels.get("STATE", "").strip().lower()
+    spec = finish(x, y, kind, str(p), blk.title(), xnotes + ynotes)
+    if state.startswith(("gas", "vapor", "vapour")):
+        spec = dataclasses.replace(spec, phase="gas")
+    return spec
+
+
+def _kind_from_header(header: str) -> str | None:
+    """What the Y column's name in a CSV header says it is, if anything."""
+    cells = re.split(r"[,;\t]|\s{2,}", header.lower())
+    name = cells[1].strip() if len(cells) > 1 else ""
+    if re.search(r"transm|%t\b|^t\b|\bt\s*\(", name):
+        return TRANSMITTANCE
+    if re.search(r"absorb|^a\b|\ba\s*\(|\babs\b", name):
+        return ABSORBANCE
+    return None
+
+
+#: Transmittance values (fraction) outside [-TOLERANCE, 1 + TOLERANCE] cannot be noise around 0-100 %.
+TRANSMITTANCE_TOLERANCE = 0.1
+
+
+def check_values(spec: MeasuredSpectrum) -> MeasuredSpectrum:
+    """Refuse values that cannot be a spectrum; note what is odd but usable (one line each)."""
+    y = spec.values
+    span = float(y.max() - y.min())
+    if span <= 1e-9 * max(1.0, float(np.abs(y).max())):
+        what = "all zero" if not np.any(y) else f"flat (every value {y[0]:g})"
+        raise InputError(f"{spec.source}: the data are {what}: no band to compare")
+    if spec.kind == TRANSMITTANCE:
+        lo, hi = float(y.min()), float(y.max())
+        if lo < -TRANSMITTANCE_TOLERANCE or hi > 1.0 + TRANSMITTANCE_TOLERANCE:
+            raise InputError(f"{spec.source}: transmittance from {100 * lo:.0f} to {100 * hi:.0f} %: it cannot be "
+                             "below 0 or far above 100 %; is the Y column absorbance? (--y-kind)")
+        if lo < 0 or hi > 1.0:
+            spec = spec.with_note(f"transmittance reaches {100 * lo:.1f}-{100 * hi:.1f} %: noise around 0/100 % "
+                                  "taken as it is (clipped where used)")
+    else:
+        lo, hi = float(y.min()), float(y.max())
+        if hi <= 0:
+            raise InputError(f"{spec.source}: every absorbance value is zero or negative: no band to compare; "
+                             "is the Y column transmittance? (--y-kind)")
+        if lo < -0.2 * hi:
+            spec = spec.with_note(f"absorbance goes down to {lo:.3g} (maximum {hi:.3g}): an offset baseline? "
+                                  "negative values count as zero; --baseline removes a baseline")
+    return spec
 
 
 def guess_kind(y) -> tuple[str, str]:

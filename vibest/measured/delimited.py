@@ -35,23 +35,31 @@ def _choose_delimiter(lines: list[str]) -> tuple[str | None, bool]:
     return ",", False
 
 
-def read_delimited(path: Path) -> tuple[np.ndarray, np.ndarray, list[str]]:
-    """X and Y columns (first two) of a delimited text file, with notes."""
-    try:
-        raw = path.read_bytes().decode("utf-8-sig", errors="replace").replace("\x1a", "")
-    except OSError as exc:
-        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
+def read_delimited(path: Path, data: bytes | None = None) -> tuple[np.ndarray, np.ndarray, list[str], str]:
+    """X and Y columns (first two) of a delimited text file, with notes, and the header line
+    ("" without one). ``data``: the file's bytes when already read."""
+    if data is None:
+        from ..files import read_limited
+        from .jcamp import MAX_SPECTRUM_BYTES
+
+        data = read_limited(path, MAX_SPECTRUM_BYTES, "spectrum file")
+    raw = data.decode("utf-8-sig", errors="replace").replace("\x1a", "")
     numbered = [(k, l.strip()) for k, l in enumerate(raw.splitlines(), start=1)]
     numbered = [(k, l) for k, l in numbered if l and not l.startswith("#")]
     if not numbered:
         raise InputError(f"{path}: the file is empty")
     notes: list[str] = []
     first_data = 0
+    _refuse_ambiguous_commas(path, [l for _, l in numbered[1:]])
     delimiter, comma_decimal = _choose_delimiter([l for _, l in numbered[1:]] or [numbered[0][1]])
     fields = _fields(numbered[0][1], delimiter, comma_decimal)
+    header = ""
     if not (len(fields) >= 2 and all(_NUMBER.match(f) for f in fields[:2])):
         first_data = 1
-        notes.append(f"header line skipped: {numbered[0][1][:60]!r}")
+        header = numbered[0][1]
+        notes.append(f"header line: {header[:60]!r}")
+    if len(numbered) <= first_data:
+        raise InputError(f"{path}: a header but no data lines")
     xs, ys = [], []
     for lineno, line in numbered[first_data:]:
         f = _fields(line, delimiter, comma_decimal)
@@ -66,7 +74,19 @@ def read_delimited(path: Path) -> tuple[np.ndarray, np.ndarray, list[str]]:
             raise InputError(f"{path}:{lineno}: missing value (NaN or infinity) in {line[:40]!r}")
     if comma_decimal:
         notes.append("comma decimals read")
-    return np.array(xs), np.array(ys), notes
+    return np.array(xs), np.array(ys), notes, header
+
+
+def _refuse_ambiguous_commas(path, lines: list[str]) -> None:
+    """Commas as both decimal mark and separator with a varying count per line ("1000,5,0,87" beside
+    "1001,0,9"): which comma separates cannot be told, so the file is refused rather than misread."""
+    sample = lines[:200]
+    if not sample or any("." in l or ";" in l or "\t" in l for l in sample):
+        return
+    counts = {l.count(",") for l in sample}
+    if len(counts) > 1 and counts <= {2, 3}:
+        raise InputError(f"{path}: commas are both decimal marks and separators, with 2 or 3 per line: ambiguous; "
+                         "save the file with ';' or tab between the columns")
 
 
 def _fields(line: str, delimiter: str | None, comma_decimal: bool) -> list[str]:

@@ -257,13 +257,14 @@ def parse_jcamp(text: str, path: str = "<text>") -> list[JcampBlock]:
     return blocks
 
 
-def read_jcamp(path: str | Path, block: int | None = None) -> JcampBlock:
-    """The one data block of a JCAMP-DX file, or block number ``block`` (1-based) of several."""
-    p = Path(path)
-    try:
-        text = p.read_bytes().decode("latin-1")
-    except OSError as exc:
-        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
+def read_jcamp(path: str | Path, block: int | None = None, data: bytes | None = None) -> JcampBlock:
+    """The one data block of a JCAMP-DX file, or block number ``block`` (1-based) of several
+    (``data``: the file's bytes when already read)."""
+    from ..files import read_limited
+
+    if data is None:
+        data = read_limited(path, MAX_SPECTRUM_BYTES, "spectrum file")
+    text = data.decode("latin-1")
     if not text.strip():
         raise InputError(f"{path}: the file is empty")
     blocks = parse_jcamp(text, str(path))
@@ -275,6 +276,10 @@ def read_jcamp(path: str | Path, block: int | None = None) -> JcampBlock:
     if not 1 <= block <= len(blocks):
         raise InputError(f"{path}: block {block} does not exist (the file holds {len(blocks)})")
     return blocks[block - 1]
+
+
+#: Largest spectrum file read (bytes): a JCAMP-DX or CSV spectrum of a million points is ~30 MB.
+MAX_SPECTRUM_BYTES = 50_000_000
 
 
 def write_jcamp(path: str | Path, wavenumbers_cm1, values, title: str, yunits: str = "ABSORBANCE",
