@@ -15,4 +15,8 @@ echo
 echo "== ranking candidate solvents against the (invented) measured spectrum of batch HX-07 =="
 .venv/bin/vibest rank examples/hx07-recovered-solvent.csv --candidates-file examples/hx07-candidates.txt \
   --y-kind transmittance --store out/demo/store.sqlite --csv out/demo/hx07-ranking.csv --plot-dir out/demo/hx07-overlays
+echo
+echo "== is batch HX-07 2-butanone? verdict with decoys, confidence and group evidence =="
+.venv/bin/vibest check examples/hx07-recovered-solvent.csv "CCC(C)=O" --name 2-butanone --y-kind transmittance \
+  --store out/demo/store.sqlite --json out/demo/hx07-verdict.json --plot out/demo/hx07-verdict.png
 echo "demo outputs are in out/demo/"

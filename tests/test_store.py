@@ -68,6 +68,7 @@ def test_records_stored_before_the_displacement_option_serve_default_requests(tm
     store = RecordStore(tmp_path / "s.sqlite")
     old_options = CalculationOptions().to_dict()
     del old_options["hessian_displacements"]
+    del old_options["start_conformers"]  # water has no rotor: one start either way, not in its key
     canonical, inchikey = structure_identity("O")
     payload = json.dumps({"smiles": canonical, "inchikey": inchikey, "options": old_options,
                           "record_version": RECORD_VERSION, "calculation_version": CALCULATION_VERSION},
@@ -227,3 +228,13 @@ def test_a_store_that_cannot_be_written_or_read_never_costs_the_result(tmp_path,
     monkeypatch.setattr(store, "get", unreadable)
     pred, hit = predict_stored("O", CalculationOptions(workers=1), SpectrumOptions(), store)
     assert pred.bands and any("could not be read" in n for n in pred.notes)
+
+
+def test_start_conformer_search_is_in_the_key_of_flexible_molecules_only():
+    """Records of a flexible molecule computed from one embedding (before the search existed, or
+    with it switched off) do not answer default requests; a rigid molecule's key is unchanged."""
+    import dataclasses
+
+    on, off = CalculationOptions(), dataclasses.replace(CalculationOptions(), start_conformers=False)
+    assert RecordStore.key_of("CCCCO", "", on) != RecordStore.key_of("CCCCO", "", off)
+    assert RecordStore.key_of("c1ccccc1", "", on) == RecordStore.key_of("c1ccccc1", "", off)

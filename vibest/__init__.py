@@ -18,7 +18,8 @@ from .errors import CalculationError, InputError, VibestError  # noqa: E402
 _LAZY = {"predict": "pipeline", "analyse": "pipeline", "compute_record": "pipeline", "Prediction": "pipeline",
          "CalculationOptions": "pipeline", "SpectrumOptions": "pipeline",
          "CAUTION": "pipeline", "isotopologue": "pipeline", "prediction_thermochemistry": "pipeline",
-         "HessianRecord": "calculation.record",
+         "HessianRecord": "calculation.record", "calculation_options": "calculation.driver",
+         "check_structure": "verdict", "make_decoys": "decoys",
          "compare": "comparison", "rank_candidates": "ranking", "load_spectrum": "measured",
          "predict_many": "batch", "RecordStore": "store"}
 

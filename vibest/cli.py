@@ -526,7 +526,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
                 path = Path(plot_dir) / f"rank{e.rank}.png"
                 items.append(("--plot-dir", str(path), functools.partial(
                     output.plot_overlay, e.comparison, path, measured_label=f"measured {Path(measured).name}",
-                    title=f"rank {e.rank}: {e.candidate.name}  {score_name} {e.score:.3f}")))
+                    title=f"rank {e.rank}: {e.candidate.name}  ({score_name} score {e.score:.3f})",
+                    name=e.candidate.name)))
         _write_all(items)
 
 
@@ -577,7 +578,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
         _write_all([("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(verdict.to_dict(), indent=1))),
                     ("--plot", plot_path, lambda: output.plot_overlay(
                         mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
-                        title=f"{verdict.intended.name}: {verdict.conclusion} (rank {mine.rank})"))])
+                        title=f"{verdict.intended.name}: {verdict.conclusion} (rank {mine.rank})",
+                        name=verdict.intended.name))])
 
 
 class BatchBar:

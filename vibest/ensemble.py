@@ -33,7 +33,7 @@ from .errors import InputError
 from .pipeline import (CalculationOptions, Prediction, SpectrumOptions, analyse, compute_record,
                       prediction_thermochemistry)
 from .spectrum import Spectrum
-from .structure import build_molecule, embed, molecule_from_conformer, parse_smiles
+from .structure import build_molecule, embed, molecule_from_conformer, parse_smiles, rotor_count
 
 _HARTREE_KCAL = sc.physical_constants["Hartree energy"][0] * sc.N_A / (1000 * sc.calorie)
 WEIGHTINGS = ("energy", "free-energy")
@@ -127,18 +127,6 @@ def boltzmann_weights(relative_energies_kcal_mol, temperature_K: float) -> np.nd
     return w / w.sum()
 
 
-def rotor_count(mol_noh: Chem.Mol) -> int:
-    """Rotatable bonds (RDKit's count) plus O-H, N-H and S-H rotors on terminal heteroatoms bonded
-    to an sp3 or sp2 atom: their orientation gives distinct conformers (e.g. trans/gauche ethanol)."""
-    n = rdMolDescriptors.CalcNumRotatableBonds(mol_noh)
-    for atom in mol_noh.GetAtoms():
-        if atom.GetAtomicNum() in (7, 8, 16) and atom.GetTotalNumHs() > 0 and atom.GetDegree() == 1:
-            nb = atom.GetNeighbors()[0]
-            if nb.GetDegree() >= 2 and not atom.GetIsAromatic():
-                n += 1
-    return n
-
-
 def _rmsd(mol_a: Chem.Mol, mol_b: Chem.Mol) -> float:
     """All-atom RMSD after the best symmetry-equivalent alignment (hydrogens count: OH rotamers
     such as gauche/trans ethanol differ only in them)."""
@@ -158,7 +146,7 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
     notes = list(notes)
     if n_rot == 0:
         mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment,
-                              allow_large=calc.allow_long)
+                              allow_large=calc.allow_long, start_conformers=False)  # the ensemble searches itself
         t0 = time.perf_counter()
         record, _, n = compute_record(mol, calc, progress)
         pred = analyse(record, spec)

@@ -79,46 +79,91 @@ def write_json(pred: Prediction, path: str | Path) -> None:
     atomic_write_text(path, json.dumps(pred.to_dict(), indent=1))
 
 
+def place_labels(positions, heights, widths, x_span: float, levels: int = 6, step: float = 0.075,
+                 gap: float = 0.04) -> list[float | None]:
+    """Greedy, overlap-free heights for labels over peaks: each label (in the order given, the
+    most important first) goes to the lowest level above its peak where no label already placed
+    overlaps it horizontally (``widths`` in data units of x) and vertically; None where no level is
+    free (the label is left out rather than drawn over another)."""
+    placed: list[tuple[float, float, float]] = []  # (left, right, y)
+    out: list[float | None] = []
+    for x, h, w in zip(positions, heights, widths):
+        left, right = x - w / 2 - 0.004 * x_span, x + w / 2 + 0.004 * x_span
+        y = None
+        for k in range(levels):
+            trial = h + gap + k * step
+            if all(right < pl or left > pr or abs(trial - py) >= step for pl, pr, py in placed):
+                y = trial
+                break
+        out.append(y)
+        if y is not None:
+            placed.append((left, right, y))
+    return out
+
+
 def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = False,
-                    label_count: int = 8) -> None:
-    """Spectrum plot with the wavenumber axis running 4000 -> 400 cm^-1; format from the suffix."""
+                    label_count: int = 10) -> None:
+    """Spectrum plot, wavenumber axis 4000 -> 400 cm^-1, the strongest bands labelled without
+    overlaps (greedy placement); format from the suffix. In %T the strongest band is drawn at
+    10 % transmittance (absorbance 1), which the axis says."""
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    path = Path(path)
     s = pred.spectrum
-    fig, ax = plt.subplots(figsize=(10, 4.2), dpi=120)
+    fig, ax = plt.subplots(figsize=(10, 4.4), dpi=120)
     y = s.transmittance_percent if transmittance else s.absorbance_normalised
-    ax.plot(s.wavenumbers_cm1, y, color="#1f4e79", lw=1.2)
+    ax.plot(s.wavenumbers_cm1, y, color="#1f4e79", lw=1.2, label=f"spectrum ({s.line_shape}, FWHM {s.fwhm_cm1:g} cm$^{{-1}}$)")
     peak = max(pred.intensities_km_mol.max(), 1e-12)
     lo, hi = s.wavenumbers_cm1[0], s.wavenumbers_cm1[-1]
-    for b in pred.bands:
-        if lo <= b.wavenumber_cm1 <= hi and not transmittance:
-            ax.vlines(b.wavenumber_cm1, 0, b.intensity_km_mol / peak * 0.25, color="#c55a11", lw=0.8, alpha=0.7)
-    chosen: list[float] = []
+    inside = [b for b in pred.bands if lo <= b.wavenumber_cm1 <= hi]
+    if not transmittance and inside:
+        ax.vlines([b.wavenumber_cm1 for b in inside], 0, [b.intensity_km_mol / peak * 0.25 for b in inside],
+                  color="#c55a11", lw=0.8, alpha=0.7, label="bands (stick height: intensity, 1/4 scale)")
+    chosen = []
     for b in pred.strongest(len(pred.bands)):
         if len(chosen) >= label_count or b.intensity_km_mol < 0.02 * peak:
             break
-        if lo <= b.wavenumber_cm1 <= hi and all(abs(b.wavenumber_cm1 - c) > 0.025 * (hi - lo) for c in chosen):
-            chosen.append(b.wavenumber_cm1)
-            yk = np.interp(b.wavenumber_cm1, s.wavenumbers_cm1, y)
-            text = f"{b.wavenumber_cm1:.0f}\n{b.label or b.character.split(',')[0].rsplit(' ', 1)[0]}"
-            ax.annotate(text, (b.wavenumber_cm1, yk), xytext=(0, -28 if transmittance else 6),
-                        textcoords="offset points", ha="center", fontsize=6.5, color="#333333")
+        if lo <= b.wavenumber_cm1 <= hi and all(abs(b.wavenumber_cm1 - c.wavenumber_cm1) > 0.012 * (hi - lo)
+                                                for c in chosen):
+            chosen.append(b)
+    texts = [f"{b.wavenumber_cm1:.0f}\n{b.label or b.character.split(',')[0].rsplit(' ', 1)[0]}" for b in chosen]
+    widths = [max(len(line) for line in t.split("\n")) * 0.0055 * (hi - lo) for t in texts]
+    if transmittance:
+        heights = [np.interp(b.wavenumber_cm1, s.wavenumbers_cm1, y) for b in chosen]
+        for b, t, h in zip(chosen, texts, heights):
+            ax.annotate(t, (b.wavenumber_cm1, h), xytext=(0, -24), textcoords="offset points", ha="center",
+                        fontsize=6.5, color="#333333")
+    else:
+        # a label starts above the highest point of the curve under its whole width
+        heights = [float(y[(s.wavenumbers_cm1 >= b.wavenumber_cm1 - w / 2) & (s.wavenumbers_cm1 <= b.wavenumber_cm1 + w / 2)]
+                         .max(initial=0.0)) for b, w in zip(chosen, widths)]
+        for b, t, ty in zip(chosen, texts, place_labels([b.wavenumber_cm1 for b in chosen], heights, widths, hi - lo,
+                                                        step=0.1)):
+            if ty is not None:
+                ax.annotate(t, (b.wavenumber_cm1, ty), ha="center", va="bottom", fontsize=6.5, color="#333333")
+                ax.plot([b.wavenumber_cm1, b.wavenumber_cm1], [float(np.interp(b.wavenumber_cm1, s.wavenumbers_cm1, y))
+                                                               + 0.01, ty], color="#bbbbbb", lw=0.5)
     ax.set_xlim(hi, lo)
     ax.set_xlabel("wavenumber / cm$^{-1}$")
-    ax.set_ylabel("transmittance / %" if transmittance else "absorbance (normalised)")
-    if not transmittance:
-        ax.set_ylim(0, 1.18)
-    ax.set_title(f"predicted IR spectrum: {pred.smiles}  ({pred.method_name}, {pred.scale.describe()}, "
-                 f"{s.line_shape} FWHM {s.fwhm_cm1:g} cm$^{{-1}}$)", fontsize=9)
-    fig.text(0.01, 0.01, "Estimate only: confirm with reference standards and validated methods.",
-             fontsize=6.5, color="#7f7f7f")
+    if transmittance:
+        ax.set_ylabel("transmittance / %\n(strongest band drawn at 10 %)", fontsize=9)
+        ax.set_ylim(0, 105)
+    else:
+        ax.set_ylabel("absorbance (normalised)")
+        ax.set_ylim(0, 1.55)
+        ax.legend(loc="upper left", fontsize=7.5, frameon=False)
+    ax.set_title(f"predicted IR spectrum: {_short(pred.smiles, 40)}  ({pred.method_name})", fontsize=10)
+    fig.text(0.01, 0.01, f"scaling: {pred.scale.describe()}.  Estimate only: confirm with reference standards "
+             "and validated methods.", fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     write_with(path, fig.savefig)
     plt.close(fig)
+
+
+def _short(text: str, n: int) -> str:
+    return text if len(text) <= n else text[: n - 3] + "..."
 
 
 def write_spectrum_jcamp(pred: Prediction, path: str | Path) -> None:
@@ -216,8 +261,9 @@ def ranking_table(ranking, assessment=None) -> str:
     return "\n".join(lines)
 
 
-def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = "measured") -> None:
-    """Measured (top, black) and predicted curves on 4000 -> 400, matched peaks marked, residual below."""
+def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = "measured", name: str = "") -> None:
+    """Measured (top, black) and predicted curves on 4000 -> 400, matched peaks marked (legend),
+    the candidate's ``name`` and fitted shift in the legend, residual below."""
     import matplotlib
 
     matplotlib.use("Agg")
@@ -225,22 +271,26 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
 
     g, m, p = comp.grid_cm1, comp.measured_curve, comp.predicted_curve
     power = comp.settings.get("intensity_power", 1.0)
-    fig, (ax, axr) = plt.subplots(2, 1, figsize=(10, 5.6), dpi=120, sharex=True,
+    fig, (ax, axr) = plt.subplots(2, 1, figsize=(10, 5.8), dpi=120, sharex=True,
                                   gridspec_kw={"height_ratios": [3.2, 1]})
     ax.plot(g, m, color="black", lw=1.1, label=measured_label)
-    ax.plot(g, p, color="#c55a11", lw=1.1, label=f"predicted {comp.smiles}")
-    for row in comp.matches:  # peak heights are absorbances: drawn on the compared (powered) scale
-        if row.matched:
-            ax.plot([row.measured_cm1, row.predicted_cm1],
-                    [row.measured_height ** power + 0.04, row.predicted_height ** power + 0.04], color="#1f4e79", lw=0.8)
-            ax.plot(row.measured_cm1, row.measured_height ** power + 0.04, "v", color="#1f4e79", ms=3)
-        elif row.measured_cm1 is not None:
-            ax.plot(row.measured_cm1, row.measured_height ** power + 0.04, "x", color="#7f7f7f", ms=4)
-    ax.set_ylim(0, 1.15)
+    shift = f", shifted {comp.shift_cm1:+.1f} cm$^{{-1}}$" if comp.settings.get("fit_shift") else ""
+    ax.plot(g, p, color="#c55a11", lw=1.1, label=f"predicted {_short(name or comp.smiles, 40)}{shift}")
+    matched = [r for r in comp.matches if r.matched]
+    unmatched = [r for r in comp.matches if r.measured_cm1 is not None and not r.matched]
+    for row in matched:  # peak heights are absorbances: drawn on the compared (powered) scale
+        ax.plot([row.measured_cm1, row.predicted_cm1],
+                [row.measured_height ** power + 0.04, row.predicted_height ** power + 0.04], color="#1f4e79", lw=0.8)
+    if matched:
+        ax.plot([r.measured_cm1 for r in matched], [r.measured_height ** power + 0.04 for r in matched], "v",
+                color="#1f4e79", ms=3, ls="none", label="measured peak matched (line to its predicted peak)")
+    if unmatched:
+        ax.plot([r.measured_cm1 for r in unmatched], [r.measured_height ** power + 0.04 for r in unmatched], "x",
+                color="#7f7f7f", ms=4, ls="none", label="measured peak without a predicted one")
+    ax.set_ylim(0, 1.3)
     ax.set_ylabel("absorbance (normalised)" if power == 1.0 else f"(normalised absorbance)$^{{{power:g}}}$, as compared")
-    ax.legend(loc="upper left", fontsize=8, frameon=False)
-    ax.set_title(title or f"{comp.score_name} {comp.score:.3f}   (v: matched peak, x: unmatched measured peak)",
-                 fontsize=9)
+    ax.legend(loc="upper left", fontsize=7.5, frameon=False)
+    ax.set_title(title or f"{_short(name or comp.smiles, 40)}: {comp.score_name} score {comp.score:.3f}", fontsize=9.5)
     axr.plot(g, m - p, color="#404040", lw=0.8)
     axr.axhline(0, color="#999999", lw=0.6)
     axr.set_ylabel("residual")
@@ -296,7 +346,8 @@ def verdict_report(verdict) -> str:
              f"intended structure: {verdict.intended.name} ({verdict.intended.smiles})",
              f"verdict: {verdict.conclusion.upper()}"]
     lines += [f"  {r}" for r in verdict.reasons]
-    lines += [f"  {line}" for line in assessment_lines(verdict.assessment)]
+    if verdict.assessment.confidence is None and verdict.assessment.note:
+        lines.append(f"  (no calibrated confidence: {verdict.assessment.note})")
     lines.append("")
     lines.append(f"ranking ({len(verdict.decoys)} decoys: isomers and functional-group changes of the intended structure):")
     table = ranking_table(verdict.ranking).splitlines()

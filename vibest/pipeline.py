@@ -322,7 +322,7 @@ def predict_with(smiles: str, calc: CalculationOptions, spec: SpectrumOptions = 
     if progress is not None:
         progress("structure", 0, 1, smiles)
     molecule = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment,
-                              allow_large=calc.allow_long)
+                              allow_large=calc.allow_long, start_conformers=calc.start_conformers)
     check_cost(molecule, calc)
     record, _, notes = compute_record(molecule, calc, progress)
     t1 = time.perf_counter()

@@ -169,7 +169,7 @@ def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions,
     hit = record is not None
     if record is None:
         mol = build_molecule(smiles, seed=calc.seed, largest_fragment=calc.largest_fragment,
-                              allow_large=calc.allow_long)
+                              allow_large=calc.allow_long, start_conformers=calc.start_conformers)
         check_cost(mol, calc)
         record, _, _ = compute_record(mol, calc, progress)
         if store is not None:

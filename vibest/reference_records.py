@@ -19,8 +19,8 @@ REFERENCE_OPTIONS = CalculationOptions(workers=1)
 def reference_record(smiles: str, options: CalculationOptions = REFERENCE_OPTIONS) -> HessianRecord:
     """Record of the most stable conformer of ``smiles`` (see module docstring)."""
     from .calculation.record import structure_of_record
-    from .ensemble import EnsembleOptions, predict_ensemble, rotor_count
-    from .structure import build_molecule, parse_smiles
+    from .ensemble import EnsembleOptions, predict_ensemble
+    from .structure import build_molecule, parse_smiles, rotor_count
 
     if options.uses_dft:
         base = reference_record(smiles, REFERENCE_OPTIONS)

@@ -126,6 +126,16 @@ def _claim_alive(host: str, pid: int, created: float, my_host: str, now: float) 
     return True
 
 
+def _rigid(canonical: str) -> bool:
+    """Whether a molecule has no rotor (one start conformer whatever the setting)."""
+    from rdkit import Chem
+
+    from .structure import rotor_count
+
+    mol = Chem.MolFromSmiles(canonical)
+    return mol is None or rotor_count(mol) == 0
+
+
 def _checksum(blob: bytes) -> str:
     return hashlib.sha256(blob).hexdigest()
 
@@ -226,16 +236,20 @@ class RecordStore:
 
     # -- keys ------------------------------------------------------------------------------
     @staticmethod
-    def settings_of(options: CalculationOptions) -> dict:
+    def settings_of(options: CalculationOptions, canonical: str | None = None) -> dict:
         """Everything in the key besides the structure.
 
         The default Hessian displacements ("vibrational", 6N-12 gradients) give the numbers of
         the 6N Cartesian ones to finite-difference noise, so they are left out of the key: records
         stored before the option existed (all Cartesian) keep serving default requests, and a
-        store is not recomputed on upgrade. An explicit "cartesian" request has a key of its own."""
+        store is not recomputed on upgrade. An explicit "cartesian" request has a key of its own.
+        Likewise the search of start conformers is in the key only for flexible molecules
+        (``canonical`` SMILES with a rotor): a rigid one has one start either way."""
         opts = options.to_dict()
         if opts.get("hessian_displacements") == "vibrational":
             del opts["hessian_displacements"]
+        if not opts.get("start_conformers") or (canonical is not None and _rigid(canonical)):
+            opts.pop("start_conformers", None)
         return {"options": opts, "record_version": RECORD_VERSION, "calculation_version": CALCULATION_VERSION}
 
     def key(self, smiles: str, options: CalculationOptions) -> str:
@@ -245,7 +259,7 @@ class RecordStore:
     @classmethod
     def key_of(cls, canonical: str, inchikey: str, options: CalculationOptions) -> str:
         """Key from a canonical SMILES and InChIKey (see :func:`structure_identity`)."""
-        payload = json.dumps({"smiles": canonical, "inchikey": inchikey, **cls.settings_of(options)},
+        payload = json.dumps({"smiles": canonical, "inchikey": inchikey, **cls.settings_of(options, canonical)},
                              sort_keys=True, default=str)
         return hashlib.sha256(payload.encode()).hexdigest()
 
@@ -283,7 +297,7 @@ class RecordStore:
         with self._write(conn):
             conn.execute("INSERT OR REPLACE INTO records (key, inchikey, smiles, settings, created, record, natoms, "
                          "energy_hartree, vibest_version, checksum, name) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                         (key, inchikey, canonical, json.dumps(self.settings_of(options), sort_keys=True, default=str),
+                         (key, inchikey, canonical, json.dumps(self.settings_of(options, canonical), sort_keys=True, default=str),
                           time.time(), blob, record.natoms, record.energy_hartree, __version__, _checksum(blob),
                           name if name and name != smiles else ""))
             conn.execute("DELETE FROM failures WHERE key = ?", (key,))
@@ -302,7 +316,7 @@ class RecordStore:
         with self._write(conn):
             conn.execute("INSERT OR REPLACE INTO failures (key, inchikey, smiles, settings, created, reason) "
                          "VALUES (?, ?, ?, ?, ?, ?)",
-                         (key, inchikey, canonical, json.dumps(self.settings_of(options), sort_keys=True, default=str),
+                         (key, inchikey, canonical, json.dumps(self.settings_of(options, canonical), sort_keys=True, default=str),
                           time.time(), reason))
         return key
 

@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from rdkit import Chem, RDLogger
-from rdkit.Chem import AllChem, Descriptors, rdMolDescriptors
+from rdkit.Chem import AllChem, Descriptors, rdMolAlign, rdMolDescriptors
 
 from .errors import InputError
 
@@ -52,6 +52,9 @@ class Molecule:
     molblock: str = ""
     notes: tuple[str, ...] = field(default=())
     mass_numbers: tuple[int, ...] = ()
+    #: Further start geometries (N, 3), Angstrom: other low force-field conformers, lowest first
+    #: (the expensive stage optimises them too and keeps the lowest minimum).
+    alternatives: tuple[np.ndarray, ...] = ()
 
     @property
     def natoms(self) -> int:
@@ -78,7 +81,9 @@ class Molecule:
         return mol
 
     def with_positions(self, positions_angstrom: np.ndarray) -> "Molecule":
-        return dataclasses.replace(self, positions_angstrom=np.asarray(positions_angstrom, float).copy())
+        """The molecule at another geometry (without alternative start geometries)."""
+        return dataclasses.replace(self, positions_angstrom=np.asarray(positions_angstrom, float).copy(),
+                                   alternatives=())
 
 
 def isotope_mass(z: int, mass_number: int) -> float:
@@ -255,16 +260,85 @@ def check_size(mol_noh: Chem.Mol, allow_large: bool = False) -> int:
     return atoms
 
 
+def rotor_count(mol_noh: Chem.Mol) -> int:
+    """Rotatable bonds (RDKit's count) plus O-H, N-H and S-H rotors on terminal heteroatoms bonded
+    to an sp3 or sp2 atom: their orientation gives distinct conformers (e.g. trans/gauche ethanol)."""
+    n = rdMolDescriptors.CalcNumRotatableBonds(mol_noh)
+    for atom in mol_noh.GetAtoms():
+        if atom.GetAtomicNum() in (7, 8, 16) and atom.GetTotalNumHs() > 0 and atom.GetDegree() == 1:
+            nb = atom.GetNeighbors()[0]
+            if nb.GetDegree() >= 2 and not atom.GetIsAromatic():
+                n += 1
+    return n
+
+
+#: Start geometries of a flexible molecule: this many force-field conformers are embedded per
+#: rotor (plus START_BASE), at most START_MAX; the START_KEEP lowest distinct ones within
+#: START_WINDOW_KCAL of the lowest (MMFF94) go on to the expensive stage, which ranks them by a
+#: single-point energy of its own and optimises the best few (vibest.calculation.driver). A rigid
+#: molecule (no rotor) keeps its single embedding.
+START_BASE, START_PER_ROTOR, START_MAX, START_KEEP, START_WINDOW_KCAL = 10, 3, 30, 12, 5.0
+
+
 def build_molecule(smiles: str, seed: int = 0xB1B, largest_fragment: bool = False,
-                   prerelax: bool = True, allow_large: bool = False) -> Molecule:
-    """SMILES -> validated :class:`Molecule` with one force-field-relaxed 3D geometry; molecules
-    above :data:`MAX_ATOMS` atoms (with hydrogens) are refused unless ``allow_large``."""
+                   prerelax: bool = True, allow_large: bool = False, start_conformers: bool = True) -> Molecule:
+    """SMILES -> validated :class:`Molecule` with a force-field-relaxed 3D geometry; molecules
+    above :data:`MAX_ATOMS` atoms (with hydrogens) are refused unless ``allow_large``.
+
+    With ``start_conformers`` a flexible molecule gets several embeddings (seeded: the same input,
+    the same conformers), the lowest by MMFF94 as its geometry and the next distinct ones as
+    :attr:`Molecule.alternatives`: one embedding can land in a conformer kcal/mol above the
+    lowest (cyclohexanol: its C-O stretch then 90 cm^-1 off)."""
     mol_noh, notes = parse_smiles(smiles, largest_fragment=largest_fragment)
     check_size(mol_noh, allow_large)
-    mol = embed(mol_noh, seed=seed, prerelax=prerelax)
+    rotors = (rotor_count(mol_noh) + _puckering_rings(mol_noh)) if start_conformers else 0
+    count = 1 if rotors == 0 else min(START_BASE + START_PER_ROTOR * rotors, START_MAX)
+    mol = embed(mol_noh, seed=seed, prerelax=prerelax, num_conformers=count)
     if mol.GetNumAtoms() == 1:
         raise InputError(f"{smiles!r} is a single atom: it has no vibrations")
-    return molecule_from_conformer(mol_noh, mol, mol.GetConformer(0).GetId(), notes)
+    ids = [c.GetId() for c in mol.GetConformers()]
+    starts = _distinct_low_conformers(mol, ids, prerelax) if count > 1 else ids[:1]
+    molecule = molecule_from_conformer(mol_noh, mol, starts[0], notes)
+    if len(starts) > 1:
+        others = tuple(np.array(mol.GetConformer(c).GetPositions(), dtype=float) for c in starts[1:])
+        molecule = dataclasses.replace(molecule, alternatives=others, notes=molecule.notes + (
+            f"{count} force-field conformers embedded, {len(starts)} distinct within {START_WINDOW_KCAL:g} kcal/mol "
+            "(MMFF94) kept as start geometries",))
+    return molecule
+
+
+def _puckering_rings(mol_noh: Chem.Mol) -> int:
+    """Non-aromatic rings of 5 to 8 atoms: each can pucker (chair/boat, axial/equatorial), a
+    conformational freedom the rotor count misses."""
+    return sum(1 for ring in mol_noh.GetRingInfo().AtomRings()
+               if 5 <= len(ring) <= 8 and not all(mol_noh.GetAtomWithIdx(a).GetIsAromatic() for a in ring))
+
+
+def _distinct_low_conformers(mol: Chem.Mol, ids: list[int], prerelaxed: bool) -> list[int]:
+    """Up to START_KEEP conformer ids (lowest MMFF energy first, ``ids`` are in that order) within
+    START_WINDOW_KCAL of the lowest, none within 0.15 Angstrom RMSD (all atoms: OH rotamers differ
+    in one H) of one kept."""
+    energies = _force_field_energies(mol, ids) if prerelaxed else [0.0] * len(ids)
+    keep: list[int] = []
+    for cid, e in zip(ids, energies):
+        if e - energies[0] > START_WINDOW_KCAL:
+            break
+        if all(rdMolAlign.GetBestRMS(Chem.Mol(mol, confId=cid), Chem.Mol(mol, confId=k), maxMatches=200) > 0.15
+               for k in keep):
+            keep.append(cid)
+        if len(keep) == START_KEEP:
+            break
+    return keep or ids[:1]
+
+
+def _force_field_energies(mol: Chem.Mol, ids: list[int]) -> list[float]:
+    """MMFF94 energies (kcal/mol) of conformers ``ids`` (UFF where MMFF has no parameters, else zeros)."""
+    if AllChem.MMFFHasAllMoleculeParams(mol):
+        props = AllChem.MMFFGetMoleculeProperties(mol)
+        return [AllChem.MMFFGetMoleculeForceField(mol, props, confId=c).CalcEnergy() for c in ids]
+    if AllChem.UFFHasAllMoleculeParams(mol):
+        return [AllChem.UFFGetMoleculeForceField(mol, confId=c).CalcEnergy() for c in ids]
+    return [0.0] * len(ids)
 
 
 def molecule_from_conformer(mol_noh: Chem.Mol, mol_h: Chem.Mol, conf_id: int, notes=()) -> Molecule:

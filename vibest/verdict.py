@@ -117,7 +117,7 @@ def _conclude(intended: Candidate, ranking: Ranking, assessment: Assessment,
     mine = next(e for e in scored if e.candidate == intended)
     against = [e.message for e in evidence if e.against]
     conf = assessment.confidence
-    conf_text = f"confidence {conf:.2f}" if conf is not None else f"no calibrated confidence ({assessment.note})"
+    conf_text = f"confidence {conf:.2f}" if conf is not None else "no calibrated confidence"
     flags = [f.message for f in assessment.flags]
     if first.candidate == intended:
         head = (f"{intended.name} ranks first of {len(scored)} candidates (score {mine.score:.3f}, "

@@ -36,7 +36,7 @@ def run_task(job_id: int, smiles: str, options: CalculationOptions) -> TaskOutco
     options = dataclasses.replace(options, workers=1)  # parallel over molecules, not inside one
     try:
         mol = build_molecule(smiles, seed=options.seed, largest_fragment=options.largest_fragment,
-                             allow_large=options.allow_long)
+                             allow_large=options.allow_long, start_conformers=options.start_conformers)
         record, _, _ = compute_record(mol, options)
         return TaskOutcome(job_id, record, None, time.perf_counter() - t0)
     except VibestError as exc:

@@ -76,6 +76,9 @@ class CalculationOptions:
         intensity_engine: another level of theory for the dipole derivatives (density
             functional), or None for the engine's own.
         memory_mb: memory a density-functional calculation may use (MB).
+        allow_long: compute molecules above the size limit and DFT calculations estimated at hours.
+        start_conformers: for a flexible molecule, optimise the few lowest force-field conformers
+            (:func:`vibest.structure.build_molecule`) and keep the lowest minimum.
     """
 
     seed: int = DEFAULT_SEED
@@ -89,6 +92,7 @@ class CalculationOptions:
     intensity_engine: EngineSettings | None = None
     memory_mb: int = DEFAULT_DFT_MEMORY_MB
     allow_long: bool = False
+    start_conformers: bool = True
 
     def to_dict(self) -> dict:
         """What changes the numbers (the store key is made from it): no workers, memory or
@@ -319,15 +323,57 @@ def _record(molecule, options: CalculationOptions, x: np.ndarray, ev: Evaluation
     )
 
 
+#: Of a flexible molecule's start geometries, this many lowest by a single-point energy of the
+#: engine are optimised (the force field's order is a poorer guide: for cyclohexanol from the
+#: default seed, the 4 lowest by MMFF94 missed the lowest GFN2-xTB minimum by 1.2 kcal/mol).
+OPTIMISED_STARTS = 4
+
+
+def _lowest_start(engine: Engine, molecule, options: CalculationOptions, progress: Progress | None, timings: dict,
+                  notes: list[str]) -> np.ndarray:
+    """Positions (Bohr) to optimise from: with alternative start conformers, the
+    :data:`OPTIMISED_STARTS` lowest by a single point are optimised and the lowest minimum kept
+    (its optimisation then converges at once); else the molecule's own."""
+    starts = [molecule.positions_angstrom, *molecule.alternatives]
+    if len(starts) == 1:
+        return molecule.positions_angstrom / Bohr
+    if len(starts) > OPTIMISED_STARTS:
+        t = time.perf_counter()
+        energies = []
+        for pos in starts:
+            engine.restart_from(None)
+            energies.append(engine.evaluate(pos / Bohr).energy_hartree)
+        t = time.perf_counter() - t
+        _count_optimisation(timings, len(starts), t, t)
+        starts = [starts[k] for k in np.argsort(energies, kind="stable")[:OPTIMISED_STARTS]]
+    found = []
+    for k, pos in enumerate(starts):
+        _notify(progress, "start conformers", k, len(starts), f"optimising start conformer {k + 1} of {len(starts)}")
+        engine.restart_from(None)
+        opt = optimize(engine, molecule.numbers, pos / Bohr, options.optimizer)
+        _count_optimisation(timings, opt.gradient_calls, opt.seconds, opt.gradient_seconds)
+        found.append((opt.energy_hartree, k, opt.positions_bohr))
+    found.sort(key=lambda f: (f[0], f[1]))
+    from ase.units import Hartree, kcal, mol
+
+    others = ", ".join(f"+{(e - found[0][0]) * Hartree / (kcal / mol):.1f}" for e, _, _ in found[1:])
+    notes.append(f"{len(starts)} start conformers optimised with {engine.settings.method} (the lowest by a single "
+                 f"point of {len(molecule.alternatives) + 1}): the lowest minimum kept, the others {others} kcal/mol above")
+    timings["start_conformers"] = len(starts)
+    engine.restart_from(None)
+    return found[0][2]
+
+
 def _tight_binding_record(molecule, options: CalculationOptions, progress: Progress | None):
     notes: list[str] = []
     x = molecule.positions_angstrom / Bohr
     engine = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, options.engine)
+    timings = _new_timings(options.workers or default_workers())
+    x = _lowest_start(engine, molecule, options, progress, timings, notes)
     t = time.perf_counter()
     first = engine.evaluate(x)
     t = time.perf_counter() - t
     # the first gradient, made here to decide on the pool, is the optimisation's first
-    timings = _new_timings(options.workers or default_workers())
     _count_optimisation(timings, 1, t, t)
     step = _finite_difference_step(engine, molecule, options, progress, t)
     x, ev, hessian, dmu, converged = _minimum_and_hessian(engine, molecule.numbers, x, options, step, progress,
@@ -342,7 +388,7 @@ def _dft_resources(options: CalculationOptions):
 
 
 def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Progress | None,
-                           timings: dict) -> tuple[np.ndarray, np.ndarray]:
+                           timings: dict, notes: list[str]) -> tuple[np.ndarray, np.ndarray]:
     """The GFN2-xTB minimum (Bohr) a density-functional optimisation starts from, and the GFN2-xTB
     Hessian there (Eh/Bohr^2), the optimisation's start curvature: on acetone, 2-butanone, methyl
     acetate, phenol and 1-butanol it took 30-40 % fewer gradients than Lindh's model (GFN2-xTB
@@ -351,6 +397,7 @@ def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Prog
     x = molecule.positions_angstrom / Bohr
     start = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, EngineSettings())
     _notify(progress, "pre-optimisation", 0, 1, "GFN2-xTB")
+    x = _lowest_start(start, molecule, options, progress, timings, notes)
     opt = optimize(start, molecule.numbers, x, options.optimizer)
     ev = opt.final_evaluation or start.evaluate(opt.positions_bohr)
     hes = finite_difference_hessian(start, molecule.numbers, opt.positions_bohr, molecule.charge, molecule.uhf,
@@ -364,7 +411,7 @@ def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Prog
 def _dft_record(molecule, options: CalculationOptions, progress: Progress | None):
     notes: list[str] = []
     timings = _new_timings(options.workers or default_workers())
-    x, start_hessian = _tight_binding_minimum(molecule, options, progress, timings)
+    x, start_hessian = _tight_binding_minimum(molecule, options, progress, timings, notes)
     engine = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, options.engine, _dft_resources(options))
     timings["basis_functions"] = engine.basis_functions
     x, ev, hessian, dmu, converged = _minimum_and_hessian(engine, molecule.numbers, x, options,
