@@ -221,3 +221,15 @@ def test_cli_batch_bad_input_is_one_line(tmp_path):
 def test_run_task_never_raises_for_a_bad_molecule():
     out = run_task(3, "C1CC", CalculationOptions())
     assert out.job_id == 3 and out.record is None and "parse" in out.reason
+
+
+def test_key_bands_lie_in_the_spectrum_range():
+    """Ethanol's strongest GFN2-xTB band is its O-H torsion near 300 cm^-1 (below the 400 cm^-1 an
+    IR spectrometer usually starts at): the batch table lists bands of the spectrum range."""
+    from vibest.batch.run import key_bands
+
+    from .conftest import prediction_of
+
+    pred = prediction_of("CCO")
+    assert min(b.wavenumber_cm1 for b in pred.strongest(1)) < 400  # the case the rule is for
+    assert all(k.wavenumber_cm1 >= 400 for k in key_bands(pred))

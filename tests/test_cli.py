@@ -1,5 +1,6 @@
 """Command line: clear one-line errors with exit code 2, outputs written on request."""
 
+import csv
 import json
 import subprocess
 import sys
@@ -153,3 +154,20 @@ def test_files_are_replaced_whole(tmp_path, monkeypatch):
         atomic_write_text(target, "new" * 1000)
     assert target.read_text() == "old and complete"
     assert [p.name for p in tmp_path.iterdir()] == ["result.json"]  # no temporary file left behind
+
+
+def test_isotopologues_go_to_csv_and_json_and_atoms_are_numbered(tmp_path):
+    """Ethanol-OD: the O-H stretch moves down by a factor near 0.73 (harmonic O-H/O-D reduced-mass
+    ratio, 0.728, common practice); the rows reach the CSV and the JSON, and the table numbers the
+    atoms that 13C@N refers to."""
+    res = run("predict", "CCO", "-q", "--no-store", "--isotope", "D", "--isotopes-csv", str(tmp_path / "i.csv"),
+              "--json", str(tmp_path / "i.json"), "--thermo")
+    assert res.exit_code == 0, res.output
+    assert "# atoms: 1 C, 2 C, 3 O" in res.output
+    assert "compare them only between structures" in res.output
+    rows = list(csv.DictReader((tmp_path / "i.csv").read_text().splitlines()))
+    oh = max(rows, key=lambda r: float(r["parent_cm1"]))
+    assert 0.70 < float(oh["isotopologue_cm1"]) / float(oh["parent_cm1"]) < 0.76
+    data = json.loads((tmp_path / "i.json").read_text())
+    assert data["isotopologues"][0]["isotopologue"] == "D" and len(data["isotopologues"][0]["shifts"]) == len(rows)
+    assert run("predict", "CCO", "-q", "--isotopes-csv", str(tmp_path / "x.csv")).exit_code == 2

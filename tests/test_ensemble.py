@@ -88,5 +88,15 @@ def test_acetone_carbonyl_shifts_down_in_water():
 
 
 def test_unknown_solvent_is_refused():
-    with pytest.raises(InputError, match="unknown solvent"):
+    with pytest.raises(InputError, match="no implicit-solvent model for 'mud'"):
         predict("O", solvent="mud")
+
+
+def test_common_solvent_names_are_accepted_and_named():
+    """Chloroform is tblite's chcl3 (ALPB solvent list of Ehlert et al., JCTC 17, 4250 (2021))."""
+    from vibest.calculation.driver import calculation_options
+
+    assert calculation_options(solvent="Chloroform").engine.solvent == "chcl3"
+    assert calculation_options(solvent="tetrahydrofuran").engine.solvent == "thf"
+    pred = predict("O", solvent="dichloromethane", workers=1)
+    assert pred.medium == "in ch2cl2 (ALPB)"

@@ -308,7 +308,9 @@ def main() -> None:
 @spectrum_options
 @click.option("--min-intensity", type=float, default=0.0, help="Hide bands weaker than this (km/mol) in the table.")
 @click.option("--isotope", "isotopes", multiple=True, metavar="SPEC",
-              help="Also show band shifts of an isotopologue: D (exchangeable H), D-all, 13C@3, 18O ... (repeatable).")
+              help="Also show band shifts of an isotopologue: D (exchangeable H), D-all, 13C@3, 18O ... (repeatable; "
+                   "atom numbers as the table's '# atoms' line gives them).")
+@click.option("--isotopes-csv", metavar="FILE", help="Write the isotopologue band shifts as CSV.")
 @click.option("--thermo", is_flag=True, help="Print ZPE, enthalpy, entropy and Gibbs energy.")
 @click.option("--temperature", type=float, default=298.15, show_default=True, help="Temperature for --thermo, K.")
 @click.option("--pressure", type=float, default=101325.0, show_default=True, help="Pressure for --thermo, Pa.")
@@ -327,18 +329,21 @@ def main() -> None:
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
                     range_cm1, calc_values, scale_factor, scale_model, fwhm,
-                    line_shape, min_intensity, isotopes, thermo, temperature, pressure, quasi_harmonic,
+                    line_shape, min_intensity, isotopes, isotopes_csv, thermo, temperature, pressure, quasi_harmonic,
                     symmetry_number, conformers, max_conformers, energy_window, weighting, store_path, no_store,
                     verbose, quiet) -> None:
     """Predict the IR spectrum of SMILES and print its bands."""
     from . import output
+    from .files import write_table
     from .pipeline import isotopologue, prediction_thermochemistry
     from .ranking import predict_stored
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--csv": csv_path, "--jcamp": jcamp_path, "--bands-csv": bands_csv, "--json": json_path,
-                        "--record": record_path, "--plot": plot_path})
+                        "--record": record_path, "--plot": plot_path, "--isotopes-csv": isotopes_csv})
+        if isotopes_csv and not isotopes:
+            raise InputError("--isotopes-csv needs at least one --isotope")
         _check_analysis_options(isotopes, temperature, pressure)
         if conformers:
             _predict_ensemble(smiles, progress, temperature=temperature, csv_path=csv_path, jcamp_path=jcamp_path,
@@ -352,16 +357,24 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                                  _store(store_path, no_store), progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
+        iso_rows, iso_json = [], []
+        if isotopes or verbose:
+            click.echo(output.atom_numbers(pred.record))
         for spec in isotopes:
             _, shifts = isotopologue(pred, spec)
             click.echo(output.isotope_table(spec, shifts))
+            iso_rows += output.isotope_rows(spec, shifts)
+            iso_json.append({"isotopologue": spec, "shifts": [s.to_dict() for s in shifts]})
         if thermo:
             click.echo(output.thermo_summary(prediction_thermochemistry(
                 pred, temperature, pressure, symmetry_number, quasi_harmonic)))
         _write_all([("--csv", csv_path, lambda: output.write_spectrum_csv(pred, csv_path)),
                     ("--jcamp", jcamp_path, lambda: output.write_spectrum_jcamp(pred, jcamp_path)),
                     ("--bands-csv", bands_csv, lambda: output.write_bands_csv(pred, bands_csv)),
-                    ("--json", json_path, lambda: output.write_json(pred, json_path)),
+                    ("--json", json_path, lambda: output.write_json(pred, json_path,
+                                                                    extra={"isotopologues": iso_json} if iso_json else None)),
+                    ("--isotopes-csv", isotopes_csv, lambda: write_table(isotopes_csv, output.ISOTOPE_HEADER, iso_rows, {
+                        "what": "vibest isotopologue band shifts", "smiles": pred.smiles, "caution": output.CAUTION})),
                     ("--record", record_path, lambda: pred.record.save(record_path)),
                     ("--plot", plot_path, lambda: output.plot_prediction(pred, plot_path, transmittance=transmittance))])
 
@@ -409,9 +422,10 @@ def methods_command() -> None:
 @main.command("solvents")
 def solvents_command() -> None:
     """List the implicit solvents (--solvent) and models (--solvent-model)."""
-    from .calculation.engine import SOLVENT_MODELS, SOLVENTS
+    from .calculation.engine import SOLVENT_MODELS, SOLVENT_NAMES, SOLVENTS
 
     click.echo("solvents: " + ", ".join(SOLVENTS))
+    click.echo("also by name: " + ", ".join(f"{name} ({key})" for name, key in sorted(SOLVENT_NAMES.items())))
     click.echo("models: " + ", ".join(SOLVENT_MODELS) + " (default alpb)")
 
 

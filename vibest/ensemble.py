@@ -96,6 +96,14 @@ class EnsemblePrediction:
     def scale(self):
         return self.members[0].prediction.scale
 
+    @property
+    def method_name(self) -> str:
+        return f"{self.members[0].prediction.method_name}, {len(self.members)}-conformer ensemble"
+
+    @property
+    def medium(self) -> str:
+        return self.members[0].prediction.medium
+
     def strongest(self, count: int = 5):
         """The strongest bands after weighting (band intensities times their conformer's weight)."""
         weighted = [(m.weight * b.intensity_km_mol, b) for m in self.members for b in m.prediction.bands]

@@ -23,7 +23,8 @@ def region_of(wavenumber_cm1: float) -> str:
 
 def bands_table(pred: Prediction, min_intensity_km_mol: float = 0.0, verbose: bool = False) -> str:
     """A plain-text table of the bands, highest wavenumber first (as spectra are read)."""
-    lines = [f"# {pred.smiles}   charge {pred.record.charge}   unpaired electrons {pred.record.uhf}",
+    lines = [f"# {pred.smiles}   charge {pred.record.charge}   unpaired electrons {pred.record.uhf}   "
+             f"{pred.method_name}, {pred.medium}",
              f"# scaling: {pred.scale.describe()}; "
              f"optimisation {'converged' if pred.converged else 'NOT converged'}"]
     for note in pred.notes:
@@ -75,8 +76,8 @@ def write_bands_csv(pred: Prediction, path: str | Path) -> None:
                 prediction_metadata(pred, "vibest predicted IR bands"))
 
 
-def write_json(pred: Prediction, path: str | Path) -> None:
-    atomic_write_text(path, json.dumps(pred.to_dict(), indent=1))
+def write_json(pred: Prediction, path: str | Path, extra: dict | None = None) -> None:
+    atomic_write_text(path, json.dumps(pred.to_dict() | (extra or {}), indent=1))
 
 
 def place_labels(positions, heights, widths, x_span: float, levels: int = 6, step: float = 0.075,
@@ -154,7 +155,7 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
         ax.set_ylabel("absorbance (normalised)")
         ax.set_ylim(0, 1.55)
         ax.legend(loc="upper left", fontsize=7.5, frameon=False)
-    ax.set_title(f"predicted IR spectrum: {_short(pred.smiles, 40)}  ({pred.method_name})", fontsize=10)
+    ax.set_title(f"predicted IR spectrum: {_short(pred.smiles, 40)}  ({pred.method_name}, {pred.medium})", fontsize=10)
     fig.text(0.01, 0.01, f"scaling: {pred.scale.describe()}.  Estimate only: confirm with reference standards "
              "and validated methods.", fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
@@ -303,6 +304,13 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
     plt.close(fig)
 
 
+def atom_numbers(record) -> str:
+    """The atoms with the numbers that isotope specifications (13C@3) and composition labels use."""
+    from ase.data import chemical_symbols
+
+    return "# atoms: " + ", ".join(f"{k + 1} {chemical_symbols[int(z)]}" for k, z in enumerate(record.numbers))
+
+
 def isotope_table(spec: str, shifts) -> str:
     lines = [f"# isotopologue {spec}: band shifts from the same Hessian (no new gradients)",
              f"{'mode':>4}  {'parent':>8}  {'isotop.':>8}  {'shift':>7}  {'km/mol':>8} -> {'km/mol':>8}"]
@@ -312,14 +320,27 @@ def isotope_table(spec: str, shifts) -> str:
     return "\n".join(lines)
 
 
+def isotope_rows(spec: str, shifts) -> list[list]:
+    return [[spec, s.parent_index, f"{s.parent_cm1:.2f}", f"{s.isotopologue_cm1:.2f}", f"{s.shift_cm1:.2f}",
+             f"{s.parent_intensity_km_mol:.4f}", f"{s.isotopologue_intensity_km_mol:.4f}"] for s in shifts]
+
+
+ISOTOPE_HEADER = ["isotopologue", "mode", "parent_cm1", "isotopologue_cm1", "shift_cm1", "parent_intensity_km_mol",
+                  "isotopologue_intensity_km_mol"]
+
+
 def thermo_summary(t) -> str:
     lines = [f"# thermochemistry at {t.temperature_K:g} K, {t.pressure_Pa:g} Pa (ideal gas, rigid rotor, "
              f"{'quasi-RRHO entropy (Grimme 2012)' if t.quasi_harmonic else 'harmonic oscillator'}), "
              f"symmetry number {t.symmetry_number}",
              f"zero-point energy  {t.zero_point_energy_kj_mol:12.3f} kJ/mol",
-             f"enthalpy H         {t.enthalpy_kj_mol:12.3f} kJ/mol (incl. electronic energy and ZPE)",
+             f"H - E(electronic)  {t.enthalpy_kj_mol - t.electronic_energy_kj_mol:12.3f} kJ/mol (thermal enthalpy, ZPE included)",
+             f"G - E(electronic)  {t.gibbs_energy_kj_mol - t.electronic_energy_kj_mol:12.3f} kJ/mol",
              f"entropy S          {t.entropy_j_mol_k:12.3f} J/(mol K)",
-             f"Gibbs energy G     {t.gibbs_energy_kj_mol:12.3f} kJ/mol"]
+             f"enthalpy H         {t.enthalpy_kj_mol:12.3f} kJ/mol (with the electronic energy)",
+             f"Gibbs energy G     {t.gibbs_energy_kj_mol:12.3f} kJ/mol (with the electronic energy)",
+             "# absolute H and G carry the method's electronic energy: compare them only between structures "
+             "computed the same way (conformers, isomers), as differences"]
     if t.skipped_imaginary_cm1:
         lines.append(f"# left out imaginary modes: {', '.join(f'{v:.0f}' for v in t.skipped_imaginary_cm1)} cm-1")
     return "\n".join(lines)

@@ -140,6 +140,13 @@ class Prediction:
         return self.record.smiles
 
     @property
+    def medium(self) -> str:
+        """"gas phase", or the implicit solvent and its model (e.g. "in chcl3 (ALPB)")."""
+        engine = self.record.settings.get("engine", {})
+        solvent = engine.get("solvent")
+        return f"in {solvent} ({str(engine.get('solvent_model', 'alpb')).upper()})" if solvent else "gas phase"
+
+    @property
     def method_name(self) -> str:
         """The level of theory in words (e.g. "GFN2-xTB", or "GFN2-xTB positions, B3LYP-...
         intensities")."""

@@ -103,10 +103,12 @@ def _safe_name(text: str) -> str:
 
 
 def key_bands(pred, count: int = 3, degenerate_cm1: float = 1.0) -> tuple[KeyBand, ...]:
-    """The ``count`` strongest bands of a prediction; degenerate modes (same label, within
+    """The ``count`` strongest bands of a prediction inside its spectrum's range (far-IR torsions
+    below it are not what an IR spectrometer shows); degenerate modes (same label, within
     ``degenerate_cm1``) count as one band with their intensities summed."""
+    lo, hi = pred.spectrum.wavenumbers_cm1[0], pred.spectrum.wavenumbers_cm1[-1]
     merged: list[list] = []
-    for b in sorted(pred.bands, key=lambda b: b.wavenumber_cm1):
+    for b in sorted((b for b in pred.bands if lo <= b.wavenumber_cm1 <= hi), key=lambda b: b.wavenumber_cm1):
         label = b.label or b.character
         if merged and merged[-1][2] == label and b.wavenumber_cm1 - merged[-1][0] <= degenerate_cm1:
             merged[-1][1] += b.intensity_km_mol

@@ -22,7 +22,7 @@ from ase.units import Bohr
 
 from ..analysis.harmonic import harmonic_analysis
 from ..errors import InputError
-from .engine import Engine, EngineSettings, Evaluation, calculation_threads, make_engine
+from .engine import Engine, EngineSettings, Evaluation, calculation_threads, make_engine, solvent_keyword
 from .hessian import default_workers, finite_difference_hessian
 from .methods import DEFAULT_METHOD, parse_level
 from .optimizer import OptimizerSettings, optimize
@@ -145,8 +145,7 @@ def calculation_options(method: str = DEFAULT_METHOD, *, seed: int = DEFAULT_SEE
     for name, value in (("backend", backend), ("solvent_model", solvent_model)):
         if not isinstance(value, str):
             raise InputError(f"{name} must be a name, not {value!r}")
-    if solvent is not None and not isinstance(solvent, str):
-        raise InputError(f"solvent must be a name or None, not {solvent!r}")
+    solvent = solvent_keyword(solvent)  # common names (chloroform) accepted beside the keywords (chcl3)
     engine = EngineSettings.for_method(level.positions, backend, solvent, solvent_model)
     engine.validate()
     intensities = EngineSettings.for_method(level.intensities) if level.intensities else None

@@ -25,6 +25,28 @@ SOLVENTS = ("acetone", "acetonitrile", "aniline", "benzaldehyde", "benzene", "ch
             "dmf", "dmso", "ether", "ethylacetate", "furane", "hexadecane", "hexane", "methanol", "nitromethane",
             "octanol", "woctanol", "phenol", "toluene", "thf", "water")
 SOLVENT_MODELS = ("alpb", "cpcm")
+#: Common names of the solvents above (lower case) -> the engine's keyword.
+SOLVENT_NAMES = {"dichloromethane": "ch2cl2", "methylene chloride": "ch2cl2", "chloroform": "chcl3",
+                 "trichloromethane": "chcl3", "carbon disulfide": "cs2", "1,4-dioxane": "dioxane",
+                 "dimethylformamide": "dmf", "n,n-dimethylformamide": "dmf", "dimethyl sulfoxide": "dmso",
+                 "dimethylsulfoxide": "dmso", "diethyl ether": "ether", "ethyl acetate": "ethylacetate",
+                 "furan": "furane", "tetrahydrofuran": "thf", "1-octanol": "octanol", "n-octanol": "octanol",
+                 "wet octanol": "woctanol", "n-hexane": "hexane", "n-hexadecane": "hexadecane", "h2o": "water"}
+
+
+def solvent_keyword(name: str | None) -> str | None:
+    """The engine's keyword for a solvent given by keyword or common name (any case), None for
+    gas phase; InputError for a solvent without a parametrised model."""
+    if name is None:
+        return None
+    if not isinstance(name, str):
+        raise InputError(f"solvent must be a name or None, not {name!r}")
+    key = name.strip().lower()
+    key = SOLVENT_NAMES.get(key, key)
+    if key not in SOLVENTS:
+        raise InputError(f"no implicit-solvent model for {name!r}; vibest knows {', '.join(SOLVENTS)} "
+                         f"(and common names such as chloroform, dichloromethane, tetrahydrofuran: vibest solvents)")
+    return key
 
 
 @dataclass(frozen=True)
@@ -73,6 +95,8 @@ class EngineSettings:
         return self.dft is not None
 
     def validate(self) -> None:
+        if self.solvent is not None and solvent_keyword(self.solvent) != self.solvent:
+            raise InputError(f"solvent {self.solvent!r}: give the engine's keyword {solvent_keyword(self.solvent)!r}")
         if self.backend not in BACKENDS:
             raise InputError(f"unknown backend {self.backend!r}; choose one of {', '.join(BACKENDS)}")
         if self.is_dft and self.solvent:
