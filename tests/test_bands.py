@@ -53,10 +53,25 @@ def test_primary_amine_nh_stretches_symmetric_and_antisymmetric():
                                      "N-H stretch (primary amine, antisymmetric)"]
 
 
-def test_compositions_sum_to_100_percent():
-    pred = prediction_of("CCOC(C)=O")
-    np.testing.assert_allclose(pred.composition.shares.sum(1), 1.0, atol=1e-12)
-    assert all(c.percent >= 1.0 for row in pred.composition.contributions for c in row)
+def test_composition_does_not_depend_on_the_molecule_s_orientation():
+    """A potential-energy distribution over internal coordinates is the same for a rotated copy
+    of the molecule (rotating the geometry and the Hessian together); a composition that mixed in
+    Cartesian components would change. (Internal coordinates: common practice, no source.)"""
+    from scipy.spatial.transform import Rotation
+
+    from vibest.analysis.composition import mode_composition
+    from vibest.analysis.harmonic import harmonic_analysis
+
+    rec = record_of("CCOC(C)=O")
+    r = Rotation.from_euler("xyz", [0.7, -1.1, 2.3]).as_matrix()
+    n = rec.natoms
+    big = np.kron(np.eye(n), r)
+    pos = rec.positions_angstrom @ r.T
+    hess = big @ rec.hessian_hartree_bohr2 @ big.T
+    a = mode_composition(rec.numbers, rec.positions_angstrom, rec.bonds, rec.hessian_hartree_bohr2,
+                         harmonic_analysis(rec.numbers, rec.positions_angstrom, rec.hessian_hartree_bohr2).displacements)
+    b = mode_composition(rec.numbers, pos, rec.bonds, hess, harmonic_analysis(rec.numbers, pos, hess).displacements)
+    np.testing.assert_allclose(a.shares, b.shares, atol=1e-6)
 
 
 def test_diatomic_mode_is_its_bond_stretch():
@@ -64,9 +79,8 @@ def test_diatomic_mode_is_its_bond_stretch():
     comp = prediction_of("Cl").composition
     assert len(comp.contributions[0]) == 1
     c = comp.contributions[0][0]
-    assert c.label == "Cl1-H2 stretch" or c.label.endswith("stretch")
-    assert c.percent == pytest.approx(100.0)
-    assert comp.primitives[0].atoms == (0, 1) and rec.natoms == 2
+    assert c.kind == "stretch" and c.percent == pytest.approx(100.0)
+    assert comp.primitives[0].atoms == (0, 1) and sorted(rec.numbers.tolist()) == [1, 17]
 
 
 def test_hcl_to_dcl_ratio_follows_reduced_mass():
@@ -77,23 +91,23 @@ def test_hcl_to_dcl_ratio_follows_reduced_mass():
     m_h, m_d = atomic_masses[1], 2.0141017781
     expected = np.sqrt((m_d * m_cl / (m_d + m_cl)) / (m_h * m_cl / (m_h + m_cl)))
     assert shifts[0].parent_cm1 / shifts[0].isotopologue_cm1 == pytest.approx(expected, rel=1e-6)
-    assert expected == pytest.approx(1.39, abs=0.01)
 
 
 def test_13c_carbon_monoxide_shift_follows_reduced_mass():
     """12C16O -> 13C16O: ratio sqrt(mu13/mu12) for a diatomic (common practice, no source)."""
     parent = prediction_of("[C-]#[O+]")
     iso, shifts = isotopologue(parent, "13C@1")
-    m12, m13, m16 = 12.0, 13.0033548, 15.9949146
+    m13 = 13.0033548
     mass_o = atomic_masses[8]
     mu = lambda a, b: a * b / (a + b)  # noqa: E731
     expected = np.sqrt(mu(m13, mass_o) / mu(atomic_masses[6], mass_o))
     assert shifts[0].parent_cm1 / shifts[0].isotopologue_cm1 == pytest.approx(expected, rel=1e-6)
     assert 40 < -shifts[0].shift_cm1 < 55  # ~ -48 cm^-1 at 2143 cm^-1
-    assert m12 < m13 < m16
 
 
 def test_exchangeable_deuteration_moves_oh_not_ch():
+    """O-D stretches lie ~900-1000 cm^-1 below O-H ones (ratio ~0.73), C-H stretches do not move
+    when only the O-H hydrogen is exchanged (common practice, no source)."""
     iso, shifts = isotopologue(prediction_of("CCO"), "D")
     by_label = {b.index: b for b in prediction_of("CCO").bands}
     oh = [s for s in shifts if by_label[s.parent_index].label.startswith("O-H stretch")]
@@ -147,6 +161,8 @@ def test_water_standard_entropy():
 
 
 def test_quasi_harmonic_lowers_entropy_of_soft_modes():
+    """Grimme's quasi-RRHO (Chem. Eur. J. 18, 9955 (2012)) replaces the diverging harmonic entropy
+    of soft modes by a free-rotor one, which is smaller, and leaves the enthalpy alone."""
     pred = prediction_of("CCCC")
     rrho = prediction_thermochemistry(pred)
     qh = prediction_thermochemistry(pred, quasi_harmonic=True)
@@ -176,6 +192,7 @@ def test_carboxylate_stretches_are_named_as_a_pair():
 
 
 def test_labels_and_characters_use_the_trades_notation():
+    # the trade writes triple bonds with the triple-bar sign, not SMILES's '#' (common practice)
     for smiles in ("C#CC", "CC#N", "c1ccccc1"):
         for b in prediction_of(smiles).bands:
             assert "#" not in b.label and "#" not in b.character and ":" not in b.character, (smiles, b)

@@ -23,6 +23,7 @@ def lorentz(x, c, w=16.0):
 
 @pytest.mark.parametrize("name", SCORES)
 def test_identical_spectra_score_one(name):
+    # every score is 1 for identical curves by its definition (module docstring of vibest.comparison)
     x = grid(500, 3800, 2)
     a = lorentz(x, 1700) + 0.5 * lorentz(x, 2950)
     assert score(a, a, name, x) == pytest.approx(1.0)
@@ -63,6 +64,7 @@ def _synthetic_measured(pred, factor, shift=0.0):
 
 
 def test_scale_fit_recovers_known_factor():
+    # constructed case: the measured curve is the prediction scaled by 0.975, which the fit must find
     pred = prediction_of("CC(C)=O")
     comp = compare(pred, _synthetic_measured(pred, 0.975), fit_scale=True, fit_shift=False)
     assert comp.extra_scale == pytest.approx(0.975, abs=5e-4)
@@ -94,12 +96,14 @@ def test_translated_curve_equals_the_curve_of_shifted_bands():
 
 
 def test_shift_fit_recovers_known_shift():
+    # constructed case: the measured curve is the prediction shifted by -12 cm^-1
     pred = prediction_of("CC(C)=O")
     comp = compare(pred, _synthetic_measured(pred, 1.0, shift=-12.0), fit_shift=True)
     assert comp.shift_cm1 == pytest.approx(-12.0, abs=0.3)
 
 
 def test_peak_matching_is_one_to_one_within_tolerance():
+    # constructed peaks; the expected pairs are the minimum-total-shift assignment (Hungarian method)
     m = [Peak(1715, 1.0), Peak(1365, 0.4), Peak(1220, 0.5), Peak(800, 0.1)]
     p = [Peak(1730, 1.0), Peak(1380, 0.3), Peak(1200, 0.6), Peak(2250, 0.2)]
     pairs = match_peaks(m, p, tolerance_cm1=40)
@@ -109,6 +113,7 @@ def test_peak_matching_is_one_to_one_within_tolerance():
 
 
 def test_peak_table_names_the_carbonyl():
+    # acetone's strongest band is its C=O stretch (common practice, no source)
     pred = prediction_of("CC(C)=O")
     comp = compare(pred, _synthetic_measured(pred, 1.0))
     strongest = max((r for r in comp.matches if r.matched), key=lambda r: r.measured_height)

@@ -24,6 +24,7 @@ def test_boltzmann_weights_sum_to_one_and_follow_exp():
 
 
 def test_rigid_molecule_ensemble_equals_single_conformer_path():
+    # benzene has one conformer (common practice): the ensemble must reduce to the plain path
     ens = predict_ensemble("c1ccccc1", calc=SERIAL)
     single = prediction_of("c1ccccc1")
     assert len(ens.members) == 1 and ens.members[0].weight == 1.0
@@ -64,12 +65,14 @@ def test_dichloroethane_anti_below_gauche_and_spectrum_changes():
 
 
 def test_ethanol_has_more_than_one_conformer():
+    # ethanol has trans and gauche rotamers of its O-H (common practice; both seen in microwave spectra)
     ens = predict_ensemble("CCO", calc=SERIAL)
     assert len(ens.members) >= 2
     assert all(m.gradient_calls > 0 and m.seconds > 0 for m in ens.members)
 
 
 def test_free_energy_weighting_and_bad_options():
+    # Boltzmann weights sum to one by definition; 1,2-dichloroethane has anti and gauche forms
     ens = predict_ensemble("ClCCCl", calc=SERIAL, ens=EnsembleOptions(weighting="free-energy"))
     assert ens.weighting == "free-energy" and sum(m.weight for m in ens.members) == pytest.approx(1.0)
     with pytest.raises(InputError):
