@@ -58,6 +58,8 @@ def test_regional_score_lets_the_fingerprint_count_against_strong_stretches():
 
 
 def _synthetic_measured(pred, factor, shift=0.0):
+    """A constructed 'measured' curve: the prediction itself, scaled and shifted (compared with
+    condensed_shifts=False: it is the predicted curve, not a condensed sample)."""
     x = grid(450, 3900, 1)
     y = predicted_curve(pred, x, extra_scale=factor, shift_cm1=shift)
     return MeasuredSpectrum(x, y, ABSORBANCE, "synthetic")
@@ -66,22 +68,22 @@ def _synthetic_measured(pred, factor, shift=0.0):
 def test_scale_fit_recovers_known_factor():
     # constructed case: the measured curve is the prediction scaled by 0.975, which the fit must find
     pred = prediction_of("CC(C)=O")
-    comp = compare(pred, _synthetic_measured(pred, 0.975), fit_scale=True, fit_shift=False)
+    comp = compare(pred, _synthetic_measured(pred, 0.975), fit_scale=True, fit_shift=False, condensed_shifts=False)
     assert comp.extra_scale == pytest.approx(0.975, abs=5e-4)
     assert comp.score == pytest.approx(1.0, abs=1e-3)
-    plain = compare(pred, _synthetic_measured(pred, 0.975), fit_shift=False)
+    plain = compare(pred, _synthetic_measured(pred, 0.975), fit_shift=False, condensed_shifts=False)
     assert plain.score < comp.score
 
 
 def test_default_comparison_fits_a_bounded_shift_and_no_shift_when_asked():
     pred = prediction_of("CC(C)=O")
     measured = _synthetic_measured(pred, 1.0, shift=14.0)
-    comp = compare(pred, measured)
+    comp = compare(pred, measured, condensed_shifts=False)
     assert comp.settings["fit_shift"] and comp.shift_cm1 == pytest.approx(14.0, abs=0.3)
     assert comp.score == pytest.approx(1.0, abs=1e-3)
     # beyond the default bound of 20 cm^-1 the fit stops at the bound
-    assert compare(pred, _synthetic_measured(pred, 1.0, shift=-35.0)).shift_cm1 == pytest.approx(-20.0, abs=0.5)
-    plain = compare(pred, measured, fit_shift=False)
+    assert compare(pred, _synthetic_measured(pred, 1.0, shift=-35.0), condensed_shifts=False).shift_cm1 == pytest.approx(-20.0, abs=0.5)
+    plain = compare(pred, measured, fit_shift=False, condensed_shifts=False)
     assert plain.shift_cm1 == 0.0 and plain.score < comp.score
 
 
@@ -90,7 +92,7 @@ def test_translated_curve_equals_the_curve_of_shifted_bands():
     pred = prediction_of("CC(C)=O")
     measured = _synthetic_measured(pred, 1.0, shift=-8.0)
     for gas in (False, True):
-        comp = compare(pred, measured, gas_phase=gas, intensity_power=1.0)
+        comp = compare(pred, measured, gas_phase=gas, intensity_power=1.0, condensed_shifts=False)
         direct = predicted_curve(pred, comp.grid_cm1, 1.0, comp.shift_cm1, gas_phase=gas)
         np.testing.assert_allclose(comp.predicted_curve, direct, atol=0.02)
 
@@ -98,7 +100,7 @@ def test_translated_curve_equals_the_curve_of_shifted_bands():
 def test_shift_fit_recovers_known_shift():
     # constructed case: the measured curve is the prediction shifted by -12 cm^-1
     pred = prediction_of("CC(C)=O")
-    comp = compare(pred, _synthetic_measured(pred, 1.0, shift=-12.0), fit_shift=True)
+    comp = compare(pred, _synthetic_measured(pred, 1.0, shift=-12.0), fit_shift=True, condensed_shifts=False)
     assert comp.shift_cm1 == pytest.approx(-12.0, abs=0.3)
 
 
@@ -115,7 +117,7 @@ def test_peak_matching_is_one_to_one_within_tolerance():
 def test_peak_table_names_the_carbonyl():
     # acetone's strongest band is its C=O stretch (common practice, no source)
     pred = prediction_of("CC(C)=O")
-    comp = compare(pred, _synthetic_measured(pred, 1.0))
+    comp = compare(pred, _synthetic_measured(pred, 1.0), condensed_shifts=False)
     strongest = max((r for r in comp.matches if r.matched), key=lambda r: r.measured_height)
     assert "C=O stretch" in strongest.character and strongest.shift_cm1 == pytest.approx(0, abs=2.5)
 
@@ -224,3 +226,19 @@ def test_noise_does_not_become_peaks_under_the_square_root_comparison():
     measured = [m for m in comp.matches if m.measured_cm1 is not None]
     predicted = [m for m in comp.matches if m.predicted_cm1 is not None]
     assert len(measured) <= 1.5 * len(predicted) + 2
+
+
+def test_condensed_phase_moves_only_carbonyl_stretches():
+    """In a neat liquid a C=O stretch lies 10-30 cm^-1 below its gas value (common practice,
+    e.g. acetone 1738 gas / 1715 liquid, from memory): the comparison of a condensed-phase
+    spectrum moves acetone's C=O band by -20 cm^-1 and nothing else; a gas-phase one does not."""
+    from vibest.condensed_phase import condensed_band_shifts
+
+    pred = prediction_of("CC(C)=O")
+    shifts = condensed_band_shifts(pred)
+    moved = [b for b, s in zip(pred.bands, shifts) if s]
+    assert len(moved) == 1 and "C=O stretch" in moved[0].label and shifts[moved[0].index - 1] == -20.0
+    assert not np.any(condensed_band_shifts(prediction_of("CCO")))
+    liquid = _synthetic_measured(pred, 1.0, shift=-20.0)  # no ##STATE: condensed
+    assert any("condensed phase" in n for n in compare(pred, liquid, fit_shift=False).notes)
+    assert not any("condensed" in n for n in compare(pred, liquid, fit_shift=False, gas_phase=True).notes)

@@ -74,15 +74,16 @@ def test_margin_within_noise_poor_fit_and_low_confidence_on_constructed_cases():
     formaldehyde = prediction_of("C=O")
     measured = _synthetic(formaldehyde)
     # two candidates of the same structure: a margin of zero is within any noise
-    twice = rank_candidates(measured, [Candidate("a", "C=O"), Candidate("b", "O=C")])
+    twice = rank_candidates(measured, [Candidate("a", "C=O"), Candidate("b", "O=C")], condensed_shifts=False)
     model = ConfidenceModel(0.0, 1.0, 1.0, 0.0, {"score": "regional"}, poor_fit_score=1.5, cross_validated_ece=0.0)
-    kinds = {f.kind for f in assess(twice, {}, "GFN2-xTB", 16.0, model).flags}
+    kinds = {f.kind for f in assess(twice, {"condensed_shifts": False}, "GFN2-xTB", 16.0, model).flags}
     assert MARGIN_IN_NOISE in kinds and POOR_FIT in kinds  # every score is below 1.5
     low = ConfidenceModel(-10.0, 1.0, 1.0, 0.0, {"score": "regional"}, poor_fit_score=0.0, cross_validated_ece=0.0)
-    result = assess(twice, {}, "GFN2-xTB", 16.0, low)
+    result = assess(twice, {"condensed_shifts": False}, "GFN2-xTB", 16.0, low)
     assert result.confidence < 0.01 and LOW in {f.kind for f in result.flags}
     # another setting than the model's: no confidence, and says why
-    other = assess(twice, {}, "GFN2-xTB", 16.0, dataclasses.replace(low, settings={"score": "pearson"}))
+    other = assess(twice, {"condensed_shifts": False}, "GFN2-xTB", 16.0,
+                   dataclasses.replace(low, settings={"score": "pearson"}))
     assert other.confidence is None and "score" in other.note
 
 

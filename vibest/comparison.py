@@ -183,12 +183,16 @@ class Comparison:
 
 def predicted_curve(pred: Prediction, grid_cm1, extra_scale: float = 1.0, shift_cm1: float = 0.0,
                     fwhm_cm1: float | None = None, line_shape: str | None = None, gas_phase: bool = False,
-                    temperature_K: float = 298.15, contour: tuple | None = None) -> np.ndarray:
-    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift, max 1.
+                    temperature_K: float = 298.15, contour: tuple | None = None,
+                    band_shifts_cm1=None) -> np.ndarray:
+    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift (+ a shift per
+    band, ``band_shifts_cm1``), max 1.
 
     With ``gas_phase`` each band gets a rotational P/Q/R contour (:mod:`vibest.gas_phase`);
     ``contour`` is its (B, Q fractions) when already known."""
     nu = pred.wavenumbers_cm1 * extra_scale + shift_cm1
+    if band_shifts_cm1 is not None:
+        nu = nu + band_shifts_cm1
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
     if gas_phase:
@@ -275,12 +279,14 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
             shift_bounds_cm1: tuple[float, float] = (-DEFAULT_MAX_SHIFT_CM1, DEFAULT_MAX_SHIFT_CM1),
             fwhm_cm1: float | None = None, line_shape: str | None = None, baseline: bool = False,
             tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1, prominence: float = 0.03,
-            gas_phase: bool | None = None, smooth_measured_cm1: float = 0.0,
+            gas_phase: bool | None = None, condensed_shifts: bool = True, smooth_measured_cm1: float = 0.0,
             intensity_power: float = DEFAULT_INTENSITY_POWER) -> Comparison:
     """Score a prediction against a measured spectrum, optionally fitting a scale factor and/or shift.
 
     ``gas_phase`` gives predicted bands rotational contours (for spectra of gases; None: when
-    the measured file says the sample was a gas);
+    the measured file says the sample was a gas); otherwise the sample is taken as a condensed
+    phase and, with ``condensed_shifts``, bands with a known condensed-phase shift are moved
+    (:mod:`vibest.condensed_phase`);
     ``smooth_measured_cm1`` smooths the measured curve with a Gaussian of that FWHM (resolved
     rotational lines become an envelope); ``intensity_power`` p compares y**p of both normalised
     curves (p < 1 lets weak bands count more against strong ones).
@@ -317,17 +323,26 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
     contour = None
+    band_shifts = None
     if gas_phase:
         from .gas_phase import band_contour_inputs
 
         contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
+    elif condensed_shifts:
+        from .condensed_phase import CARBONYL_SHIFT_CM1, condensed_band_shifts
+
+        band_shifts = condensed_band_shifts(pred)
+        if np.any(band_shifts):
+            notes.append(f"condensed phase: predicted C=O stretches moved {CARBONYL_SHIFT_CM1:+.0f} cm^-1 "
+                         "(vibest.condensed_phase)")
 
     shifted_base = None
     if fit_shift and not fit_scale:
         # a shift translates the broadened curve: compute it once on a padded grid and move it
         pad = max(abs(b) for b in shift_bounds_cm1) + 2 * step_cm1
         padded = grid(lo - pad, hi + pad, step_cm1)
-        shifted_base = (padded, predicted_curve(pred, padded, 1.0, 0.0, fwhm, shape, gas_phase, contour=contour))
+        shifted_base = (padded, predicted_curve(pred, padded, 1.0, 0.0, fwhm, shape, gas_phase, contour=contour,
+                                                band_shifts_cm1=band_shifts))
 
     def linear_curve(f, s):
         """Normalised predicted absorbance after nu -> f nu + s."""
@@ -335,7 +350,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
             y = np.interp(g - s, *shifted_base)
             top = y.max()
             return y / top if top > 0 else y
-        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase, contour=contour)
+        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase, contour=contour, band_shifts_cm1=band_shifts)
 
     def value(f, s):
         return score(m_curve, linear_curve(f, s) ** intensity_power, score_name, g)
@@ -375,6 +390,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
     settings = {"range_cm1": [lo, hi], "step_cm1": step_cm1, "fwhm_cm1": fwhm, "line_shape": shape,
                 "baseline": baseline, "fit_scale": fit_scale, "fit_shift": fit_shift,
                 "tolerance_cm1": tolerance_cm1, "prominence": prominence, "gas_phase": gas_phase,
+                "condensed_shifts": bool(band_shifts is not None and np.any(band_shifts)),
                 "smooth_measured_cm1": smooth_measured_cm1, "intensity_power": intensity_power,
                 "coverage": coverage}
     return Comparison(pred.smiles, score_name, scores[score_name], scores, f_best, s_best, g, m_curve, p_curve,
