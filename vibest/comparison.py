@@ -13,8 +13,9 @@ clipped at zero, scaled to a maximum of 1 and raised to the power ``intensity_po
 * ``regional``: Pearson correlation computed separately in the regions below 1500, 1500-2500
   and above 2500 cm^-1 and averaged with weights max(a, b) of each region: the fingerprint
   region counts as much as the X-H stretches that dominate a whole-range correlation (and whose
-  GFN2-xTB intensities are too strong). benchmarks/identification.py: isomers top-1 79 % with
-  ``pearson``, 100 % with ``regional``.
+  GFN2-xTB intensities are too strong). When the default was chosen, benchmarks/identification.py
+  gave isomers top-1 79 % with ``pearson`` and 100 % with ``regional``; current figures are in the
+  README's accuracy section.
 """
 
 from __future__ import annotations
@@ -32,8 +33,9 @@ from .spectrum import broaden, grid, line_shape_values
 SCORES = ("pearson", "spearman", "cosine", "overlap", "regional")
 #: Region edges of the ``regional`` score (cm^-1).
 REGIONAL_EDGES_CM1 = (1500.0, 2500.0)
-#: benchmarks/identification.py, 36 real gas-phase spectra, default options otherwise: pearson
-#: top-1 61 %, top-3 72 %, isomers 79 %; regional 64 %, 81 %, 100 % (FWHM 16 and 30 alike).
+#: Chosen with benchmarks/identification.py on the training spectra (figures at the time, older
+#: scale factors): pearson top-1 61 %, top-3 72 %, isomers 79 %; regional 64 %, 81 %, 100 %.
+#: Current figures: README, accuracy section (rerun the benchmark to refresh them).
 DEFAULT_SCORE = "regional"
 DEFAULT_COMPARE_RANGE_CM1 = (500.0, 3800.0)
 #: Narrowest range compared (cm^-1): a few bands' worth.
@@ -46,8 +48,8 @@ DEFAULT_MATCH_TOLERANCE_CM1 = 40.0
 DEFAULT_INTENSITY_POWER = 0.5
 #: A common shift of the predicted wavenumbers is fitted by default within +-DEFAULT_MAX_SHIFT_CM1:
 #: it absorbs the systematic error left after scaling (e.g. sp3 C-H stretches ~20-30 cm^-1
-#: high) equally for every candidate. benchmarks/identification.py, 36 real gas-phase spectra:
-#: top-1 50 % without a shift, 56-61 % with bounds of 10, 20, 30 or 40 cm^-1 (61 % at 20).
+#: high) equally for every candidate. benchmarks/identification.py when chosen (older scale
+#: factors): top-1 50 % without a shift, 56-61 % with bounds of 10, 20, 30 or 40 cm^-1 (61 % at 20).
 DEFAULT_FIT_SHIFT = True
 DEFAULT_MAX_SHIFT_CM1 = 20.0
 

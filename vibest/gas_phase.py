@@ -52,13 +52,10 @@ def rotational_constants_cm1(numbers, positions_angstrom, masses_amu=None) -> np
     """Rotational constants A >= B >= C (cm^-1); zero moments (linear axis) give inf."""
     from ase.data import atomic_masses
 
+    from .inertia import principal_moments_amu_angstrom2
+
     m = np.asarray(masses_amu if masses_amu is not None else atomic_masses[np.asarray(numbers)], dtype=float)
-    x = np.asarray(positions_angstrom, dtype=float)
-    x = x - (m[:, None] * x).sum(0) / m.sum()
-    inertia = np.zeros((3, 3))
-    for mi, r in zip(m, x):
-        inertia += mi * (r @ r * np.eye(3) - np.outer(r, r))
-    moments = np.linalg.eigvalsh(inertia) * sc.atomic_mass * 1e-20  # kg m^2
+    moments = principal_moments_amu_angstrom2(positions_angstrom, m) * sc.atomic_mass * sc.angstrom ** 2  # kg m^2
     with np.errstate(divide="ignore"):
         b = sc.h / (8 * np.pi ** 2 * sc.c * 100.0 * moments)
     return np.sort(np.where(moments > 1e-50, b, np.inf))[::-1]
@@ -90,9 +87,10 @@ def q_fractions(numbers, positions_angstrom, dipole_derivatives_mode, linear: bo
         return np.full(len(d), float(q_nonlinear))
     from ase.data import atomic_masses
 
-    x = np.asarray(positions_angstrom, dtype=float)
+    from .inertia import centred
+
     m = atomic_masses[np.asarray(numbers)] if masses_amu is None else np.asarray(masses_amu, dtype=float)
-    x = x - (m[:, None] * x).sum(0) / m.sum()
+    x = centred(positions_angstrom, m)
     axis = x[np.argmax(np.linalg.norm(x, axis=1))]
     axis = axis / np.linalg.norm(axis)
     norm = np.linalg.norm(d, axis=1)

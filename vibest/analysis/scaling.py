@@ -132,12 +132,6 @@ def region_index(wavenumbers_cm1) -> np.ndarray:
     return np.searchsorted(np.asarray(REGION_EDGES_CM1), np.abs(np.asarray(wavenumbers_cm1, dtype=float)), side="right")
 
 
-def scale_hessian(hessian_hartree_bohr2, space: InternalSpace, factors) -> np.ndarray:
-    """H' = H + B^T ((sqrt(s) sqrt(s)^T - 1) o F_q) B: exactly H when every s is 1."""
-    root = np.sqrt(np.asarray(factors, dtype=float))
-    return scale_hessian_matrix(hessian_hartree_bohr2, space, np.outer(root, root))
-
-
 def scale_hessian_matrix(hessian_hartree_bohr2, space: InternalSpace, matrix) -> np.ndarray:
     """H' = H + B^T ((S - 1) o F_q) B for a symmetric matrix S of factors on F_q entries."""
     h = np.asarray(hessian_hartree_bohr2, dtype=float)

@@ -45,10 +45,9 @@ def _rotation(axis: np.ndarray, angle: float) -> np.ndarray:
 
 
 def _candidate_axes(x: np.ndarray, numbers: np.ndarray, masses: np.ndarray) -> list[np.ndarray]:
-    inertia = np.zeros((3, 3))
-    for m, r in zip(masses, x):
-        inertia += m * (np.dot(r, r) * np.eye(3) - np.outer(r, r))
-    vectors = list(np.linalg.eigh(inertia)[1].T)
+    from ..inertia import principal_axes
+
+    vectors = list(principal_axes(x, masses))
     n = len(x)
     vectors += [r for r in x]
     for i in range(n):
@@ -85,8 +84,10 @@ def symmetry_operations(numbers, positions_angstrom, tolerance_angstrom: float =
     x = np.asarray(positions_angstrom, dtype=float)
     if len(x) > max_atoms or len(x) < 2:
         return []
+    from ..inertia import centred
+
     masses = atomic_masses[numbers]
-    x = x - (masses[:, None] * x).sum(0) / masses.sum()
+    x = centred(x, masses)
     candidates = [(-np.eye(3), True)]
     for axis in _candidate_axes(x, numbers, masses):
         for order in (2, 3, 4, 5, 6):

@@ -46,12 +46,9 @@ class Thermochemistry:
 
 def moments_of_inertia(positions_angstrom, masses_amu) -> np.ndarray:
     """Principal moments (kg m^2), ascending."""
-    x = np.asarray(positions_angstrom, float) * sc.angstrom
-    m = np.asarray(masses_amu, float) * _AMU
-    r = x - (m[:, None] * x).sum(0) / m.sum()
-    inertia = np.einsum("i,ij,ik->jk", m, r, r)
-    inertia = np.trace(inertia) * np.eye(3) - inertia
-    return np.sort(np.linalg.eigvalsh(inertia))
+    from ..inertia import principal_moments_amu_angstrom2
+
+    return principal_moments_amu_angstrom2(positions_angstrom, masses_amu) * _AMU * sc.angstrom ** 2
 
 
 def thermochemistry(wavenumbers_cm1, positions_angstrom, masses_amu, energy_hartree: float = 0.0,
