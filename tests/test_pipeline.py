@@ -152,9 +152,15 @@ def test_hessian_while_the_pool_starts_equals_serial():
     # SCF noise (accuracy 0.01; threads reduce in another order) of ~5e-9 Eh/Bohr in a gradient
     # is ~5e-7 Eh/Bohr^2 after dividing by 2h; far below anything visible in a spectrum
     np.testing.assert_allclose(mixed.hessian_hartree_bohr2, serial.hessian_hartree_bohr2, atol=2e-6)
-    np.testing.assert_allclose(mixed.dipole_derivatives_e, serial.dipole_derivatives_e, atol=2e-5)
-    w = [harmonic_analysis(mol.numbers, mol.positions_angstrom, r.hessian_hartree_bohr2) for r in (serial, mixed)]
+    # Displacements here and in the workers start their SCF from different guesses, so the dipole
+    # (converged to accuracy 0.01) differs by up to ~1e-6 e*Bohr, i.e. ~2e-4 e after dividing by 2h
+    # (measured in CI: 2.3e-4). What matters is the spectrum: intensities agree to 1 %, far inside
+    # the factor-of-2 intensity error the README states for GFN2-xTB.
+    np.testing.assert_allclose(mixed.dipole_derivatives_e, serial.dipole_derivatives_e, atol=1e-3)
+    w = [harmonic_analysis(mol.numbers, mol.positions_angstrom, r.hessian_hartree_bohr2, r.dipole_derivatives_e)
+         for r in (serial, mixed)]
     np.testing.assert_allclose(w[0].wavenumbers_cm1, w[1].wavenumbers_cm1, atol=0.05)
+    np.testing.assert_allclose(w[0].intensities_km_mol, w[1].intensities_km_mol, rtol=1e-2, atol=0.05)
 
 
 def test_a_failing_displacement_in_a_thread_stops_the_hessian_with_a_calculation_error():
