@@ -38,7 +38,8 @@ from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM, ScaleModel
 from vibest.calculation.driver import calculation_options
 from vibest.errors import VibestError
 from vibest.calculation.methods import parse_level
-from vibest.reference_records import REFERENCE_OPTIONS, reference_record
+from vibest.calculation.record import HessianRecord
+from vibest.reference_records import REFERENCE_OPTIONS, computed_with, reference_record
 
 
 def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFERENCE_OPTIONS,
@@ -52,6 +53,11 @@ def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFER
     cases = []
     for ref in reference_molecules():
         t0 = time.perf_counter()
+        stale = records.get(ref.smiles)
+        if isinstance(stale, HessianRecord) and not computed_with(stale, options):
+            print(f"  {ref.name:<36} cached record is of an older version of the method: recomputed",
+                  file=sys.stderr)
+            del records[ref.smiles]
         if ref.smiles not in records and cached_only:
             print(f"  {ref.name:<36} not computed yet: left out (--cached-only)", file=sys.stderr)
             continue

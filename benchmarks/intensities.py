@@ -30,7 +30,7 @@ from vibest.analysis.calibration import prepare_case, reference_molecules
 from vibest.analysis.harmonic import harmonic_analysis
 from vibest.calculation.driver import calculation_options
 from vibest.calculation.methods import parse_level
-from vibest.reference_records import REFERENCE_OPTIONS, reference_record
+from vibest.reference_records import REFERENCE_OPTIONS, computed_with, reference_record
 
 DATA = Path(__file__).resolve().parent / "data" / "gas_intensities.csv"
 
@@ -58,6 +58,9 @@ def records_for(level: str, smiles_list: list[str], cache_dir: Path | None) -> d
     records = pickle.loads(path.read_bytes()) if path and path.exists() else {}
     options = REFERENCE_OPTIONS if key == "gfn2" else calculation_options(level)
     for smiles in smiles_list:
+        if smiles in records and not isinstance(records[smiles], str) and not computed_with(records[smiles], options):
+            print(f"  {level}: cached {smiles} is of an older version of the method: recomputed", file=sys.stderr)
+            del records[smiles]
         if smiles not in records:
             print(f"  {level}: computing {smiles}", file=sys.stderr)
             records[smiles] = reference_record(smiles, options)

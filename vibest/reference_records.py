@@ -31,3 +31,11 @@ def reference_record(smiles: str, options: CalculationOptions = REFERENCE_OPTION
         return record
     ens = predict_ensemble(smiles, calc=options, ens=EnsembleOptions(energy_window_kcal=0.0, max_conformers=30))
     return ens.members[0].prediction.record
+
+
+def computed_with(record: HessianRecord, options: CalculationOptions) -> bool:
+    """Whether ``record`` was computed with ``options``' methods (engine and intensity engine):
+    a benchmark's cache of records from an older version of a method is stale, never reused."""
+    current = options.to_dict()
+    return all(record.settings.get(name) == current.get(name) for name in ("engine", "intensity_engine"))
+

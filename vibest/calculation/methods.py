@@ -31,6 +31,11 @@ class DFTSettings:
         grid_level: PySCF's integration grid level (0-9; 3 is PySCF's default).
         density_fitting: resolve the two-electron integrals with an auxiliary basis.
         scf_tolerance_hartree: SCF energy convergence (Eh); gradients and responses need it tight.
+        heavy_atom_rows: how the Hessian rows and dipole derivatives of atoms past neon are
+            computed: ``"finite-difference"`` of analytic gradients and SCF dipoles, which include
+            the grid's motion that PySCF's analytic Hessian leaves out (vibest.calculation.
+            dft_engine). Part of the store key, so records from before (analytic rows, wrong by up
+            to 200 cm^-1 for Cl and Br) are never reused.
     """
 
     functional: str = "b3lyp"
@@ -39,6 +44,7 @@ class DFTSettings:
     grid_level: int = 3
     density_fitting: bool = False
     scf_tolerance_hartree: float = 1e-10
+    heavy_atom_rows: str = "finite-difference"
 
     def to_dict(self) -> dict:
         return asdict(self)
