@@ -223,3 +223,20 @@ def test_chlorine_rows_include_the_grid_response():
     fine = np.real(thermo.harmonic_analysis(pmol, mf.Hessian().kernel())["freq_wavenumber"])
     assert ours.shape == fine.shape == (1,)
     assert abs(ours[0] - fine[0]) < 1.0, (ours, fine)
+
+
+def test_a_dft_calculation_estimated_at_hours_is_refused_at_once():
+    """Triacontane at B3LYP (92 atoms, ~540 basis functions) is estimated far above the 2 h cap
+    (a measured small molecule, benzene at 96 basis functions, took 151 s on 2 cores and the time
+    grows about as the cube of the basis: benchmarks/dft_cost.py): refused in one line, with the
+    way round, before any calculation."""
+    import time
+
+    from click.testing import CliRunner
+
+    from vibest.cli import main
+
+    t = time.perf_counter()
+    res = CliRunner().invoke(main, ["predict", "C" * 30, "--method", "b3lyp", "-q", "--no-store"])
+    assert res.exit_code == 2 and "estimated at" in res.output and "--force" in res.output, res.output
+    assert time.perf_counter() - t < 30

@@ -250,7 +250,8 @@ def assess(ranking, compare_options: dict, method_name: str, fwhm_cm1: float,
     elif not model.applies_to(settings):
         differing = [k for k, v in model.settings.items() if not _same(settings.get(k), v)]
         note = ("confidence is calibrated for the default comparison at " + str(model.settings.get("method")) +
-                f" only (here: {', '.join(differing)} differ)")
+                f" only; here the {', '.join(name.replace('_', ' ') for name in differing)} "
+                + ("differs" if len(differing) == 1 else "differ"))
     else:
         if first.score < model.poor_fit_score:
             flags.append(Flag(POOR_FIT, f"the best score ({first.score:.3f}) is below what right answers scored in "

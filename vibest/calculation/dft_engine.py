@@ -395,14 +395,24 @@ def field_dipole_derivatives(mf, h1ao) -> np.ndarray:
 
 
 #: Cost model of :func:`estimated_seconds`: seconds = a * (basis functions / 100) ** b on 2
-#: cores, per tier, fitted by benchmarks/dft_cost.py on this project's 2-core machine.
-COST_MODEL = {"full": (300.0, 3.0), "intensities": (30.0, 3.0)}
+#: cores, per tier, fitted by ``benchmarks/dft_cost.py --quick`` on this project's 2-core machine
+#: (quiet, 2026-12-03: formaldehyde, acetone, benzene, 32-96 basis functions; larger molecules
+#: are an extrapolation, and molecules needing many optimisation steps take longer).
+COST_MODEL = {"full": (191.4, 2.94), "intensities": (26.9, 2.51)}
+#: Seconds of one SCF with gradient at 100 basis functions on 2 cores, for the finite-difference
+#: rows of atoms past neon (6 per atom; scaled like the cube of the basis): measured while
+#: patching the benchmark's records, 2026-12-03 (CCl4, C2Cl4, 1,2-dibromoethane: 9-14 s at
+#: 86-100 basis functions).
+HEAVY_ATOM_EVALUATION_SECONDS = 14.0
 
 
-def estimated_seconds(basis_functions: int, atoms: int, tier: str, threads: int = 2) -> float:
+def estimated_seconds(basis_functions: int, heavy_atoms: int, tier: str, threads: int = 2) -> float:
     """Rough wall time (s) of a density-functional calculation of this size (``tier``: "full"
-    or "intensities"), from :data:`COST_MODEL`, assuming the time divides over threads as it
-    does over the 2 cores it was measured on. Meant for refusing hopeless requests, not for
-    planning: expect a factor of 2 either way."""
+    or "intensities"; ``heavy_atoms``: atoms past neon, whose rows are finite differences),
+    from :data:`COST_MODEL`, assuming the time divides over threads as it does over the 2
+    cores it was measured on. Meant for refusing hopeless requests, not for planning: expect a
+    factor of 2 either way."""
     a, b = COST_MODEL[tier]
-    return a * (basis_functions / 100.0) ** b * 2.0 / max(1, threads)
+    size = basis_functions / 100.0
+    seconds = a * size ** b + 6 * heavy_atoms * HEAVY_ATOM_EVALUATION_SECONDS * size ** 3
+    return seconds * 2.0 / max(1, threads)
