@@ -57,6 +57,29 @@ print("ok")
     assert res.returncode == 0 and "ok" in res.stdout, res.stdout + res.stderr
 
 
+def test_predict_with_a_store_computes_once(tmp_path, monkeypatch):
+    """The second call with the same store takes the record from it (no calculation: the
+    calculation is replaced by one that fails) and gives the same bands; a bad store argument
+    is an input error."""
+    import vibest
+    import vibest.ranking
+    from vibest.errors import InputError
+
+    path = tmp_path / "api.sqlite"
+    first = vibest.predict("C=O", workers=1, store=path)
+
+    def no_calculation(*args, **kwargs):
+        raise AssertionError("computed again")
+
+    monkeypatch.setattr(vibest.ranking, "compute_record", no_calculation)
+    again = vibest.predict("C=O", workers=1, store=str(path))
+    assert [b.wavenumber_cm1 for b in again.bands] == [b.wavenumber_cm1 for b in first.bands]
+    with pytest.raises(AssertionError):  # another molecule is not in the store
+        vibest.predict("O", workers=1, store=path)
+    with pytest.raises(InputError):
+        vibest.predict("C=O", store=3)
+
+
 @pytest.mark.slow
 def test_screening_loop_example_runs():
     res = subprocess.run([sys.executable, str(ROOT / "examples" / "screening_loop.py")], capture_output=True,

@@ -8,6 +8,7 @@ spectrum without any new gradient, so re-analysis (other scaling, width, masses)
 from __future__ import annotations
 
 import dataclasses
+import os
 import platform
 import time
 from dataclasses import dataclass
@@ -280,7 +281,8 @@ def predict(smiles: str, *, method: str = DEFAULT_METHOD, seed: int = DEFAULT_SE
             workers: int | None = None, backend: str = "tblite", solvent: str | None = None,
             solvent_model: str = "alpb", memory_mb: int = DEFAULT_DFT_MEMORY_MB, allow_long: bool = False,
             max_force_hartree_bohr: float = OptimizerSettings.max_force_hartree_bohr,
-            hessian_step_bohr: float = 0.005, progress: Progress | None = None) -> Prediction:
+            hessian_step_bohr: float = 0.005, progress: Progress | None = None,
+            store=None) -> Prediction:
     """Predict the IR spectrum of one molecule given as SMILES.
 
     Args:
@@ -302,6 +304,10 @@ def predict(smiles: str, *, method: str = DEFAULT_METHOD, seed: int = DEFAULT_SE
         max_force_hartree_bohr: optimisation convergence, Eh/Bohr.
         hessian_step_bohr: finite-difference step, Bohr.
         progress: optional callback progress(stage, done, total, message).
+        store: a result store (a path to its SQLite file, or a :class:`vibest.RecordStore`):
+            the record is taken from it when it holds one for these settings, else computed and
+            kept there, so that calling again (a minutes-long DFT calculation, say) costs
+            nothing. None (default): always computed, nothing kept.
 
     Raises:
         InputError: for invalid input (message suitable for the user).
@@ -317,7 +323,16 @@ def predict(smiles: str, *, method: str = DEFAULT_METHOD, seed: int = DEFAULT_SE
                                     solvent=solvent, solvent_model=solvent_model, workers=workers,
                                     memory_mb=memory_mb, max_force_hartree_bohr=max_force_hartree_bohr,
                                     hessian_step_bohr=hessian_step_bohr, allow_long=allow_long)
-    return predict_with(smiles, calc_opts, spec_opts, progress)
+    if store is None:
+        return predict_with(smiles, calc_opts, spec_opts, progress)
+    from .ranking import predict_stored
+    from .store import RecordStore
+
+    if not isinstance(store, RecordStore):
+        if not isinstance(store, (str, os.PathLike)):
+            raise InputError(f"store must be a path or a RecordStore, not {type(store).__name__}")
+        store = RecordStore(store)
+    return predict_stored(smiles, calc_opts, spec_opts, store, progress)[0]
 
 
 def predict_with(smiles: str, calc: CalculationOptions, spec: SpectrumOptions = SpectrumOptions(),
