@@ -168,13 +168,16 @@ def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_pa
     from .conftest import record_of
 
     water = analyse(record_of("O"))
+    heard: list[str] = []
     measured = MeasuredSpectrum(water.spectrum.wavenumbers_cm1, water.spectrum.absorbance_normalised, "absorbance")
     store = RecordStore(tmp_path / "store.sqlite")
     ranking = rank_candidates(measured, [Candidate("water", "O"), Candidate("methyl", "[CH3]"),
                                          Candidate("formaldehyde", "C=O")],
                               calc=CalculationOptions(workers=1), spec=SpectrumOptions(scale_factor=0.97), store=store,
-                              refine=2, refine_calc=small_options())  # no scale model is fitted for the test method
+                              refine=2, refine_calc=small_options(),  # no scale model is fitted for the test method
+                              refine_progress=lambda stage, done, total, message: heard.append(stage))
     first, second, third = ranking.entries
+    assert heard  # the refining calculation's stages were reported (minutes each at a real DFT level)
     assert first.candidate.name == "water" and first.refined and first.method == SMALL.name
     assert third.refined is False and third.method == "GFN2-xTB"
     refused = next(e for e in ranking.entries if e.candidate.name == "methyl")
@@ -240,3 +243,19 @@ def test_a_dft_calculation_estimated_at_hours_is_refused_at_once():
     res = CliRunner().invoke(main, ["predict", "C" * 30, "--method", "b3lyp", "-q", "--no-store"])
     assert res.exit_code == 2 and "estimated at" in res.output and "--force" in res.output, res.output
     assert time.perf_counter() - t < 30
+
+
+@pytest.mark.slow
+def test_chlorine_dipole_derivatives_agree_between_the_two_paths():
+    """HCl (small basis, coarse grid, as above): the full tier's dipole derivatives (Hessian run)
+    and the intensities-only tier's (its own call) have chlorine rows from finite differences and
+    hydrogen rows from the field response; they agree to SCF noise, and the mixture keeps the sum
+    rule of a neutral molecule (moving it whole does not change its dipole: the rows sum to zero)."""
+    record, converged, _ = compute_record(build_molecule("Cl"), small_options())
+    assert converged
+    x = record.positions_angstrom / Bohr
+    engine = make_engine(record.numbers, x, 0, 0, EngineSettings.for_method(SMALL))
+    again = engine.dipole_derivatives(x)
+    assert np.abs(again - record.dipole_derivatives_e).max() < 1e-4
+    assert np.abs(again.reshape(-1, 3, 3).sum(axis=0)).max() < 2e-3
+    assert np.abs(again).max() > 0.05  # HCl's dipole changes along the bond: not trivially zero

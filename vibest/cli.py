@@ -524,7 +524,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 
         kw = _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power)
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts, store=_store(store_path, no_store),
-                                  score_name=score_name, progress=report, refine=refine, refine_calc=refine_calc, **kw)
+                                  score_name=score_name, progress=report, refine=refine, refine_calc=refine_calc,
+                                  refine_progress=progress, **kw)
         progress.finish()
         if not any(e.comparison is not None for e in ranking.entries):
             reasons = "; ".join(f"{e.candidate.name}: {e.error}" for e in ranking.entries[:3])

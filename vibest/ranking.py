@@ -184,7 +184,8 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
                     store: RecordStore | None = None, score_name: str = DEFAULT_SCORE,
                     progress: Callable[[int, int, str], None] | None = None, refine: int = 0,
-                    refine_calc: CalculationOptions | None = None, **compare_options) -> Ranking:
+                    refine_calc: CalculationOptions | None = None, refine_progress=None,
+                    **compare_options) -> Ranking:
     """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
 
     A candidate that cannot be predicted is listed last with its error; it never stops the ranking.
@@ -193,6 +194,8 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     density-functional level) and ranked among themselves by their new scores; they keep the
     first K places (scores of two levels are not comparable across the line), and their rows say
     so. A candidate the refining level cannot compute keeps its first-level result, with a note.
+    ``refine_progress(stage, done, total, message)`` hears the stages of each refining calculation
+    (minutes each at a density-functional level).
     """
     if not candidates:
         raise InputError("no candidate structures given")
@@ -213,7 +216,8 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
             failed.append(RankedCandidate(None, cand, None, None, None, None, str(exc), method=calc.method_name))
     scored.sort(key=lambda t: -t[2].score)
     if refine:
-        top = _refined(scored[:refine], measured, refine_calc, spec, store, score_name, progress, compare_options)
+        top = _refined(scored[:refine], measured, refine_calc, spec, store, score_name, progress, compare_options,
+                       refine_progress)
         scored = sorted(top, key=lambda t: -t[2].score) + scored[refine:]
     if progress:
         progress(len(candidates), len(candidates), "")
@@ -226,14 +230,14 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     return Ranking(measured, score_name, tuple(entries + failed))
 
 
-def _refined(top, measured, calc, spec, store, score_name, progress, compare_options):
+def _refined(top, measured, calc, spec, store, score_name, progress, compare_options, stage_progress=None):
     """The entries ``top`` recomputed at ``calc`` (a failure keeps the entry as it was)."""
     out = []
     for k, (cand, pred, comp, hit, _, _) in enumerate(top):
         if progress:
             progress(k, len(top), f"{cand.name} at {calc.method_name}")
         try:
-            better, hit2 = predict_stored(cand.smiles, calc, spec, store)
+            better, hit2 = predict_stored(cand.smiles, calc, spec, store, stage_progress)
         except VibestError as exc:
             out.append((cand, pred, comp, hit, False, f"not refined: {exc}"))
             continue

@@ -197,20 +197,23 @@ class PySCFEngine(Engine):
         h = FINITE_DIFFERENCE_STEP_BOHR
         rows, apt = np.zeros((len(idx), x0.size)), np.zeros((len(idx), 3))
         centre = self._dm
+
+        def probe(x):  # (gradient or None, dipole), the SCF started from the centre's density
+            self._dm = centre
+            if not gradients:
+                return None, self._dipole_at(x)
+            ev = self.evaluate(x)
+            return ev.gradient_hartree_bohr.reshape(-1), ev.dipole_e_bohr
+
         for r, i in enumerate(idx):
             if say:
                 say("finite differences for atoms past neon", f"{r + 1}/{len(idx)} coordinates")
-            results = []
-            for sign in (1.0, -1.0):
-                x = x0.copy()
-                x[i] += sign * h
-                self._dm = centre
-                results.append(self.evaluate(x) if gradients else self._dipole_at(x))
+            step = np.zeros_like(x0)
+            step[i] = h
+            (g_plus, mu_plus), (g_minus, mu_minus) = probe(x0 + step), probe(x0 - step)
             if gradients:
-                rows[r] = (results[0].gradient_hartree_bohr.reshape(-1) - results[1].gradient_hartree_bohr.reshape(-1)) / (2 * h)
-                apt[r] = (results[0].dipole_e_bohr - results[1].dipole_e_bohr) / (2 * h)
-            else:
-                apt[r] = (results[0] - results[1]) / (2 * h)
+                rows[r] = (g_plus - g_minus) / (2 * h)
+            apt[r] = (mu_plus - mu_minus) / (2 * h)
         self._dm = centre
         self.mol.set_geom_(x0.reshape(-1, 3), unit="Bohr")
         return idx, (rows if gradients else None), apt
