@@ -541,7 +541,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
                 path = Path(plot_dir) / f"rank{e.rank}.png"
                 items.append(("--plot-dir", str(path), functools.partial(
                     output.plot_overlay, e.comparison, path, measured_label=f"measured {Path(measured).name}",
-                    title=f"rank {e.rank}: {e.candidate.name}  ({score_name} score {e.score:.3f})",
+                    title=f"rank {e.rank}: {e.candidate.name}  ({score_name} score {e.score:.3f}"
+                          + (f", {e.method})" if refine else ")"),
                     name=e.candidate.name)))
         _write_all(items)
 
