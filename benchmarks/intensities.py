@@ -8,7 +8,7 @@ per level: the median |log10(I_pred / I_exp)| and the share of bands within a fa
 every band. Levels: gfn2 (GFN2-xTB), gfn2+b3lyp (GFN2-xTB modes, B3LYP-D3(BJ)/6-31G(d) dipole
 derivatives at the GFN2-xTB geometry), b3lyp (everything at B3LYP-D3(BJ)/6-31G(d)).
 
-    python benchmarks/intensities.py [--levels gfn2,gfn2+b3lyp,b3lyp] [--records DIR]
+    python benchmarks/intensities.py [--levels gfn1,gfn2,gfn2+b3lyp,b3lyp] [--records DIR]
 
 ``--records DIR`` keeps computed records in DIR/<level>-records.pkl (the same files
 benchmarks/fit_scale_factor.py --records writes, so a fit's DFT records are reused).
