@@ -8,7 +8,6 @@ spectrum without any new gradient, so re-analysis (other scaling, width, masses)
 from __future__ import annotations
 
 import dataclasses
-import os
 import platform
 import time
 from dataclasses import dataclass
@@ -326,13 +325,9 @@ def predict(smiles: str, *, method: str = DEFAULT_METHOD, seed: int = DEFAULT_SE
     if store is None:
         return predict_with(smiles, calc_opts, spec_opts, progress)
     from .ranking import predict_stored
-    from .store import RecordStore
+    from .store import open_store
 
-    if not isinstance(store, RecordStore):
-        if not isinstance(store, (str, os.PathLike)):
-            raise InputError(f"store must be a path or a RecordStore, not {type(store).__name__}")
-        store = RecordStore(store)
-    return predict_stored(smiles, calc_opts, spec_opts, store, progress)[0]
+    return predict_stored(smiles, calc_opts, spec_opts, open_store(store), progress)[0]
 
 
 def predict_with(smiles: str, calc: CalculationOptions, spec: SpectrumOptions = SpectrumOptions(),

@@ -385,3 +385,14 @@ class RecordStore:
 
     def schema_version(self) -> int:
         return self._connect().execute("PRAGMA user_version").fetchone()[0]
+
+
+def open_store(store: "str | os.PathLike | RecordStore | None") -> RecordStore:
+    """``store`` as a :class:`RecordStore`: one as it is, a path opened, None the default store;
+    InputError for anything else."""
+    if isinstance(store, RecordStore):
+        return store
+    if store is not None and not isinstance(store, (str, os.PathLike)):
+        raise InputError(f"store must be a path or a RecordStore, not {type(store).__name__}")
+    return RecordStore(store)
+

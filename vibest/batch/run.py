@@ -16,7 +16,7 @@ from typing import Callable, Iterable
 from ..errors import InputError, VibestError
 from ..pipeline import CAUTION, CalculationOptions, SpectrumOptions, analyse
 from ..ranking import Candidate, read_candidates
-from ..store import RecordStore, structure_identity
+from ..store import RecordStore, open_store, structure_identity
 
 #: Statuses of a batch entry.
 STATUSES = ("computed", "stored", "failed", "not run")
@@ -162,7 +162,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
     spec.validate()
     spec.resolve_scale(calc.engine.method)
     cands = _as_candidates(molecules)
-    store = store if isinstance(store, RecordStore) else RecordStore(store)
+    store = open_store(store)
     out_dir = Path(output_dir) if output_dir is not None else None
     if out_dir is not None:
         try:

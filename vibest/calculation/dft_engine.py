@@ -53,6 +53,11 @@ HEAVY_ATOM_Z = 10
 FINITE_DIFFERENCE_STEP_BOHR = 0.005
 
 
+def atoms_past_neon(numbers) -> list[int]:
+    """Indices of the atoms whose rows are finite differences (atomic number > HEAVY_ATOM_Z)."""
+    return [a for a, z in enumerate(numbers) if int(z) > HEAVY_ATOM_Z]
+
+
 @dataclass(frozen=True)
 class DFTResources:
     """How a DFT calculation may use the machine (changes no number, so never in a store key).
@@ -189,7 +194,7 @@ class PySCFEngine(Engine):
         (k, 3N), None unless ``gradients``) and dipole derivatives (e; (k, 3)) by central finite
         differences at ``positions_bohr``; None when there are no such atoms. The SCF state is
         back at ``positions_bohr``'s density afterwards."""
-        heavy = [a for a, z in enumerate(self.numbers) if z > HEAVY_ATOM_Z]
+        heavy = atoms_past_neon(self.numbers)
         if not heavy or self.settings.dft.heavy_atom_rows != "finite-difference":
             return None
         x0 = np.asarray(positions_bohr, dtype=float).reshape(-1)

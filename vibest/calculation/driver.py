@@ -166,14 +166,14 @@ def check_cost(molecule, options: CalculationOptions) -> float | None:
     not allowed."""
     if not options.uses_dft:
         return None
-    from .dft_engine import HEAVY_ATOM_Z, build_pyscf_molecule, estimated_seconds
+    from .dft_engine import atoms_past_neon, build_pyscf_molecule, estimated_seconds
 
     settings = options.engine if options.engine.is_dft else options.intensity_engine
     size = build_pyscf_molecule(molecule.numbers, molecule.positions_angstrom / Bohr, molecule.charge, molecule.uhf,
                                 settings).nao
     tier = "full" if options.engine.is_dft else "intensities"
-    heavy = int((np.asarray(molecule.numbers) > HEAVY_ATOM_Z).sum())
-    seconds = estimated_seconds(size, heavy, tier, options.workers or default_workers())
+    seconds = estimated_seconds(size, len(atoms_past_neon(molecule.numbers)), tier,
+                                options.workers or default_workers())
     if seconds > MAX_DFT_SECONDS and not options.allow_long:
         raise InputError(f"{settings.method} for this molecule ({molecule.natoms} atoms, {size} basis functions) is "
                          f"estimated at {seconds / 3600:.1f} h on {options.workers or default_workers()} cores; "
