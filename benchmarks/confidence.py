@@ -75,7 +75,7 @@ def features(spectrum, candidates: list[str], right: str, preds: dict) -> dict:
     order = sorted(candidates, key=lambda s: -comps[s].score)
     first, second = order[0], order[1]
     s1, s2 = comps[first].score, comps[second].score
-    spread, flips = margin_noise(spectrum, preds[first], preds[second], {})
+    spread, flips = margin_noise(spectrum, preds[first], preds[second])
     c = comps[first]
     matched = matched_share(c)
     against = sum(e.against for e in group_evidence(preds[first], c))

@@ -139,7 +139,10 @@ def main() -> None:
     print(f"\nuniform factor {models[UNIFORM].factor:.4f}; region factors "
           + ", ".join(f"{f:.4f}" for f in models[REGION].region_factors) + " (<1000, 1000-1600, 1600-2000, 2000-2700, >2700)")
     print(f"\n{'coordinate type':<28} {'force-constant factor':>21} {'~wavenumber factor':>19}")
-    for t, v in sorted(models[PER_COORDINATE].force_constant_factors.items()):
+    fc = models[PER_COORDINATE].force_constants
+    rows = [(t.name, v) for t, v in sorted(fc.types.items())] + \
+        [(f"family: {f.value}", v) for f, v in fc.families.items()] + sorted(fc.couplings.items())
+    for t, v in rows:
         print(f"{t:<28} {v:21.4f} {np.sqrt(v):19.4f}")
     print("\nerror by the dominant coordinate type of the mode (MAD / max, cm-1; train | held-out)")
     types = sorted({t for c in cases for t in c.dominant_types})
@@ -176,7 +179,7 @@ def main() -> None:
     print(f"\ndefault model by cross-validated MAD over the training molecules: {default} "
           "(the held-out figures above are reported, never used to choose)")
     if args.write:
-        from vibest.analysis.scaling import SCALE_FILES
+        from vibest.analysis.scaling import SCALE_FILE_FORMAT, SCALE_FILES
 
         path = Path(__file__).resolve().parents[1] / "vibest" / "data" / SCALE_FILES[options.engine.method]
 
@@ -186,6 +189,7 @@ def main() -> None:
                     "train_molecules": len(train), "heldout_molecules": len(test)}
 
         out = {
+            "format_version": SCALE_FILE_FORMAT,
             "default": default,
             "method": f"{options.engine.method}, vibest default settings; modes assigned by symmetry class and character"
                       + (f"; fitted on the {len(cases)} of 82 reference molecules computed so far" if args.cached_only
@@ -196,9 +200,7 @@ def main() -> None:
             "uniform": {"factor": round(models[UNIFORM].factor, 5), "fundamentals": table[(UNIFORM, "train")]["count"],
                         "molecules": len(train), **summary(UNIFORM)},
             REGION: {"region_factors": [round(f, 5) for f in models[REGION].region_factors], **summary(REGION)},
-            PER_COORDINATE: {"force_constant_factors": {k: round(v, 5) for k, v in
-                                                        sorted(models[PER_COORDINATE].force_constant_factors.items())},
-                             **summary(PER_COORDINATE)},
+            PER_COORDINATE: {**models[PER_COORDINATE].force_constants.to_json(digits=5), **summary(PER_COORDINATE)},
         }
         path.write_text(json.dumps(out, indent=1) + "\n")
         print(f"wrote {path}")

@@ -18,7 +18,8 @@ from rdkit import Chem
 from vibest.analysis.calibration import (error_statistics, fit_uniform, pooled, predicted_wavenumbers, prepare_case,
                                          reference_molecules, split_train_test)
 from vibest.analysis.harmonic import harmonic_analysis
-from vibest.analysis.scaling import (GEMINAL_COUPLING, PER_COORDINATE, REGION, UNIFORM, ScaleModel,
+from vibest.analysis.coordinate_types import CoordinateType, Family
+from vibest.analysis.scaling import (GEMINAL_COUPLING, PER_COORDINATE, REGION, UNIFORM, ForceConstantFactors, ScaleModel,
                                      default_scale_model, named_scale_model, uniform_scale_model)
 from vibest.analysis.symmetry import mode_symmetries, symmetry_operations
 from vibest.reference_records import reference_record
@@ -49,7 +50,7 @@ def _coordinate_types_of(smiles: str) -> set[str]:
     from vibest.analysis.scaling import coordinate_types
 
     rec, space = _record_and_space(smiles)
-    return set(coordinate_types(rec.numbers, rec.bonds, space.primitives))
+    return {t.name for t in coordinate_types(rec.numbers, rec.bonds, space.primitives)}
 
 
 # Functional groups the issue asks the set to cover (SMARTS; common practice, no source).
@@ -246,7 +247,8 @@ def test_per_coordinate_scaling_with_unit_factors_is_identity():
     case = prepare_case(ref, rec)
     from vibest.analysis.scaling import COUPLING_CLASSES
 
-    ones = ScaleModel(1.0, PER_COORDINATE, "test", {t: 1.0 for t in case.types} | {c: 1.0 for c in COUPLING_CLASSES})
+    ones = ScaleModel(1.0, PER_COORDINATE, "test",
+                      ForceConstantFactors({t: 1.0 for t in case.types}, {}, {c: 1.0 for c in COUPLING_CLASSES}))
     np.testing.assert_allclose(predicted_wavenumbers(case, ones),
                                case.modes.wavenumbers_cm1[list(case.assignment.modes)], atol=1e-6)
 
@@ -259,7 +261,8 @@ def test_geminal_coupling_moves_symmetric_and_antisymmetric_stretches_apart():
     case = prepare_case(ref, rec)
 
     def split(c):
-        m = ScaleModel(1.0, PER_COORDINATE, "t", {t: 1.0 for t in case.types} | {GEMINAL_COUPLING: c})
+        m = ScaleModel(1.0, PER_COORDINATE, "t", ForceConstantFactors({t: 1.0 for t in case.types}, {},
+                                                                       {GEMINAL_COUPLING: c}))
         w = predicted_wavenumbers(case, m)
         rows = [ref.descriptions[r] for r in case.assignment.rows]
         return w[rows.index("anti str")] - w[rows.index("sym str")]
@@ -292,48 +295,76 @@ def test_coupling_factors_bring_bands_closer():
     per-coordinate model with its coupling factors against the same factors with the coupling
     factors reset to 1 (plain Pulay scaling): lower MAD. (The held-out split is not pinned in
     tests; its figures are the fit script's report.)"""
-    from vibest.analysis.scaling import COUPLING_CLASSES
-
     shipped = named_scale_model(PER_COORDINATE)
+    fc = shipped.force_constants
     plain = ScaleModel(shipped.factor, PER_COORDINATE, "t",
-                       {k: (1.0 if k in COUPLING_CLASSES else v) for k, v in shipped.force_constant_factors.items()})
-    assert any(shipped.force_constant_factors.get(k, 1.0) < 0.9 for k in COUPLING_CLASSES)
+                       ForceConstantFactors(fc.types, fc.families, {k: 1.0 for k in fc.couplings}))
+    assert any(v < 0.9 for v in fc.couplings.values())
     train, _ = split_train_test(list(_cases()))
     mad = {name: error_statistics(*pooled(train, m))["mad_cm1"] for name, m in (("shipped", shipped), ("plain", plain))}
     assert mad["shipped"] < mad["plain"] - 1.0, mad
 
 
 def test_a_type_without_a_factor_of_its_own_takes_its_familys():
-    """Model logic (no source needed): own factor, else the family's, else the uniform factor squared."""
-    from vibest.analysis.scaling import FAMILY_CUMULATED, type_family
-
-    m = ScaleModel(0.99, PER_COORDINATE, "t", {"C=O stretch (cumulated)": 0.9, FAMILY_CUMULATED: 0.85})
-    assert type_family("N=N stretch (cumulated)") == type_family("C=O stretch (cumulated)") == FAMILY_CUMULATED
-    assert m.type_factor("C=O stretch (cumulated)") == 0.9
-    assert m.type_factor("N=N stretch (cumulated)") == 0.85
-    assert type_family("out-of-plane") is None
-    assert m.type_factor("out-of-plane") == pytest.approx(0.99 ** 2)
+    """Model logic (no source needed): own factor, else the family's, else the uniform factor squared;
+    a factor is found by name and family together."""
+    co2_stretch = CoordinateType("C=O stretch (cumulated)", Family.CUMULATED)
+    nn_stretch = CoordinateType("N=N stretch (cumulated)", Family.CUMULATED)
+    m = ScaleModel(0.99, PER_COORDINATE, "t", ForceConstantFactors({co2_stretch: 0.9}, {Family.CUMULATED: 0.85}))
+    assert m.type_factor(co2_stretch) == 0.9
+    assert m.type_factor(nn_stretch) == 0.85
+    assert m.type_factor(CoordinateType("out-of-plane")) == pytest.approx(0.99 ** 2)
+    assert m.type_factor(CoordinateType("C=O stretch (cumulated)", Family.DOUBLE)) == pytest.approx(0.99 ** 2)
 
 
 def test_every_coordinate_type_of_the_reference_set_has_the_expected_family():
-    """The family of each type follows its name (chemistry of the bond kinds: common practice, no source)."""
-    from vibest.analysis import scaling as sc
-
-    expected = {"C-H stretch (sp3)": sc.FAMILY_C_H, "C-H stretch (aldehyde)": sc.FAMILY_C_H,
-                "O-H stretch": sc.FAMILY_POLAR_H, "N-H stretch": sc.FAMILY_POLAR_H,
-                "C-Cl stretch (2+ halogens on C)": sc.FAMILY_HALOGEN, "C-Br stretch (one halogen on C)": sc.FAMILY_HALOGEN,
-                "C-I stretch (one halogen on C)": sc.FAMILY_HALOGEN, "X-halogen stretch": sc.FAMILY_HALOGEN,
-                "C#N stretch": sc.FAMILY_TRIPLE, "C#C stretch": sc.FAMILY_TRIPLE,
-                "C=O stretch (cumulated)": sc.FAMILY_CUMULATED, "N=N stretch (cumulated)": sc.FAMILY_CUMULATED,
-                "C=C stretch": sc.FAMILY_DOUBLE, "C:C stretch": sc.FAMILY_DOUBLE, "C=O stretch": sc.FAMILY_DOUBLE,
-                "C-C stretch": sc.FAMILY_SINGLE, "C-O stretch": sc.FAMILY_SINGLE,
-                "H-C-H bend": sc.FAMILY_BEND_H, "H-O-X bend": sc.FAMILY_BEND_H,
-                "torsion": sc.FAMILY_TORSION, "torsion (H)": sc.FAMILY_TORSION,
+    """The family of each type follows the kind of bond or angle (chemistry of the bond kinds:
+    common practice, no source); set where the type is made, not parsed from its name."""
+    expected = {"C-H stretch (sp3)": Family.C_H, "C-H stretch (aldehyde)": Family.C_H,
+                "O-H stretch": Family.POLAR_H, "N-H stretch": Family.POLAR_H,
+                "C-Cl stretch (2+ halogens on C)": Family.HALOGEN, "C-Br stretch (one halogen on C)": Family.HALOGEN,
+                "C-I stretch (one halogen on C)": Family.HALOGEN, "X-halogen stretch": Family.HALOGEN,
+                "C#N stretch": Family.TRIPLE, "C#C stretch": Family.TRIPLE,
+                "C=O stretch (cumulated)": Family.CUMULATED, "N=N stretch (cumulated)": Family.CUMULATED,
+                "C=C stretch": Family.DOUBLE, "C:C stretch": Family.DOUBLE, "C=O stretch": Family.DOUBLE,
+                "C-C stretch": Family.SINGLE, "C-O stretch": Family.SINGLE,
+                "H-C-H bend": Family.BEND_H, "H-O-X bend": Family.BEND_H,
+                "torsion": Family.TORSION, "torsion (H)": Family.TORSION,
                 "bend": None, "bend (halogen end)": None, "linear bend": None, "heavy-atom-H stretch": None}
-    types = {t for c in _cases() for t in c.types}
-    assert set(expected) <= types
-    for t, family in expected.items():
-        assert sc.type_family(t) == family, t
+    family_of = {t.name: t.family for c in _cases() for t in c.types}
+    assert set(expected) <= set(family_of)
+    assert {name: family_of[name] for name in expected} == expected
+
+
+@pytest.mark.parametrize("method", ["GFN2-xTB", "B3LYP-D3(BJ)/6-31G(d)"])
+def test_every_shipped_type_factor_is_still_made_with_its_family(method):
+    """The fitted factors are keyed by name and family: a type renamed or moved to another family
+    in vibest/analysis/coordinate_types.py would silently lose its factor. Every type of the shipped
+    file must still be made, with the same family, from the reference molecules it was fitted on
+    (types depend on atoms and bonds only, so the GFN2-xTB records serve for both methods)."""
+    made = {t for c in _cases() for t in c.types}
+    shipped = set(named_scale_model(PER_COORDINATE, method).force_constants.types)
+    assert shipped and shipped <= made, sorted(str(t) for t in shipped - made)
+
+
+def test_force_constant_factors_survive_the_file_layout_and_a_wrong_layout_is_refused():
+    """Round trip through the JSON layout; an unknown family, unknown coupling class or another
+    layout version is refused with the file named (no silent half-read model)."""
+    from vibest.analysis.scaling import SCALE_FILE_FORMAT, parse_scale_file
+    from vibest.errors import InputError
+
+    fc = named_scale_model(PER_COORDINATE).force_constants
+    assert ForceConstantFactors.from_json(json.loads(json.dumps(fc.to_json())), "x") == fc
+    broken = fc.to_json()
+    broken["type_factors"][0]["family"] = "no such family"
+    with pytest.raises(InputError, match="x: unreadable"):
+        ForceConstantFactors.from_json(broken, "x")
+    with pytest.raises(InputError, match="unknown coupling"):
+        ForceConstantFactors.from_json({**fc.to_json(), "coupling_factors": {"bend/bend": 0.9}}, "x")
+    with pytest.raises(InputError, match="layout version 1"):
+        parse_scale_file(json.dumps({"format_version": 1}), "old.json")
+    assert parse_scale_file(json.dumps({"format_version": SCALE_FILE_FORMAT}), "new.json") == \
+        {"format_version": SCALE_FILE_FORMAT}
 
 
 @pytest.mark.parametrize("smiles,expected", [
@@ -354,7 +385,7 @@ def test_family_factors_move_held_out_bands_of_unseen_types_towards_experiment()
     factor squared that such types fell back to before."""
     shipped = default_scale_model()
     fallback = ScaleModel(shipped.factor, PER_COORDINATE, "t",
-                          {k: v for k, v in shipped.force_constant_factors.items() if not k.startswith("family:")})
+                          ForceConstantFactors(shipped.force_constants.types, {}, shipped.force_constants.couplings))
     train, test = split_train_test(list(_cases()))
     assert {"nitrous oxide", "hydrogen fluoride"} <= {c.reference.name for c in test}  # types unseen in training
     for name, target in (("nitrous oxide", 2224.0), ("hydrogen fluoride", 3962.0)):
@@ -443,4 +474,4 @@ def test_shipped_b3lyp_uniform_factor_is_near_the_published_one():
     b3lyp = "B3LYP-D3(BJ)/6-31G(d)"
     assert uniform_scale_model(b3lyp).factor == pytest.approx(0.9614, abs=0.01)
     assert abs(uniform_scale_model().factor - 0.9614) > 0.01
-    assert default_scale_model(b3lyp).force_constant_factors != default_scale_model().force_constant_factors
+    assert default_scale_model(b3lyp).force_constants != default_scale_model().force_constants

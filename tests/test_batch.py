@@ -83,7 +83,7 @@ def test_worker_death_is_reported_for_that_molecule_only():
                 procs = list(pool._procs)
             if procs:
                 time.sleep(1.5)  # inside the first (slow) job
-                procs[0].kill()
+                procs[0].kill(wait=False)  # a signal, as the OOM killer sends
                 return
             time.sleep(0.05)
 

@@ -242,3 +242,26 @@ def test_condensed_phase_moves_only_carbonyl_stretches():
     liquid = _synthetic_measured(pred, 1.0, shift=-20.0)  # no ##STATE: condensed
     assert any("condensed phase" in n for n in compare(pred, liquid, fit_shift=False).notes)
     assert not any("condensed" in n for n in compare(pred, liquid, fit_shift=False, gas_phase=True).notes)
+
+
+def test_comparison_options_one_object_for_api_ranking_and_verdict():
+    """Model logic (no source needed): an options object and keyword changes on top give the same
+    comparison as the keywords alone; a ranking keeps the options it was scored with; an unknown
+    or unusable option is an InputError, not a TypeError deep inside."""
+    from vibest.comparison import ComparisonOptions
+    from vibest.errors import InputError
+
+    pred = prediction_of("CC(C)=O")
+    measured = _synthetic_measured(pred, 0.98, shift=5.0)
+    opts = ComparisonOptions(fit_scale=True, condensed_shifts=False)
+    a = compare(pred, measured, opts, score_name="pearson")
+    b = compare(pred, measured, fit_scale=True, condensed_shifts=False, score_name="pearson")
+    assert (a.score, a.extra_scale, a.shift_cm1) == (b.score, b.extra_scale, b.shift_cm1)
+    assert a.score_name == "pearson" and a.score > compare(pred, measured, condensed_shifts=False,
+                                                             score_name="pearson").score
+    ranking = rank_candidates(measured, [Candidate("acetone", "CC(C)=O"), Candidate("water", "O")], options=opts)
+    assert ranking.options == opts and ranking.entries[0].comparison.extra_scale == pytest.approx(a.extra_scale)
+    with pytest.raises(InputError, match="unknown comparison option"):
+        compare(pred, measured, fit_scael=True)
+    with pytest.raises(InputError, match="intensity power"):
+        compare(pred, measured, opts, intensity_power=5.0)

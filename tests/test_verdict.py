@@ -76,13 +76,13 @@ def test_margin_within_noise_poor_fit_and_low_confidence_on_constructed_cases():
     # two candidates of the same structure: a margin of zero is within any noise
     twice = rank_candidates(measured, [Candidate("a", "C=O"), Candidate("b", "O=C")], condensed_shifts=False)
     model = ConfidenceModel(0.0, 1.0, 1.0, 0.0, {"score": "regional"}, poor_fit_score=1.5, cross_validated_ece=0.0)
-    kinds = {f.kind for f in assess(twice, {"condensed_shifts": False}, "GFN2-xTB", 16.0, model).flags}
+    kinds = {f.kind for f in assess(twice, "GFN2-xTB", 16.0, model).flags}
     assert MARGIN_IN_NOISE in kinds and POOR_FIT in kinds  # every score is below 1.5
     low = ConfidenceModel(-10.0, 1.0, 1.0, 0.0, {"score": "regional"}, poor_fit_score=0.0, cross_validated_ece=0.0)
-    result = assess(twice, {"condensed_shifts": False}, "GFN2-xTB", 16.0, low)
+    result = assess(twice, "GFN2-xTB", 16.0, low)
     assert result.confidence < 0.01 and LOW in {f.kind for f in result.flags}
     # another setting than the model's: no confidence, and says why
-    other = assess(twice, {"condensed_shifts": False}, "GFN2-xTB", 16.0,
+    other = assess(twice, "GFN2-xTB", 16.0,
                    dataclasses.replace(low, settings={"score": "pearson"}))
     assert other.confidence is None and "score" in other.note
 
@@ -91,7 +91,7 @@ def test_a_clear_case_has_no_flags():
     water = prediction_of("O")
     ranking = rank_candidates(_synthetic(water), [Candidate("water", "O"), Candidate("formaldehyde", "C=O")])
     model = ConfidenceModel(-1.0, 1.0, 5.0, 0.0, {"score": "regional"}, poor_fit_score=0.5, cross_validated_ece=0.0)
-    result = assess(ranking, {}, "GFN2-xTB", 16.0, model)
+    result = assess(ranking, "GFN2-xTB", 16.0, model)
     assert result.flags == () and result.confidence > 0.9 and result.sure
 
 

@@ -20,7 +20,8 @@ _LAZY = {"predict": "pipeline", "analyse": "pipeline", "compute_record": "pipeli
          "CAUTION": "pipeline", "isotopologue": "pipeline", "prediction_thermochemistry": "pipeline",
          "HessianRecord": "calculation.record", "calculation_options": "calculation.driver",
          "check_structure": "verdict", "make_decoys": "decoys",
-         "compare": "comparison", "rank_candidates": "ranking", "load_spectrum": "measured",
+         "compare": "comparison", "ComparisonOptions": "comparison", "rank_candidates": "ranking",
+         "load_spectrum": "measured",
          "predict_many": "batch", "RecordStore": "store"}
 
 __all__ = [*_LAZY, "InputError", "CalculationError", "VibestError", "__version__"]

@@ -22,8 +22,10 @@ import click
 
 from . import __version__
 from .analysis.scaling import SCALE_MODELS
+from .calculation.methods import DEFAULT_METHOD
 from .errors import CalculationError, InputError, VibestError
 from .spectrum import DEFAULT_FWHM_CM1, LINE_SHAPES
+from .structure import DEFAULT_SEED
 
 
 class ProgressLine:
@@ -134,10 +136,10 @@ def calculation_options(f):
         return f(*args, **kwargs)
 
     for opt in reversed([
-        click.option("--method", default="gfn2", show_default=True, metavar="METHOD",
+        click.option("--method", default=DEFAULT_METHOD, show_default=True, metavar="METHOD",
                      help="Level of theory: gfn2, gfn1, b3lyp (DFT: minutes), or positions+intensities such as "
                           "gfn2+b3lyp (list: vibest methods)."),
-        click.option("--seed", type=int, default=0xB1B, show_default=True, help="3D embedding seed."),
+        click.option("--seed", type=int, default=DEFAULT_SEED, show_default=True, help="3D embedding seed."),
         click.option("--workers", type=click.IntRange(min=1), default=None,
                      help="Parallel workers for the Hessian, or DFT threads [all cores]."),
         click.option("--largest-fragment", is_flag=True, help="For salts/mixtures, keep only the largest fragment."),
@@ -168,15 +170,15 @@ def spectrum_options(f):
 
 
 def comparison_options(f):
-    from .comparison import (DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER, DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_MAX_SHIFT_CM1,
-                          DEFAULT_SCORE, SCORES)
+    from .comparison import (DEFAULT_COMPARE_RANGE_CM1, DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER,
+                             DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_MAX_SHIFT_CM1, DEFAULT_SCORE, SCORES)
 
     for opt in reversed([
         click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
                      help="What the measured Y values are (CSV); default: from the file's units, else guessed."),
         click.option("--block", type=click.IntRange(min=1), default=None, help="Spectrum number in a multi-block JCAMP-DX file."),
         click.option("--score", "score_name", type=click.Choice(SCORES), default=DEFAULT_SCORE, show_default=True),
-        click.option("--compare-range", type=(float, float), default=(500.0, 3800.0), show_default=True,
+        click.option("--compare-range", type=(float, float), default=DEFAULT_COMPARE_RANGE_CM1, show_default=True,
                      metavar="LOW HIGH", help="Wavenumber range compared, cm^-1."),
         click.option("--fit-scale", is_flag=True, help="Fit an extra scale factor (0.95-1.05) that maximises the score."),
         click.option("--fit-shift/--no-fit-shift", default=DEFAULT_FIT_SHIFT, show_default=True,
@@ -210,16 +212,17 @@ def _phase(choice: str):
     return {"auto": None, "gas": True, "condensed": False}[choice]
 
 
-def _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power) -> dict:
-    """Keyword arguments of vibest.comparison.compare from the comparison options (checked)."""
-    from .comparison import check_range
+def _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
+                intensity_power):
+    """The vibest.comparison.ComparisonOptions of the comparison options (checked)."""
+    from .comparison import check_range, comparison_options
 
     check_range(compare_range)
     if tolerance <= 0:
         raise InputError(f"--tolerance {tolerance:g}: the peak-match tolerance must be positive (cm^-1)")
-    return {"range_cm1": tuple(compare_range), "fit_scale": fit_scale, "fit_shift": fit_shift,
-            "shift_bounds_cm1": (-max_shift, max_shift), "baseline": baseline, "tolerance_cm1": tolerance,
-            "gas_phase": _phase(phase), "intensity_power": intensity_power}
+    return comparison_options(score_name=score_name, range_cm1=tuple(compare_range), fit_scale=fit_scale,
+                              fit_shift=fit_shift, shift_bounds_cm1=(-max_shift, max_shift), baseline=baseline,
+                              tolerance_cm1=tolerance, gas_phase=_phase(phase), intensity_power=intensity_power)
 
 
 def _store(path, disabled: bool):
@@ -228,7 +231,7 @@ def _store(path, disabled: bool):
     return None if disabled else RecordStore(path)
 
 
-def _calc_options(method="gfn2", seed=0xB1B, workers=None, largest_fragment=False, backend="tblite", solvent=None,
+def _calc_options(method=DEFAULT_METHOD, seed=DEFAULT_SEED, workers=None, largest_fragment=False, backend="tblite", solvent=None,
                   solvent_model="alpb", memory=4000, force=False):
     from .calculation.driver import calculation_options as build
 
@@ -452,13 +455,14 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--plot": plot_path, "--json": json_path})
-        kw = _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power)
+        copts = _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
+                            intensity_power)
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
         pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
         progress.finish()
-        comp = compare(pred, spec, score_name=score_name, **kw)
+        comp = compare(pred, spec, copts)
         for note in spec.notes:
             click.echo(f"# note: {note}")
         click.echo(output.comparison_summary(comp))
@@ -522,16 +526,17 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         def report(done, total, name):
             progress("candidates", done, total, f"{done}/{total} {name}")
 
-        kw = _compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase, intensity_power)
+        copts = _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
+                            intensity_power)
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts, store=_store(store_path, no_store),
-                                  score_name=score_name, progress=report, refine=refine, refine_calc=refine_calc,
-                                  refine_progress=progress, **kw)
+                                  options=copts, progress=report, refine=refine, refine_calc=refine_calc,
+                                  refine_progress=progress)
         progress.finish()
         if not any(e.comparison is not None for e in ranking.entries):
             reasons = "; ".join(f"{e.candidate.name}: {e.error}" for e in ranking.entries[:3])
             raise InputError(f"no candidate could be ranked ({reasons}"
                              + (" ..." if len(ranking.entries) > 3 else "") + ")")
-        assessment = assess(ranking, kw, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
+        assessment = assess(ranking, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
         click.echo(output.ranking_table(ranking, assessment))
         items = [("--csv", csv_path, lambda: ranking.write_csv(csv_path)),
                  ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
@@ -585,9 +590,9 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
             progress("candidates", done, total, f"{done}/{total} {label}")
 
         verdict = check_structure(spec, smiles, name=name, decoys=decoys, candidates=extra, calc=calc, spec=sopts,
-                                  store=_store(store_path, no_store), progress=report, score_name=score_name,
-                                  **_compare_kw(compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance,
-                                                phase, intensity_power))
+                                  store=_store(store_path, no_store), progress=report,
+                                  options=_comparison(score_name, compare_range, fit_scale, fit_shift, max_shift,
+                                                      baseline, tolerance, phase, intensity_power))
         progress.finish()
         click.echo(output.verdict_report(verdict))
         mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)

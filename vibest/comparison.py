@@ -274,16 +274,205 @@ def check_range(range_cm1) -> None:
         raise InputError(f"comparison range {lo:g}-{hi:g} cm^-1 must lie within 0-10000 cm^-1")
 
 
-def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = DEFAULT_SCORE,
-            range_cm1: tuple[float, float] = DEFAULT_COMPARE_RANGE_CM1, step_cm1: float = DEFAULT_COMPARE_STEP_CM1,
-            fit_scale: bool = False, scale_bounds: tuple[float, float] = (0.95, 1.05),
-            fit_shift: bool = DEFAULT_FIT_SHIFT,
-            shift_bounds_cm1: tuple[float, float] = (-DEFAULT_MAX_SHIFT_CM1, DEFAULT_MAX_SHIFT_CM1),
-            fwhm_cm1: float | None = None, line_shape: str | None = None, baseline: bool = False,
-            tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1, prominence: float = 0.03,
-            gas_phase: bool | None = None, condensed_shifts: bool = True, smooth_measured_cm1: float = 0.0,
-            intensity_power: float = DEFAULT_INTENSITY_POWER) -> Comparison:
+@dataclass(frozen=True)
+class ComparisonOptions:
+    """How a prediction is compared with a measured spectrum (one object for the API, the CLI,
+    rankings and verdicts).
+
+    Attributes:
+        score_name: similarity to report and fit by (:data:`SCORES`).
+        range_cm1, step_cm1: compared range and grid step (cm^-1).
+        fit_scale, scale_bounds: fit an extra factor on the predicted wavenumbers within bounds.
+        fit_shift, shift_bounds_cm1: fit a common shift (cm^-1) within bounds (default +-20).
+        fwhm_cm1, line_shape: band width (cm^-1) and shape; None: the prediction's own.
+        baseline: subtract a fitted baseline from the measured curve.
+        tolerance_cm1, prominence: peak matching (largest |shift|, cm^-1) and picking (fraction of
+            the maximum).
+        gas_phase: rotational contours for a gas sample (None: when the measured file says gas).
+        condensed_shifts: in a condensed phase, move bands with a known shift (:mod:`vibest.condensed_phase`).
+        smooth_measured_cm1: Gaussian smoothing (FWHM, cm^-1) of the measured curve; 0: none.
+        intensity_power: both normalised curves are compared as y**p (0.1-2).
+    """
+
+    score_name: str = DEFAULT_SCORE
+    range_cm1: tuple[float, float] = DEFAULT_COMPARE_RANGE_CM1
+    step_cm1: float = DEFAULT_COMPARE_STEP_CM1
+    fit_scale: bool = False
+    scale_bounds: tuple[float, float] = (0.95, 1.05)
+    fit_shift: bool = DEFAULT_FIT_SHIFT
+    shift_bounds_cm1: tuple[float, float] = (-DEFAULT_MAX_SHIFT_CM1, DEFAULT_MAX_SHIFT_CM1)
+    fwhm_cm1: float | None = None
+    line_shape: str | None = None
+    baseline: bool = False
+    tolerance_cm1: float = DEFAULT_MATCH_TOLERANCE_CM1
+    prominence: float = 0.03
+    gas_phase: bool | None = None
+    condensed_shifts: bool = True
+    smooth_measured_cm1: float = 0.0
+    intensity_power: float = DEFAULT_INTENSITY_POWER
+
+    def checked(self) -> "ComparisonOptions":
+        """These options, or an InputError naming the first unusable one."""
+        if self.score_name not in SCORES:
+            raise InputError(f"unknown score {self.score_name!r}; choose one of {', '.join(SCORES)}")
+        check_range(self.range_cm1)
+        if not (0.1 <= self.intensity_power <= 2.0):
+            raise InputError(f"intensity power {self.intensity_power} must be between 0.1 and 2")
+        if self.tolerance_cm1 <= 0:
+            raise InputError(f"peak-match tolerance {self.tolerance_cm1:g} cm^-1 must be positive")
+        return self
+
+    @property
+    def max_shift_cm1(self) -> float:
+        return float(max(abs(b) for b in self.shift_bounds_cm1))
+
+
+def comparison_options(options: ComparisonOptions | None = None, **changes) -> ComparisonOptions:
+    """``options`` (default: :class:`ComparisonOptions`()) with ``changes`` applied, checked; an
+    unknown option name is an InputError."""
+    import dataclasses
+
+    base = options or ComparisonOptions()
+    unknown = set(changes) - {f.name for f in dataclasses.fields(ComparisonOptions)}
+    if unknown:
+        raise InputError(f"unknown comparison option(s) {', '.join(sorted(unknown))}")
+    return dataclasses.replace(base, **changes).checked() if changes else base.checked()
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    """Stage 1 of a comparison: both sides ready on one grid."""
+
+    range_cm1: tuple[float, float]  # the compared range: the requested one within the measured one
+    grid_cm1: np.ndarray
+    measured_linear: np.ndarray  # normalised measured absorbance
+    measured_curve: np.ndarray  # measured_linear ** intensity_power
+    fwhm_cm1: float
+    line_shape: str
+    gas_phase: bool
+    contour: tuple | None
+    band_shifts_cm1: np.ndarray | None
+    coverage: float
+    notes: tuple[str, ...]
+
+
+def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOptions) -> _Prepared:
+    """Stage 1: the compared range (requested range within the measured one), the measured curve
+    on the grid, the band width and shape, and the phase treatment of the predicted bands."""
+    lo, hi = opts.range_cm1
+    mlo, mhi = measured.range_cm1
+    lo, hi = max(lo, mlo), min(hi, mhi)
+    if hi - lo < MIN_COMPARE_WIDTH_CM1:
+        raise InputError(f"{measured.source}: the measured range {mlo:.0f}-{mhi:.0f} cm^-1 overlaps the comparison "
+                         f"range {opts.range_cm1[0]:.0f}-{opts.range_cm1[1]:.0f} cm^-1 by less than "
+                         f"{MIN_COMPARE_WIDTH_CM1:.0f} cm^-1")
+    coverage = (hi - lo) / (opts.range_cm1[1] - opts.range_cm1[0])
+    notes = []
+    if coverage < 0.9:
+        notes.append(f"the measured data cover {lo:.0f}-{hi:.0f} cm^-1, {coverage:.0%} of the compared "
+                     f"{opts.range_cm1[0]:.0f}-{opts.range_cm1[1]:.0f} cm^-1: bands outside are not judged")
+    gas_phase = measured.phase == "gas" if opts.gas_phase is None else opts.gas_phase
+    g = grid(lo, hi, opts.step_cm1)
+    m_linear = preprocess(measured, g, baseline=opts.baseline)
+    if opts.smooth_measured_cm1 > 0:
+        m_linear = smooth(m_linear, opts.step_cm1, opts.smooth_measured_cm1)
+    contour = band_shifts = None
+    if gas_phase:
+        from .gas_phase import band_contour_inputs
+
+        contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
+    elif opts.condensed_shifts:
+        from .condensed_phase import CARBONYL_SHIFT_CM1, condensed_band_shifts
+
+        band_shifts = condensed_band_shifts(pred)
+        if np.any(band_shifts):
+            notes.append(f"condensed phase: predicted C=O stretches moved {CARBONYL_SHIFT_CM1:+.0f} cm^-1 "
+                         "(vibest.condensed_phase)")
+    return _Prepared((lo, hi), g, m_linear, m_linear ** opts.intensity_power, opts.fwhm_cm1 or pred.spectrum.fwhm_cm1,
+                     opts.line_shape or pred.spectrum.line_shape, gas_phase, contour, band_shifts, coverage,
+                     tuple(notes))
+
+
+class _AlignedCurve:
+    """The normalised predicted absorbance on the prepared grid after nu -> f nu + s. A pure
+    shift translates the broadened curve, so it is computed once on a padded grid and moved."""
+
+    def __init__(self, pred: Prediction, prep: _Prepared, opts: ComparisonOptions):
+        self.pred, self.prep = pred, prep
+        self.shifted_base = None
+        if opts.fit_shift and not opts.fit_scale:
+            step = opts.step_cm1
+            pad = opts.max_shift_cm1 + 2 * step
+            padded = grid(prep.grid_cm1[0] - pad, prep.grid_cm1[-1] + pad, step)
+            self.shifted_base = (padded, self._broadened(padded, 1.0, 0.0))
+
+    def _broadened(self, g, f: float, s: float) -> np.ndarray:
+        p = self.prep
+        return predicted_curve(self.pred, g, f, s, p.fwhm_cm1, p.line_shape, p.gas_phase, contour=p.contour,
+                               band_shifts_cm1=p.band_shifts_cm1)
+
+    def __call__(self, f: float, s: float) -> np.ndarray:
+        g = self.prep.grid_cm1
+        if self.shifted_base is not None and f == 1.0:
+            y = np.interp(g - s, *self.shifted_base)
+            top = y.max()
+            return y / top if top > 0 else y
+        return self._broadened(g, f, s)
+
+
+def fit_alignment(curve: _AlignedCurve, opts: ComparisonOptions) -> tuple[float, float]:
+    """Stage 2: (extra scale, shift in cm^-1) that maximise the score within the bounds: a coarse
+    grid, then a bounded refinement (scipy.optimize.minimize_scalar, or Powell for both);
+    (1, 0) when neither is fitted."""
+    prep = curve.prep
+
+    def value(f, s):
+        return score(prep.measured_curve, curve(f, s) ** opts.intensity_power, opts.score_name, prep.grid_cm1)
+
+    if opts.fit_scale and opts.fit_shift:
+        fs = np.linspace(*opts.scale_bounds, 11)
+        ss = np.linspace(*opts.shift_bounds_cm1, 9)
+        vals = np.array([[value(f, s) for s in ss] for f in fs])
+        i, j = np.unravel_index(np.argmax(vals), vals.shape)
+        res = optimize.minimize(lambda p: -value(p[0], p[1]), x0=[fs[i], ss[j]], method="Powell",
+                                bounds=[opts.scale_bounds, opts.shift_bounds_cm1], options={"xtol": 1e-4, "ftol": 1e-6})
+        return (float(res.x[0]), float(res.x[1])) if -res.fun >= vals[i, j] else (fs[i], ss[j])
+    if not (opts.fit_scale or opts.fit_shift):
+        return 1.0, 0.0
+    bounds = opts.scale_bounds if opts.fit_scale else opts.shift_bounds_cm1
+    pts = np.linspace(*bounds, 41)
+    fun = (lambda v: value(v, 0.0)) if opts.fit_scale else (lambda v: value(1.0, v))
+    vals = [fun(v) for v in pts]
+    k = int(np.argmax(vals))
+    a, b = pts[max(k - 1, 0)], pts[min(k + 1, len(pts) - 1)]
+    res = optimize.minimize_scalar(lambda v: -fun(v), bounds=(a, b), method="bounded",
+                                   options={"xatol": 1e-5 if opts.fit_scale else 1e-2})
+    best = float(res.x) if -res.fun >= vals[k] else float(pts[k])
+    return (best, 0.0) if opts.fit_scale else (1.0, best)
+
+
+def peak_table(pred: Prediction, prep: _Prepared, predicted_linear: np.ndarray, extra_scale: float, shift_cm1: float,
+               opts: ComparisonOptions) -> tuple[PeakMatch, ...]:
+    """Stage 3: peaks of both curves matched one to one, each predicted peak with the character
+    of the band that makes most of it. Peaks are picked on the normalised absorbances themselves
+    (before the intensity power, which would lift noise to the prominence of real bands)."""
+    g = prep.grid_cm1
+    rows = []
+    for m, p in match_peaks(pick_peaks(g, prep.measured_linear, opts.prominence),
+                            pick_peaks(g, predicted_linear, opts.prominence), opts.tolerance_cm1):
+        char = _band_character(pred, p.wavenumber_cm1, extra_scale, shift_cm1, prep.fwhm_cm1, prep.line_shape) \
+            if p else ""
+        rows.append(PeakMatch(m.wavenumber_cm1 if m else None, m.height if m else None,
+                              p.wavenumber_cm1 if p else None, p.height if p else None, char))
+    return tuple(rows)
+
+
+def compare(pred: Prediction, measured: MeasuredSpectrum, options: ComparisonOptions | None = None,
+            **changes) -> Comparison:
     """Score a prediction against a measured spectrum, optionally fitting a scale factor and/or shift.
+
+    ``options`` (:class:`ComparisonOptions`; default settings when None), with any of its fields
+    given as keywords on top (``compare(pred, spec, fit_scale=True)``).
 
     ``gas_phase`` gives predicted bands rotational contours (for spectra of gases; None: when
     the measured file says the sample was a gas); otherwise the sample is taken as a condensed
@@ -295,105 +484,25 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, *, score_name: str = D
 
     By default a common shift of the predicted wavenumbers (within +-20 cm^-1) is fitted
     (:data:`DEFAULT_FIT_SHIFT`); ``fit_shift=False`` compares the prediction as it is.
-    The fit maximises the chosen score within the bounds: a coarse grid, then a bounded
-    refinement (scipy.optimize.minimize_scalar or Powell for both). The fitted values are
-    reported in the result; the prediction itself is not changed.
+    Three stages: :func:`prepare` (grid, measured curve, phase), :func:`fit_alignment` (scale
+    and/or shift maximising the score) and :func:`peak_table`. The fitted values are reported in
+    the result; the prediction itself is not changed.
     """
-    if score_name not in SCORES:
-        raise InputError(f"unknown score {score_name!r}; choose one of {', '.join(SCORES)}")
-    check_range(range_cm1)
-    lo, hi = range_cm1
-    mlo, mhi = measured.range_cm1
-    lo, hi = max(lo, mlo), min(hi, mhi)
-    if hi - lo < MIN_COMPARE_WIDTH_CM1:
-        raise InputError(f"{measured.source}: the measured range {mlo:.0f}-{mhi:.0f} cm^-1 overlaps the comparison "
-                         f"range {range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1 by less than {MIN_COMPARE_WIDTH_CM1:.0f} cm^-1")
-    coverage = (hi - lo) / (range_cm1[1] - range_cm1[0])
-    notes = []
-    if coverage < 0.9:
-        notes.append(f"the measured data cover {lo:.0f}-{hi:.0f} cm^-1, {coverage:.0%} of the compared "
-                     f"{range_cm1[0]:.0f}-{range_cm1[1]:.0f} cm^-1: bands outside are not judged")
-    if gas_phase is None:
-        gas_phase = measured.phase == "gas"
-    if not (0.1 <= intensity_power <= 2.0):
-        raise InputError(f"intensity power {intensity_power} must be between 0.1 and 2")
-    g = grid(lo, hi, step_cm1)
-    m_curve = preprocess(measured, g, baseline=baseline)
-    if smooth_measured_cm1 > 0:
-        m_curve = smooth(m_curve, step_cm1, smooth_measured_cm1)
-    m_linear, m_curve = m_curve, m_curve ** intensity_power
-    fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
-    shape = line_shape or pred.spectrum.line_shape
-    contour = None
-    band_shifts = None
-    if gas_phase:
-        from .gas_phase import band_contour_inputs
-
-        contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
-    elif condensed_shifts:
-        from .condensed_phase import CARBONYL_SHIFT_CM1, condensed_band_shifts
-
-        band_shifts = condensed_band_shifts(pred)
-        if np.any(band_shifts):
-            notes.append(f"condensed phase: predicted C=O stretches moved {CARBONYL_SHIFT_CM1:+.0f} cm^-1 "
-                         "(vibest.condensed_phase)")
-
-    shifted_base = None
-    if fit_shift and not fit_scale:
-        # a shift translates the broadened curve: compute it once on a padded grid and move it
-        pad = max(abs(b) for b in shift_bounds_cm1) + 2 * step_cm1
-        padded = grid(lo - pad, hi + pad, step_cm1)
-        shifted_base = (padded, predicted_curve(pred, padded, 1.0, 0.0, fwhm, shape, gas_phase, contour=contour,
-                                                band_shifts_cm1=band_shifts))
-
-    def linear_curve(f, s):
-        """Normalised predicted absorbance after nu -> f nu + s."""
-        if shifted_base is not None and f == 1.0:
-            y = np.interp(g - s, *shifted_base)
-            top = y.max()
-            return y / top if top > 0 else y
-        return predicted_curve(pred, g, f, s, fwhm, shape, gas_phase, contour=contour, band_shifts_cm1=band_shifts)
-
-    def value(f, s):
-        return score(m_curve, linear_curve(f, s) ** intensity_power, score_name, g)
-
-    f_best, s_best = 1.0, 0.0
-    if fit_scale and fit_shift:
-        fs = np.linspace(*scale_bounds, 11)
-        ss = np.linspace(*shift_bounds_cm1, 9)
-        vals = np.array([[value(f, s) for s in ss] for f in fs])
-        i, j = np.unravel_index(np.argmax(vals), vals.shape)
-        res = optimize.minimize(lambda p: -value(p[0], p[1]), x0=[fs[i], ss[j]], method="Powell",
-                                bounds=[scale_bounds, shift_bounds_cm1], options={"xtol": 1e-4, "ftol": 1e-6})
-        f_best, s_best = (float(res.x[0]), float(res.x[1])) if -res.fun >= vals[i, j] else (fs[i], ss[j])
-    elif fit_scale or fit_shift:
-        bounds = scale_bounds if fit_scale else shift_bounds_cm1
-        pts = np.linspace(*bounds, 41)
-        fun = (lambda v: value(v, 0.0)) if fit_scale else (lambda v: value(1.0, v))
-        vals = [fun(v) for v in pts]
-        k = int(np.argmax(vals))
-        a, b = pts[max(k - 1, 0)], pts[min(k + 1, len(pts) - 1)]
-        res = optimize.minimize_scalar(lambda v: -fun(v), bounds=(a, b), method="bounded",
-                                       options={"xatol": 1e-5 if fit_scale else 1e-2})
-        best = float(res.x) if -res.fun >= vals[k] else float(pts[k])
-        f_best, s_best = (best, 0.0) if fit_scale else (1.0, best)
-    p_linear = linear_curve(f_best, s_best)
-    p_curve = p_linear ** intensity_power
-    # peaks are picked on the normalised absorbances themselves (before the intensity power,
-    # which would lift noise to the prominence of real bands)
-    m_peaks = pick_peaks(g, m_linear, prominence)
-    p_peaks = pick_peaks(g, p_linear, prominence)
-    rows = []
-    for m, p in match_peaks(m_peaks, p_peaks, tolerance_cm1):
-        char = _band_character(pred, p.wavenumber_cm1, f_best, s_best, fwhm, shape) if p else ""
-        rows.append(PeakMatch(m.wavenumber_cm1 if m else None, m.height if m else None,
-                              p.wavenumber_cm1 if p else None, p.height if p else None, char))
-    scores = all_scores(m_curve, p_curve, g)
-    settings = {"range_cm1": [lo, hi], "step_cm1": step_cm1, "fwhm_cm1": fwhm, "line_shape": shape,
-                "baseline": baseline, "fit_scale": fit_scale, "fit_shift": fit_shift,
-                "tolerance_cm1": tolerance_cm1, "prominence": prominence, "gas_phase": gas_phase,
-                "condensed_shifts": bool(band_shifts is not None and np.any(band_shifts)),
-                "smooth_measured_cm1": smooth_measured_cm1, "intensity_power": intensity_power,
-                "coverage": coverage}
-    return Comparison(pred.smiles, score_name, scores[score_name], scores, f_best, s_best, g, m_curve, p_curve,
-                      tuple(rows), settings, tuple(notes))
+    opts = comparison_options(options, **changes)
+    prep = prepare(pred, measured, opts)
+    curve = _AlignedCurve(pred, prep, opts)
+    f_best, s_best = fit_alignment(curve, opts)
+    p_linear = curve(f_best, s_best)
+    p_curve = p_linear ** opts.intensity_power
+    scores = all_scores(prep.measured_curve, p_curve, prep.grid_cm1)
+    g = prep.grid_cm1
+    settings = {"range_cm1": list(prep.range_cm1), "step_cm1": opts.step_cm1, "fwhm_cm1": prep.fwhm_cm1,
+                "line_shape": prep.line_shape, "baseline": opts.baseline, "fit_scale": opts.fit_scale,
+                "fit_shift": opts.fit_shift, "tolerance_cm1": opts.tolerance_cm1, "prominence": opts.prominence,
+                "gas_phase": prep.gas_phase,
+                "condensed_shifts": bool(prep.band_shifts_cm1 is not None and np.any(prep.band_shifts_cm1)),
+                "smooth_measured_cm1": opts.smooth_measured_cm1, "intensity_power": opts.intensity_power,
+                "coverage": prep.coverage}
+    return Comparison(pred.smiles, opts.score_name, scores[opts.score_name], scores, f_best, s_best, g,
+                      prep.measured_curve, p_curve, peak_table(pred, prep, p_linear, f_best, s_best, opts),
+                      settings, prep.notes)

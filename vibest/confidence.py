@@ -165,20 +165,20 @@ PERTURBATIONS: tuple[tuple[str, dict], ...] = (
 )
 
 
-def margin_noise(measured, first, second, compare_options: dict) -> tuple[float, list[str]]:
+def margin_noise(measured, first, second, options=None) -> tuple[float, list[str]]:
     """Spread (standard deviation) of the margin score(first) - score(second) under
-    :data:`PERTURBATIONS`, and the perturbations under which their order flips."""
-    from .comparison import compare
+    :data:`PERTURBATIONS` of ``options`` (a :class:`vibest.comparison.ComparisonOptions`; None:
+    the defaults), and the perturbations under which their order flips."""
+    from .comparison import compare, comparison_options
 
     margins, flips = [], []
     for name, change in PERTURBATIONS:
-        opts = dict(compare_options)
         spectrum = measured
         if "noise" in change:
-            spectrum = _noisy(measured, change["noise"])
+            spectrum, opts = _noisy(measured, change["noise"]), comparison_options(options)
         else:
-            opts.update(change)
-        m = compare(first, spectrum, **opts).score - compare(second, spectrum, **opts).score
+            opts = comparison_options(options, **change)
+        m = compare(first, spectrum, opts).score - compare(second, spectrum, opts).score
         margins.append(m)
         if m < 0:
             flips.append(name)
@@ -216,31 +216,24 @@ class Assessment:
                 "low_confidence_below": LOW_CONFIDENCE}
 
 
-def comparison_settings(method_name: str, score_name: str, compare_options: dict, fwhm_cm1: float) -> dict:
-    """The settings a confidence model is checked against (keys of ConfidenceModel.settings)."""
-    from .comparison import (DEFAULT_COMPARE_RANGE_CM1, DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER,
-                             DEFAULT_MAX_SHIFT_CM1)
-
-    bounds = compare_options.get("shift_bounds_cm1", (-DEFAULT_MAX_SHIFT_CM1, DEFAULT_MAX_SHIFT_CM1))
-    return {"score": score_name, "method": method_name,
-            "fit_shift": bool(compare_options.get("fit_shift", DEFAULT_FIT_SHIFT)),
-            "max_shift_cm1": float(max(abs(b) for b in bounds)),
-            "intensity_power": float(compare_options.get("intensity_power", DEFAULT_INTENSITY_POWER)),
-            "fwhm_cm1": float(compare_options.get("fwhm_cm1") or fwhm_cm1),
-            "range_cm1": [float(v) for v in compare_options.get("range_cm1", DEFAULT_COMPARE_RANGE_CM1)]}
+def comparison_settings(method_name: str, options, fwhm_cm1: float) -> dict:
+    """The settings a confidence model is checked against (keys of ConfidenceModel.settings), from
+    the :class:`vibest.comparison.ComparisonOptions` used and the prediction's band width (cm^-1)."""
+    return {"score": options.score_name, "method": method_name, "fit_shift": bool(options.fit_shift),
+            "max_shift_cm1": options.max_shift_cm1, "intensity_power": float(options.intensity_power),
+            "fwhm_cm1": float(options.fwhm_cm1 or fwhm_cm1), "range_cm1": [float(v) for v in options.range_cm1]}
 
 
-def assess(ranking, compare_options: dict, method_name: str, fwhm_cm1: float,
-           model: ConfidenceModel | None = None) -> Assessment:
-    """Confidence and flags of a ranking (see the module docstring). ``compare_options`` are those
-    the ranking was made with."""
+def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | None = None) -> Assessment:
+    """Confidence and flags of a ranking (see the module docstring), for the comparison options
+    it was made with, the level of theory of its first entries and the band width (cm^-1)."""
     scored = [e for e in ranking.entries if e.comparison is not None]
     if not scored:
         return Assessment(None, (), "no candidate could be scored")
     model = model or shipped_model()
     first = scored[0]
     flags = []
-    settings = comparison_settings(method_name, ranking.score_name, compare_options, fwhm_cm1)
+    settings = comparison_settings(method_name, ranking.options, fwhm_cm1)
     flag = shift_flag(first.comparison, settings["max_shift_cm1"])
     if flag:
         flags.append(flag)
@@ -262,8 +255,7 @@ def assess(ranking, compare_options: dict, method_name: str, fwhm_cm1: float,
         elif len(scored) == 1:
             note = "one candidate only: nothing to be sure against"
     if len(scored) > 1 and first.refined == scored[1].refined:
-        spread, flips = margin_noise(ranking.measured, first.prediction, scored[1].prediction,
-                                     {"score_name": ranking.score_name, **compare_options})
+        spread, flips = margin_noise(ranking.measured, first.prediction, scored[1].prediction, ranking.options)
         margin = first.score - scored[1].score
         if flips or margin <= max(2 * spread, TIE_MARGIN):
             why = f"the order flips when {', '.join(flips)}" if flips else f"its spread is {spread:.3f}"

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
-from .comparison import DEFAULT_SCORE, SCORES, Comparison, compare
+from .comparison import SCORES, Comparison, ComparisonOptions, compare, comparison_options
 from .errors import InputError, VibestError
 from .measured import MeasuredSpectrum
 from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record
@@ -54,9 +54,16 @@ class RankedCandidate:
 
 @dataclass(frozen=True)
 class Ranking:
+    """Candidates ranked against ``measured``, best first (failed ones last), and the comparison
+    options they were scored with."""
+
     measured: MeasuredSpectrum
-    score_name: str
+    options: ComparisonOptions
     entries: tuple[RankedCandidate, ...]
+
+    @property
+    def score_name(self) -> str:
+        return self.options.score_name
 
     def to_dict(self) -> dict:
         return {"caution": CAUTION, "measured": self.measured.source, "measured_notes": list(self.measured.notes),
@@ -182,14 +189,15 @@ def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions,
 
 def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
-                    store: RecordStore | None = None, score_name: str = DEFAULT_SCORE,
+                    store: RecordStore | None = None, options: ComparisonOptions | None = None,
                     progress: Callable[[int, int, str], None] | None = None, refine: int = 0,
                     refine_calc: CalculationOptions | None = None, refine_progress=None,
-                    **compare_options) -> Ranking:
+                    **changes) -> Ranking:
     """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
 
     A candidate that cannot be predicted is listed last with its error; it never stops the ranking.
-    ``compare_options`` go to :func:`vibest.comparison.compare` (range_cm1, fit_scale, baseline, ...).
+    ``options`` (:class:`vibest.comparison.ComparisonOptions`), with any of its fields given as
+    keywords on top (``score_name="pearson"``, ``fit_scale=True``, ...), say how each is compared.
     With ``refine`` K > 0 the best K are then computed again at ``refine_calc`` (a
     density-functional level) and ranked among themselves by their new scores; they keep the
     first K places (scores of two levels are not comparable across the line), and their rows say
@@ -201,6 +209,7 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
         raise InputError("no candidate structures given")
     if refine and refine_calc is None:
         raise InputError("refining needs a level of theory to refine with (e.g. --refine-method b3lyp)")
+    opts = comparison_options(options, **changes)
     scored, failed = [], []
     for k, cand in enumerate(candidates):
         if progress:
@@ -210,14 +219,13 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
             continue
         try:
             pred, hit = predict_stored(cand.smiles, calc, spec, store, name=cand.name)
-            comp = compare(pred, measured, score_name=score_name, **compare_options)
+            comp = compare(pred, measured, opts)
             scored.append((cand, pred, comp, hit, False, ""))
         except VibestError as exc:
             failed.append(RankedCandidate(None, cand, None, None, None, None, str(exc), method=calc.method_name))
     scored.sort(key=lambda t: -t[2].score)
     if refine:
-        top = _refined(scored[:refine], measured, refine_calc, spec, store, score_name, progress, compare_options,
-                       refine_progress)
+        top = _refined(scored[:refine], measured, refine_calc, spec, store, opts, progress, refine_progress)
         scored = sorted(top, key=lambda t: -t[2].score) + scored[refine:]
     if progress:
         progress(len(candidates), len(candidates), "")
@@ -227,10 +235,10 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
         margin = comp.score - nxt[2].score if nxt is not None and nxt[4] == refined else None
         method = refine_calc.method_name if refined else calc.method_name
         entries.append(RankedCandidate(i + 1, cand, comp.score, margin, comp, pred, None, hit, method, refined, note))
-    return Ranking(measured, score_name, tuple(entries + failed))
+    return Ranking(measured, opts, tuple(entries + failed))
 
 
-def _refined(top, measured, calc, spec, store, score_name, progress, compare_options, stage_progress=None):
+def _refined(top, measured, calc, spec, store, opts: ComparisonOptions, progress, stage_progress=None):
     """The entries ``top`` recomputed at ``calc`` (a failure keeps the entry as it was)."""
     out = []
     for k, (cand, pred, comp, hit, _, _) in enumerate(top):
@@ -241,5 +249,5 @@ def _refined(top, measured, calc, spec, store, score_name, progress, compare_opt
         except VibestError as exc:
             out.append((cand, pred, comp, hit, False, f"not refined: {exc}"))
             continue
-        out.append((cand, better, compare(better, measured, score_name=score_name, **compare_options), hit2, True, ""))
+        out.append((cand, better, compare(better, measured, opts), hit2, True, ""))
     return out

@@ -14,6 +14,9 @@ from rdkit.Chem import AllChem, Descriptors, rdMolAlign, rdMolDescriptors
 
 from .errors import InputError
 
+#: Embedding seed unless told otherwise (the one default of the CLI, the API and the pipeline).
+DEFAULT_SEED = 0xB1B
+
 #: Elements GFN2-xTB is parametrised for (Z = 1-86).
 MAX_ATOMIC_NUMBER = 86
 #: Longest SMILES accepted (characters); far beyond any molecule vibest can compute.
@@ -209,7 +212,7 @@ def _bond_list(mol: Chem.Mol) -> tuple[tuple[int, int, float], ...]:
                  for b in mol.GetBonds())
 
 
-def embed(mol_noh: Chem.Mol, seed: int = 0xB1B, prerelax: bool = True, num_conformers: int = 1) -> Chem.Mol:
+def embed(mol_noh: Chem.Mol, seed: int = DEFAULT_SEED, prerelax: bool = True, num_conformers: int = 1) -> Chem.Mol:
     """Add hydrogens and embed 3D conformers with ETKDGv3 (seeded, deterministic).
 
     Each conformer is pre-relaxed with MMFF94 where parameters exist, else UFF. Returns the
@@ -280,7 +283,7 @@ def rotor_count(mol_noh: Chem.Mol) -> int:
 START_BASE, START_PER_ROTOR, START_MAX, START_KEEP, START_WINDOW_KCAL = 10, 3, 30, 12, 5.0
 
 
-def build_molecule(smiles: str, seed: int = 0xB1B, largest_fragment: bool = False,
+def build_molecule(smiles: str, seed: int = DEFAULT_SEED, largest_fragment: bool = False,
                    prerelax: bool = True, allow_large: bool = False, start_conformers: bool = True) -> Molecule:
     """SMILES -> validated :class:`Molecule` with a force-field-relaxed 3D geometry; molecules
     above :data:`MAX_ATOMS` atoms (with hydrogens) are refused unless ``allow_large``.

@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 from .calculation.driver import CalculationOptions
+from .comparison import ComparisonOptions
 from .confidence import LOW_CONFIDENCE, Assessment, assess
 from .decoys import Decoy, make_decoys
 from .errors import InputError
@@ -76,12 +77,12 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
                     decoys: int = DEFAULT_DECOYS, candidates: list[Candidate] | tuple = (),
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
                     store: RecordStore | None = None, progress: Callable[[int, int, str], None] | None = None,
-                    **compare_options) -> Verdict:
+                    options: ComparisonOptions | None = None, **changes) -> Verdict:
     """Judge whether ``measured`` is the structure ``smiles`` (see the module docstring).
 
     ``decoys``: how many generated decoys to rank with it; ``candidates``: further structures to
-    rank; ``compare_options`` go to :func:`vibest.comparison.compare` (and the confidence is
-    given only for the settings it was calibrated for)."""
+    rank; ``options`` (:class:`vibest.comparison.ComparisonOptions`, any field also as a keyword)
+    say how each is compared (and the confidence is given only for the settings it was calibrated for)."""
     if decoys < 0:
         raise InputError("the number of decoys cannot be negative")
     own = canonical_smiles(smiles)
@@ -97,14 +98,15 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
         if key not in seen:
             seen.add(key)
             pool.append(c)
-    ranking = rank_candidates(measured, pool, calc=calc, spec=spec, store=store, progress=progress, **compare_options)
+    ranking = rank_candidates(measured, pool, calc=calc, spec=spec, store=store, progress=progress, options=options,
+                              **changes)
     entry = next(e for e in ranking.entries if e.candidate == intended)
     if entry.comparison is None:
         raise InputError(f"the intended structure could not be predicted: {entry.error}")
     if len(pool) == 1:
         assessment = Assessment(None, (), "no decoy or other candidate to rank against")
     else:
-        assessment = assess(ranking, compare_options, calc.method_name, spec.fwhm_cm1)
+        assessment = assess(ranking, calc.method_name, spec.fwhm_cm1)
     evidence = tuple(group_evidence(entry.prediction, entry.comparison))
     conclusion, reasons = _conclude(intended, ranking, assessment, evidence)
     return Verdict(intended, conclusion, tuple(reasons), ranking, assessment, evidence, made)

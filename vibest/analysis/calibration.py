@@ -71,10 +71,10 @@ class CalibrationCase:
     reference: ReferenceMolecule
     record: object  # HessianRecord
     space: object  # InternalSpace
-    types: tuple[str, ...]
+    types: tuple  # CoordinateType per primitive of space
     modes: object  # HarmonicModes (unscaled)
     assignment: object  # Assignment
-    dominant_types: tuple[str, ...]  # per assigned pair
+    dominant_types: tuple[str, ...]  # name of the dominant CoordinateType, per assigned pair
 
     @property
     def experimental_cm1(self) -> np.ndarray:
@@ -102,7 +102,7 @@ def prepare_case(reference: ReferenceMolecule, record, use_symmetry: bool = True
         if len(types):
             per_type: dict[str, float] = {}
             for t, share in zip(types, comp.shares[m]):
-                per_type[t] = per_type.get(t, 0.0) + share
+                per_type[t.name] = per_type.get(t.name, 0.0) + share
             dominant.append(max(per_type, key=per_type.get))
         else:
             dominant.append("stretch (diatomic)")
@@ -220,7 +220,7 @@ def soft_l1(residuals_cm1: np.ndarray, scale_cm1: float) -> np.ndarray:
 
 
 def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
-                       prior_cm1: float = 200.0, loss_scale_cm1: float | None = 20.0) -> dict[str, float]:
+                       prior_cm1: float = 200.0, loss_scale_cm1: float | None = 20.0):
     """Force-constant factors per coordinate type and per type family, minimising the soft-L1
     loss (:func:`soft_l1`, scale ``loss_scale_cm1``; None: squared errors) of the assigned
     pairs with partial pooling (Tikhonov regularisation). The robust loss follows the figure of
@@ -233,20 +233,19 @@ def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
     family is pulled towards uniform_factor^2. So a type seen in few modes cannot drift on noise,
     and a type never seen in training takes its family's factor (:meth:`ScaleModel.type_factor`).
     The factors of the coupling classes (:data:`vibest.analysis.scaling.COUPLING_CLASSES`) are
-    pulled towards 1.
+    pulled towards 1. Returns a :class:`vibest.analysis.scaling.ForceConstantFactors`.
     """
     from scipy.optimize import least_squares
 
-    from .scaling import COUPLING_CLASSES, PER_COORDINATE, ScaleModel, coupling_pairs, type_family
+    from .scaling import COUPLING_CLASSES, PER_COORDINATE, ForceConstantFactors, ScaleModel, coupling_pairs
 
     types = sorted({t for c in train for t in c.types})
-    for name in COUPLING_CLASSES:
-        if any(len(coupling_pairs(c.record.numbers, c.space.primitives)[name][0]) for c in train):
-            types.append(name)
-    families = sorted({type_family(t) for t in types} - {None})
-    names = families + types
-    parent = np.array([-1] * len(families) + [families.index(f) if (f := type_family(t)) else -1 for t in types])
-    base = np.array([0.0 if n in COUPLING_CLASSES else np.log(uniform_factor ** 2) for n in names])
+    couplings = [name for name in COUPLING_CLASSES
+                 if any(len(coupling_pairs(c.record.numbers, c.space.primitives)[name][0]) for c in train)]
+    families = sorted({t.family for t in types} - {None}, key=lambda f: f.value)
+    parent = np.array([-1] * len(families) + [families.index(t.family) if t.family else -1 for t in types]
+                      + [-1] * len(couplings))
+    base = np.array([np.log(uniform_factor ** 2)] * (len(families) + len(types)) + [0.0] * len(couplings))
     exp = [c.experimental_cm1 for c in train]
 
     def log_factors(params):
@@ -256,19 +255,21 @@ def fit_per_coordinate(train: list[CalibrationCase], uniform_factor: float,
         out[has] = out[parent[has]] + params[has]
         return out
 
-    def model_of(params):
-        return ScaleModel(uniform_factor, PER_COORDINATE, "fit",
-                          {n: float(np.exp(v)) for n, v in zip(names, log_factors(params))})
+    def factors_of(params) -> ForceConstantFactors:
+        f = np.exp(log_factors(params))
+        n, m = len(families), len(families) + len(types)
+        return ForceConstantFactors(dict(zip(types, map(float, f[n:m]))), dict(zip(families, map(float, f[:n]))),
+                                    dict(zip(couplings, map(float, f[m:]))))
 
     def residuals(params):
-        m = model_of(params)
+        m = ScaleModel(uniform_factor, PER_COORDINATE, "fit", factors_of(params))
         r = np.concatenate([predicted_wavenumbers(c, m) - e for c, e in zip(train, exp)])
         if loss_scale_cm1:
             r = soft_l1(r, loss_scale_cm1)
         return np.concatenate([r, prior_cm1 * np.asarray(params)])
 
-    sol = least_squares(residuals, np.zeros(len(names)), method="trf", x_scale=0.05, max_nfev=200)
-    return dict(model_of(sol.x).force_constant_factors)
+    sol = least_squares(residuals, np.zeros(len(parent)), method="trf", x_scale=0.05, max_nfev=200)
+    return factors_of(sol.x)
 
 
 def cross_validated_mad(cases: list[CalibrationCase], uniform_factor: float | None = None, folds: int = 4,

@@ -32,17 +32,65 @@ from dataclasses import dataclass, field
 from importlib import resources
 
 import numpy as np
-from ase.data import chemical_symbols
 
 from ..errors import InputError
-from ..internal_coordinates import BEND, LINEAR_BEND, OUT_OF_PLANE, STRETCH, TORSION, Primitive
+from ..internal_coordinates import BEND, LINEAR_BEND, STRETCH, TORSION, Primitive
+from .coordinate_types import CoordinateType, Family, coordinate_types
 from .internal_space import InternalSpace
 
 UNIFORM, REGION, PER_COORDINATE, USER = "uniform", "region", "per-coordinate", "user"
 #: upper edges (cm^-1, harmonic) of the regions of the ``region`` model; the last region is open.
 REGION_EDGES_CM1 = (1000.0, 1600.0, 2000.0, 2700.0)
-_SYMBOL = {1.0: "-", 1.5: ":", 2.0: "=", 3.0: "#"}
-_HALOGENS = {9, 17, 35, 53}
+#: Version of the layout of the scale-factor files (vibest/data/scale_factors*.json); a file of
+#: another version is refused, never half read.
+SCALE_FILE_FORMAT = 2
+
+
+@dataclass(frozen=True)
+class ForceConstantFactors:
+    """Fitted force-constant factors of a per-coordinate model (dimensionless; wavenumbers scale
+    roughly as their square roots).
+
+    Attributes:
+        types: per coordinate type (name and family), its own factor s_k.
+        families: per family, the factor of its types that have none of their own.
+        couplings: per coupling class of :data:`COUPLING_CLASSES`, the further factor on the
+            off-diagonal force constants of its pairs.
+    """
+
+    types: dict[CoordinateType, float] = field(default_factory=dict)
+    families: dict[Family, float] = field(default_factory=dict)
+    couplings: dict[str, float] = field(default_factory=dict)
+
+    def of(self, coordinate_type: CoordinateType, fallback: float) -> float:
+        """The type's own factor, else its family's, else ``fallback``."""
+        got = self.types.get(coordinate_type)
+        if got is None:
+            got = self.families.get(coordinate_type.family, fallback)
+        return float(got)
+
+    def to_json(self, digits: int | None = None) -> dict:
+        """The layout of the per-coordinate section of a scale-factor file (format
+        :data:`SCALE_FILE_FORMAT`): each type with its family, families and couplings by name."""
+        r = (lambda v: round(v, digits)) if digits is not None else float
+        return {"type_factors": [{"type": t.name, "family": t.family.value if t.family else None, "factor": r(v)}
+                                 for t, v in sorted(self.types.items())],
+                "family_factors": {f.value: r(v) for f, v in sorted(self.families.items(), key=lambda kv: kv[0].value)},
+                "coupling_factors": {k: r(v) for k, v in sorted(self.couplings.items())}}
+
+    @classmethod
+    def from_json(cls, data: dict, where: str) -> "ForceConstantFactors":
+        """Read :meth:`to_json`'s layout; an unknown family or coupling class is an InputError naming ``where``."""
+        try:
+            types = {CoordinateType(str(e["type"]), Family(e["family"]) if e["family"] is not None else None):
+                     float(e["factor"]) for e in data["type_factors"]}
+            families = {Family(k): float(v) for k, v in data["family_factors"].items()}
+        except (KeyError, TypeError, ValueError) as exc:
+            raise InputError(f"{where}: unreadable per-coordinate factors ({exc})") from None
+        unknown = set(data.get("coupling_factors", {})) - set(COUPLING_CLASSES)
+        if unknown:
+            raise InputError(f"{where}: unknown coupling classes {sorted(unknown)}")
+        return cls(types, families, {k: float(v) for k, v in data.get("coupling_factors", {}).items()})
 
 
 @dataclass(frozen=True)
@@ -50,20 +98,19 @@ class ScaleModel:
     """How harmonic wavenumbers are scaled.
 
     Attributes:
-        name: "uniform", "per-coordinate" or "user".
+        name: "uniform", "region", "per-coordinate" or "user".
         factor: uniform wavenumber factor (dimensionless); for per-coordinate models the fallback
             (its square scales force constants of coordinate types without a fitted factor).
-        force_constant_factors: per coordinate type, the factor s_k on force constants
-            (per-coordinate model only; wavenumbers scale roughly as sqrt(s_k)).
+        source: where the numbers come from.
+        force_constants: the fitted force-constant factors (per-coordinate model only).
         region_factors: wavenumber factors of the regions split at :data:`REGION_EDGES_CM1`
             (region model only).
-        source: where the numbers come from.
     """
 
     factor: float
     name: str = UNIFORM
     source: str = ""
-    force_constant_factors: dict[str, float] = field(default_factory=dict)
+    force_constants: ForceConstantFactors = field(default_factory=ForceConstantFactors)
     region_factors: tuple[float, ...] = ()
 
     @property
@@ -73,11 +120,10 @@ class ScaleModel:
     def describe(self) -> str:
         """Short text for reports, e.g. "uniform factor 0.9939" or "per-coordinate scaled force field (37 types, 9 families)"."""
         if self.per_coordinate:
-            families = sum(k.startswith(FAMILY_PREFIX) for k in self.force_constant_factors)
-            couplings = sum(k in COUPLING_CLASSES for k in self.force_constant_factors)
-            types = len(self.force_constant_factors) - families - couplings
-            extra = (f", {families} families" if families else "") + (f", {couplings} coupling factors" if couplings else "")
-            return f"per-coordinate scaled force field ({types} types{extra})"
+            fc = self.force_constants
+            extra = (f", {len(fc.families)} families" if fc.families else "") + \
+                (f", {len(fc.couplings)} coupling factors" if fc.couplings else "")
+            return f"per-coordinate scaled force field ({len(fc.types)} types{extra})"
         if self.name == REGION:
             return "region factors " + ", ".join(f"{f:.4f}" for f in self.region_factors)
         return f"{self.name} factor {self.factor:.4f}"
@@ -90,13 +136,10 @@ class ScaleModel:
             return w * np.asarray(self.region_factors)[region_index(w)]
         return w * self.factor
 
-    def type_factor(self, coordinate_type: str) -> float:
+    def type_factor(self, coordinate_type: CoordinateType) -> float:
         """Force-constant factor of one coordinate type: its own fitted factor, else its
-        family's (:func:`type_family`), else the square of the uniform factor."""
-        got = self.force_constant_factors.get(coordinate_type)
-        if got is None:
-            got = self.force_constant_factors.get(type_family(coordinate_type), self.factor ** 2)
-        return float(got)
+        family's, else the square of the uniform factor."""
+        return self.force_constants.of(coordinate_type, self.factor ** 2)
 
     def coordinate_factors(self, numbers, bonds, space: InternalSpace) -> np.ndarray:
         """Force-constant factor of every primitive of ``space`` (dimensionless)."""
@@ -114,17 +157,19 @@ class ScaleModel:
         root = np.sqrt(self.coordinate_factors(numbers, bonds, space))
         matrix = np.outer(root, root)
         for name, (rows, cols) in coupling_pairs(numbers, space.primitives).items():
-            factor = self.force_constant_factors.get(name)
+            factor = self.force_constants.couplings.get(name)
             if factor is not None and len(rows):
                 matrix[rows, cols] *= factor
                 matrix[cols, rows] *= factor
         return scale_hessian_matrix(hessian_hartree_bohr2, space, matrix)
 
     def to_dict(self) -> dict:
-        return {"name": self.name, "factor": self.factor, "source": self.source,
-                "force_constant_factors": dict(self.force_constant_factors),
-                "region_factors": list(self.region_factors),
-                "region_edges_cm1": list(REGION_EDGES_CM1) if self.region_factors else []}
+        out = {"name": self.name, "factor": self.factor, "source": self.source,
+               "region_factors": list(self.region_factors),
+               "region_edges_cm1": list(REGION_EDGES_CM1) if self.region_factors else []}
+        if self.per_coordinate:
+            out["force_constants"] = self.force_constants.to_json()
+        return out
 
 
 def region_index(wavenumbers_cm1) -> np.ndarray:
@@ -230,140 +275,6 @@ def coupling_pairs(numbers, primitives) -> dict[str, tuple[np.ndarray, np.ndarra
     return _coupling_pairs_cached(tuple(int(z) for z in numbers), tuple(primitives))
 
 
-def _cumulated_atoms(bonds) -> set[int]:
-    doubles: dict[int, int] = {}
-    for i, j, o in bonds:
-        if float(o) >= 2.0:
-            for a in (int(i), int(j)):
-                doubles[a] = doubles.get(a, 0) + 1
-    return {a for a, c in doubles.items() if c >= 2}
-
-
-def _carbon_kind(c: int, numbers, orders) -> str:
-    """Kind of a C-H bond's carbon: "aldehyde" (C=O on the carbon), "halogenated, one halogen
-    on C", "halogenated, 2+ halogens on C", "sp", "sp2", "sp3, next to N or O" or "sp3"."""
-    nbrs = [(j if i == c else i, o) for (i, j), o in orders.items() if c in (i, j)]
-    if any(int(numbers[n]) == 8 and o >= 2.0 for n, o in nbrs):
-        return "aldehyde"
-    halogens = sum(int(numbers[n]) in _HALOGENS for n, _ in nbrs)
-    if halogens:
-        return "halogenated, " + ("one halogen on C" if halogens == 1 else "2+ halogens on C")
-    if any(o >= 3.0 for _, o in nbrs) or len(nbrs) == 2:
-        return "sp"
-    if any(o >= 1.5 for _, o in nbrs) or len(nbrs) == 3:
-        return "sp2"
-    if any(int(numbers[n]) in (7, 8) for n, _ in nbrs):
-        return "sp3, next to N or O"
-    return "sp3"
-
-
-def _c_halogen_type(i: int, j: int, numbers, orders) -> str:
-    """"C-Cl stretch (one halogen on C)", "C-F stretch (2+ halogens on C)", ...: by halogen, and
-    by whether the carbon carries more halogens (the stretches of CX2, CX3 and CX4 groups couple,
-    and GFN2-xTB misplaces them differently from those of a lone C-X bond)."""
-    c, x = (i, j) if int(numbers[i]) == 6 else (j, i)
-    halogens = sum(int(numbers[k if l == c else l]) in _HALOGENS for k, l in orders if c in (k, l))
-    where = "one halogen on C" if halogens <= 1 else "2+ halogens on C"
-    return f"C-{chemical_symbols[int(numbers[x])]} stretch ({where})"
-
-
-def coordinate_types(numbers, bonds, primitives: tuple[Primitive, ...] | list[Primitive]) -> list[str]:
-    """Scaling type of each primitive, e.g. "C-H stretch (sp3)", "C=O stretch", "C#N stretch",
-    "C=O stretch (cumulated)", "C-Cl stretch (2+ halogens on C)", "heavy-atom-H stretch" (S-H,
-    Cl-H, ...), "H-C-X bend", "bend", "bend (halogen end)", "linear bend", "torsion (H)", "out-of-plane"."""
-    orders = {(min(int(i), int(j)), max(int(i), int(j))): float(o) for i, j, o in bonds}
-    cumulated = _cumulated_atoms(bonds)
-    out = []
-    for p in primitives:
-        a = p.atoms
-        if p.kind == STRETCH:
-            zi, zj = sorted((int(numbers[a[0]]), int(numbers[a[1]])))
-            if zi == 1:
-                # First-row hydrides by element; heavier ones (S, Cl, Br, P, ...) share one type:
-                # GFN2-xTB places their stretches too low by a similar fraction. C-H stretches by
-                # the kind of carbon, whose GFN2-xTB errors differ (aldehyde C-H ~100 cm^-1 low,
-                # C-H next to an ether or amine O/N low, CH3X high, CHX2/CHX3 low).
-                x = a[1] if int(numbers[a[0]]) == 1 else a[0]
-                if zj == 6:
-                    out.append(f"C-H stretch ({_carbon_kind(x, numbers, orders)})")
-                else:
-                    out.append(f"{chemical_symbols[zj]}-H stretch" if zj <= 10 else "heavy-atom-H stretch")
-                continue
-            order = orders.get((min(a), max(a)), 1.0)
-            sym = _SYMBOL.get(order, "-")
-            if zi in _HALOGENS or zj in _HALOGENS:
-                out.append(_c_halogen_type(a[0], a[1], numbers, orders) if 6 in (zi, zj) else "X-halogen stretch")
-                continue
-            first, second = (zi, zj) if zi == 6 else ((zj, zi) if zj == 6 else (zj, zi))
-            name = f"{chemical_symbols[first]}{sym}{chemical_symbols[second]} stretch"
-            if order >= 2.0 and (a[0] in cumulated or a[1] in cumulated):
-                name += " (cumulated)"
-            out.append(name)
-        elif p.kind == BEND:
-            ends = (int(numbers[a[0]]), int(numbers[a[2]]))
-            if ends == (1, 1):
-                out.append(f"H-{chemical_symbols[int(numbers[a[1]])]}-H bend")
-            elif 1 in ends:
-                out.append(f"H-{chemical_symbols[int(numbers[a[1]])]}-X bend")
-            elif ends[0] in _HALOGENS or ends[1] in _HALOGENS:
-                # X-C-Cl, Cl-C-Cl, ...: GFN2-xTB misplaces the deformations of halogenated
-                # carbons differently from skeletal bends (cross-validated, DEVELOPERS.md)
-                out.append("bend (halogen end)")
-            else:
-                out.append("bend")
-        elif p.kind == LINEAR_BEND:
-            out.append("linear bend")
-        elif p.kind == TORSION:
-            out.append("torsion (H)" if 1 in (int(numbers[a[0]]), int(numbers[a[3]])) else "torsion")
-        elif p.kind == OUT_OF_PLANE:
-            out.append("out-of-plane")
-        else:  # pragma: no cover - all kinds are listed above
-            out.append(p.kind)
-    return out
-
-
-#: Families of coordinate types. A type's factor is pulled towards its family's in the fit
-#: (partial pooling), and a type without data of its own (N=N of N2O, the H-F stretch) uses the
-#: family's factor instead of the uniform one.
-FAMILY_PREFIX = "family: "
-FAMILY_C_H = "family: C-H stretch"
-FAMILY_POLAR_H = "family: N-H, O-H, F-H stretch"
-FAMILY_HALOGEN = "family: stretch of a bond to a halogen"
-FAMILY_TRIPLE = "family: triple-bond stretch"
-FAMILY_CUMULATED = "family: cumulated double-bond stretch"
-FAMILY_DOUBLE = "family: double and aromatic bond stretch"
-FAMILY_SINGLE = "family: single heavy-atom bond stretch"
-FAMILY_BEND_H = "family: bend with H"
-FAMILY_TORSION = "family: torsion"
-
-
-def type_family(coordinate_type: str) -> str | None:
-    """The family of a coordinate type of :func:`coordinate_types` (None for types of their own:
-    heavy-atom bends, linear bends, out-of-plane, heavy-atom-H stretches, the coupling classes)."""
-    t = coordinate_type
-    if t in COUPLING_CLASSES:
-        return None
-    if t.startswith("C-H stretch"):
-        return FAMILY_C_H
-    if t in ("N-H stretch", "O-H stretch", "F-H stretch"):
-        return FAMILY_POLAR_H
-    if t == "X-halogen stretch" or t.split(" ")[0] in ("C-F", "C-Cl", "C-Br", "C-I"):
-        return FAMILY_HALOGEN
-    if not t.endswith("stretch") and not t.endswith("(cumulated)"):
-        if t.startswith("H-") and t.endswith("bend"):
-            return FAMILY_BEND_H
-        return FAMILY_TORSION if t.startswith("torsion") else None
-    if t.endswith("(cumulated)"):
-        return FAMILY_CUMULATED
-    if "-H " in t or t.startswith("heavy-atom"):
-        return None
-    if "#" in t:
-        return FAMILY_TRIPLE
-    if "=" in t or ":" in t:
-        return FAMILY_DOUBLE
-    return FAMILY_SINGLE
-
-
 #: Method name -> the file in vibest/data with its fitted scale models (written by
 #: ``benchmarks/fit_scale_factor.py --method KEY --write``).
 SCALE_FILES = {"GFN2-xTB": "scale_factors.json", "GFN1-xTB": "scale_factors-gfn1.json",
@@ -377,7 +288,16 @@ def _shipped(method: str = DEFAULT_METHOD_NAME) -> dict:
     path = resources.files("vibest.data").joinpath(name) if name else None
     if path is None or not path.is_file():
         raise InputError(f"no fitted scale factors are shipped for {method}; give a uniform one (--scale-factor)")
-    return json.loads(path.read_text())
+    return parse_scale_file(path.read_text(), f"vibest/data/{name}")
+
+
+def parse_scale_file(text: str, name: str) -> dict:
+    """A scale-factor file's content; InputError if it is not of layout :data:`SCALE_FILE_FORMAT`."""
+    data = json.loads(text)
+    if data.get("format_version") != SCALE_FILE_FORMAT:
+        raise InputError(f"{name} has layout version {data.get('format_version')}, this vibest reads "
+                         f"{SCALE_FILE_FORMAT}: rewrite it with benchmarks/fit_scale_factor.py --write")
+    return data
 
 
 def _source(fit: dict, what: str, method: str) -> str:
@@ -404,7 +324,7 @@ def _shipped_fit(name: str, method: str) -> tuple[dict, float]:
 def per_coordinate_scale_model(method: str = DEFAULT_METHOD_NAME) -> ScaleModel:
     fit, uniform = _shipped_fit(PER_COORDINATE, method)
     return ScaleModel(uniform, PER_COORDINATE, _source(fit, "scaled force field", method),
-                      {k: float(v) for k, v in fit["force_constant_factors"].items()})
+                      ForceConstantFactors.from_json(fit, SCALE_FILES[method]))
 
 
 def region_scale_model(method: str = DEFAULT_METHOD_NAME) -> ScaleModel:

@@ -13,47 +13,39 @@ from __future__ import annotations
 import os
 import pickle
 import queue
-import subprocess
-import sys
 import threading
 from typing import Iterable, Iterator
 
-from ..calculation.worker_setup import close_process
-from ..calculation.workers import worker_environment
+from ..calculation.processes import WorkerProcess
 from .task import TaskOutcome, run_task
 
 Job = tuple  # (job_id, smiles, CalculationOptions)
 
 
 class LocalPool:
-    """``workers`` single-threaded processes (``python -m vibest.batch.worker_main``)."""
+    """``workers`` single-threaded :class:`~vibest.calculation.processes.WorkerProcess` es running
+    ``vibest.batch.worker_main``, each replaced after ``max_tasks_per_worker`` jobs."""
 
     def __init__(self, workers: int, max_tasks_per_worker: int = 50):
         if workers < 1:
             raise ValueError("workers must be at least 1")
         self.workers = int(workers)
         self.max_tasks_per_worker = int(max_tasks_per_worker)
-        self._procs: set[subprocess.Popen] = set()
+        self._procs: set[WorkerProcess] = set()
         self._lock = threading.Lock()
         self._stop = threading.Event()
 
-    def _start(self) -> subprocess.Popen:
-        proc = subprocess.Popen([sys.executable, "-m", "vibest.batch.worker_main"], stdin=subprocess.PIPE,
-                                stdout=subprocess.PIPE, env=worker_environment())
+    def _start(self) -> WorkerProcess:
+        proc = WorkerProcess("vibest.batch.worker_main")
         with self._lock:
             self._procs.add(proc)
         return proc
 
-    def _retire(self, proc: subprocess.Popen, kill: bool = False) -> None:
-        try:
-            if kill:
-                proc.kill()
-            else:
-                pickle.dump(None, proc.stdin)
-                proc.stdin.close()
-        except (OSError, ValueError):
+    def _retire(self, proc: WorkerProcess, kill: bool = False) -> None:
+        if kill:
             proc.kill()
-        close_process(proc, 10.0)
+        else:
+            proc.close(None, 10.0)
         with self._lock:
             self._procs.discard(proc)
 
@@ -70,9 +62,8 @@ class LocalPool:
                         self._retire(proc)
                     proc, done = self._start(), 0
                 try:
-                    pickle.dump(job, proc.stdin)
-                    proc.stdin.flush()
-                    outcome = pickle.load(proc.stdout)
+                    proc.send(job)
+                    outcome = proc.receive()
                     done += 1
                 except (EOFError, OSError, pickle.UnpicklingError):
                     if self._stop.is_set():
@@ -115,7 +106,7 @@ class LocalPool:
             with self._lock:
                 procs = list(self._procs)
             for proc in procs:
-                proc.kill()
+                proc.kill(wait=False)
             for t in threads:
                 t.join(timeout=10)
 

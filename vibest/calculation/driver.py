@@ -22,6 +22,7 @@ from ase.units import Bohr
 
 from ..analysis.harmonic import harmonic_analysis
 from ..errors import InputError
+from ..structure import DEFAULT_SEED
 from .engine import Engine, EngineSettings, Evaluation, calculation_threads, make_engine, solvent_keyword
 from .hessian import default_workers, finite_difference_hessian
 from .methods import DEFAULT_METHOD, parse_level
@@ -47,8 +48,6 @@ POOL_USE_HESSIAN_SECONDS = 0.05
 #: A restarted gradient of a displaced geometry costs about this fraction of a gradient from
 #: scratch or of an optimisation step (measured on benchmarks/speed.py molecules: 0.5-0.8).
 RESTARTED_GRADIENT_FRACTION = 0.6
-#: Embedding seed unless told otherwise.
-DEFAULT_SEED = 0xB1B
 #: Memory a density-functional calculation may use unless told otherwise (MB).
 DEFAULT_DFT_MEMORY_MB = 4000
 
@@ -204,24 +203,47 @@ def compute_record(molecule, options: CalculationOptions = CalculationOptions(),
 
 # -- timings -------------------------------------------------------------------------------
 
-def _new_timings(workers: int) -> dict:
-    return {"optimization_gradients": 0, "optimization_seconds": 0.0, "optimization_gradient_seconds": 0.0,
-            "hessian_gradients": 0, "hessian_seconds": 0.0, "hessian_workers": workers, "retries": 0}
+@dataclass
+class Timings:
+    """Counts and seconds of one calculation, filled in as it goes; the record keeps
+    :meth:`to_dict` (JSON-able; stages that did not happen are left out)."""
 
+    hessian_workers: int
+    optimization_gradients: int = 0
+    optimization_seconds: float = 0.0
+    optimization_gradient_seconds: float = 0.0
+    hessian_gradients: int = 0
+    hessian_seconds: float = 0.0
+    retries: int = 0
+    optimization_coordinates: str | None = None
+    hessian_displacements: str | None = None
+    hessian_analytic: bool | None = None
+    start_conformers: int | None = None
+    preoptimization_gradients: int | None = None
+    preoptimization_seconds: float | None = None
+    basis_functions: int | None = None
 
-def _count_optimisation(timings: dict, gradients: int, seconds: float, gradient_seconds: float) -> None:
-    timings["optimization_gradients"] += gradients
-    timings["optimization_seconds"] += seconds
-    timings["optimization_gradient_seconds"] += gradient_seconds
+    def count_optimisation(self, gradients: int, seconds: float, gradient_seconds: float) -> None:
+        self.optimization_gradients += gradients
+        self.optimization_seconds += seconds
+        self.optimization_gradient_seconds += gradient_seconds
+
+    @property
+    def seconds_per_optimisation_gradient(self) -> float:
+        """Mean over the optimisation gradients so far (the first included)."""
+        return self.optimization_gradient_seconds / max(self.optimization_gradients, 1)
+
+    def to_dict(self) -> dict:
+        return {k: v for k, v in dataclasses.asdict(self).items() if v is not None}
 
 
 # -- the three steps -------------------------------------------------------------------------
 
-HessianStep = Callable[[np.ndarray, Evaluation, dict], tuple[np.ndarray, np.ndarray, Evaluation]]
+HessianStep = Callable[[np.ndarray, Evaluation, "Timings"], tuple[np.ndarray, np.ndarray, Evaluation]]
 
 
 def _minimum_and_hessian(engine: Engine, numbers, x: np.ndarray, options: CalculationOptions, hessian_step: HessianStep,
-                         progress: Progress | None, timings: dict, notes: list[str], first: Evaluation | None = None,
+                         progress: Progress | None, timings: Timings, notes: list[str], first: Evaluation | None = None,
                          start_hessian: np.ndarray | None = None):
     """Optimise from ``x`` (Bohr), compute the Hessian there, and leave saddle points (displace
     along the imaginary modes and re-optimise). ``start_hessian``: the first optimisation's start
@@ -234,8 +256,8 @@ def _minimum_and_hessian(engine: Engine, numbers, x: np.ndarray, options: Calcul
                     f"E = {energy:.8f} Eh, max force {force:.1e} Eh/Bohr")
 
         opt = optimize(engine, numbers, x, options.optimizer, progress=opt_progress, first=first, hessian=start_hessian)
-        _count_optimisation(timings, opt.gradient_calls, opt.seconds, opt.gradient_seconds)
-        timings["optimization_coordinates"] = opt.coordinates
+        timings.count_optimisation(opt.gradient_calls, opt.seconds, opt.gradient_seconds)
+        timings.optimization_coordinates = opt.coordinates
         first = start_hessian = None
         if not opt.converged:
             notes.append(f"geometry optimisation did not converge in {opt.gradient_calls} gradients "
@@ -247,14 +269,14 @@ def _minimum_and_hessian(engine: Engine, numbers, x: np.ndarray, options: Calcul
             t = time.perf_counter()
             ev = engine.evaluate(x)
             t = time.perf_counter() - t
-            _count_optimisation(timings, 1, t, t)
+            timings.count_optimisation(1, t, t)
         hessian, dipole_derivatives, ev = hessian_step(x, ev, timings)
         modes = harmonic_analysis(numbers, x * Bohr, hessian)
         bad = [k for k in modes.imaginary if modes.wavenumbers_cm1[k] < -IMAGINARY_THRESHOLD_CM1]
         if not bad or attempt >= options.max_imaginary_retries:
             return x, ev, hessian, dipole_derivatives, bool(opt.converged)
         attempt += 1
-        timings["retries"] = attempt
+        timings.retries = attempt
         notes.append(f"imaginary mode(s) {', '.join(f'{modes.wavenumbers_cm1[k]:.0f}' for k in bad)} cm^-1 "
                      f"found: displaced along them and re-optimised (attempt {attempt})")
         for k in bad:
@@ -282,16 +304,16 @@ def _finite_difference_step(engine: Engine, molecule, options: CalculationOption
 
     def step(x, ev, timings):
         # over all optimisation gradients so far, the first included
-        per_gradient = timings["optimization_gradient_seconds"] / max(timings["optimization_gradients"], 1)
+        per_gradient = timings.seconds_per_optimisation_gradient
         use = workers if started and (options.workers or parallel_pays(per_gradient)) else 1
         hes = finite_difference_hessian(engine, numbers, x, molecule.charge, molecule.uhf,
                                         step_bohr=options.hessian_step_bohr, workers=use,
                                         progress=lambda d, t: _notify(progress, "hessian", d, t),
                                         displacements=options.hessian_displacements, reference=ev)
-        timings["hessian_gradients"] += hes.gradient_calls
-        timings["hessian_seconds"] += hes.seconds
-        timings["hessian_workers"] = hes.workers
-        timings["hessian_displacements"] = hes.displacements
+        timings.hessian_gradients += hes.gradient_calls
+        timings.hessian_seconds += hes.seconds
+        timings.hessian_workers = hes.workers
+        timings.hessian_displacements = hes.displacements
         return hes.hessian_hartree_bohr2, hes.dipole_derivatives_e, ev
 
     return step
@@ -303,8 +325,8 @@ def _analytic_step(engine: Engine, progress: Progress | None) -> HessianStep:
         t = time.perf_counter()
         hessian, dipole_derivatives, ev = engine.hessian_and_dipole_derivatives(
             x, progress=lambda name, message: _notify(progress, "DFT Hessian", 0, 0, f"{name} {message}".strip()))
-        timings["hessian_seconds"] += time.perf_counter() - t
-        timings["hessian_analytic"] = True
+        timings.hessian_seconds += time.perf_counter() - t
+        timings.hessian_analytic = True
         return hessian, dipole_derivatives, ev
 
     return step
@@ -313,12 +335,12 @@ def _analytic_step(engine: Engine, progress: Progress | None) -> HessianStep:
 # -- the records -----------------------------------------------------------------------------
 
 def _record(molecule, options: CalculationOptions, x: np.ndarray, ev: Evaluation, hessian, dipole_derivatives,
-            converged: bool, timings: dict, notes: list[str]) -> HessianRecord:
+            converged: bool, timings: Timings, notes: list[str]) -> HessianRecord:
     return HessianRecord(
         smiles=molecule.smiles, numbers=molecule.numbers, positions_angstrom=x * Bohr, bonds=molecule.bonds,
         charge=molecule.charge, uhf=molecule.uhf, energy_hartree=ev.energy_hartree,
         hessian_hartree_bohr2=hessian, dipole_e_bohr=ev.dipole_e_bohr, dipole_derivatives_e=dipole_derivatives,
-        settings=options.to_dict() | {"converged": bool(converged)}, timings=timings,
+        settings=options.to_dict() | {"converged": bool(converged)}, timings=timings.to_dict(),
         molblock=molecule.molblock, notes=tuple(molecule.notes) + tuple(notes), mass_numbers=molecule.mass_numbers,
     )
 
@@ -329,7 +351,7 @@ def _record(molecule, options: CalculationOptions, x: np.ndarray, ev: Evaluation
 OPTIMISED_STARTS = 4
 
 
-def _lowest_start(engine: Engine, molecule, options: CalculationOptions, progress: Progress | None, timings: dict,
+def _lowest_start(engine: Engine, molecule, options: CalculationOptions, progress: Progress | None, timings: Timings,
                   notes: list[str]) -> np.ndarray:
     """Positions (Bohr) to optimise from: with alternative start conformers, the
     :data:`OPTIMISED_STARTS` lowest by a single point are optimised and the lowest minimum kept
@@ -344,14 +366,14 @@ def _lowest_start(engine: Engine, molecule, options: CalculationOptions, progres
             engine.restart_from(None)
             energies.append(engine.evaluate(pos / Bohr).energy_hartree)
         t = time.perf_counter() - t
-        _count_optimisation(timings, len(starts), t, t)
+        timings.count_optimisation(len(starts), t, t)
         starts = [starts[k] for k in np.argsort(energies, kind="stable")[:OPTIMISED_STARTS]]
     found = []
     for k, pos in enumerate(starts):
         _notify(progress, "start conformers", k, len(starts), f"optimising start conformer {k + 1} of {len(starts)}")
         engine.restart_from(None)
         opt = optimize(engine, molecule.numbers, pos / Bohr, options.optimizer)
-        _count_optimisation(timings, opt.gradient_calls, opt.seconds, opt.gradient_seconds)
+        timings.count_optimisation(opt.gradient_calls, opt.seconds, opt.gradient_seconds)
         found.append((opt.energy_hartree, k, opt.positions_bohr))
     found.sort(key=lambda f: (f[0], f[1]))
     from ase.units import Hartree, kcal, mol
@@ -359,7 +381,7 @@ def _lowest_start(engine: Engine, molecule, options: CalculationOptions, progres
     others = ", ".join(f"+{(e - found[0][0]) * Hartree / (kcal / mol):.1f}" for e, _, _ in found[1:])
     notes.append(f"{len(starts)} start conformers optimised with {engine.settings.method} (the lowest by a single "
                  f"point of {len(molecule.alternatives) + 1}): the lowest minimum kept, the others {others} kcal/mol above")
-    timings["start_conformers"] = len(starts)
+    timings.start_conformers = len(starts)
     engine.restart_from(None)
     return found[0][2]
 
@@ -368,13 +390,13 @@ def _tight_binding_record(molecule, options: CalculationOptions, progress: Progr
     notes: list[str] = []
     x = molecule.positions_angstrom / Bohr
     engine = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, options.engine)
-    timings = _new_timings(options.workers or default_workers())
+    timings = Timings(options.workers or default_workers())
     x = _lowest_start(engine, molecule, options, progress, timings, notes)
     t = time.perf_counter()
     first = engine.evaluate(x)
     t = time.perf_counter() - t
     # the first gradient, made here to decide on the pool, is the optimisation's first
-    _count_optimisation(timings, 1, t, t)
+    timings.count_optimisation(1, t, t)
     step = _finite_difference_step(engine, molecule, options, progress, t)
     x, ev, hessian, dmu, converged = _minimum_and_hessian(engine, molecule.numbers, x, options, step, progress,
                                                           timings, notes, first)
@@ -388,7 +410,7 @@ def _dft_resources(options: CalculationOptions):
 
 
 def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Progress | None,
-                           timings: dict, notes: list[str]) -> tuple[np.ndarray, np.ndarray]:
+                           timings: Timings, notes: list[str]) -> tuple[np.ndarray, np.ndarray]:
     """The GFN2-xTB minimum (Bohr) a density-functional optimisation starts from, and the GFN2-xTB
     Hessian there (Eh/Bohr^2), the optimisation's start curvature: on acetone, 2-butanone, methyl
     acetate, phenol and 1-butanol it took 30-40 % fewer gradients than Lindh's model (GFN2-xTB
@@ -403,17 +425,17 @@ def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Prog
     hes = finite_difference_hessian(start, molecule.numbers, opt.positions_bohr, molecule.charge, molecule.uhf,
                                     step_bohr=options.hessian_step_bohr, workers=options.workers or default_workers(),
                                     reference=ev)
-    timings["preoptimization_gradients"] = opt.gradient_calls + hes.gradient_calls
-    timings["preoptimization_seconds"] = time.perf_counter() - t
+    timings.preoptimization_gradients = opt.gradient_calls + hes.gradient_calls
+    timings.preoptimization_seconds = time.perf_counter() - t
     return opt.positions_bohr, hes.hessian_hartree_bohr2
 
 
 def _dft_record(molecule, options: CalculationOptions, progress: Progress | None):
     notes: list[str] = []
-    timings = _new_timings(options.workers or default_workers())
+    timings = Timings(options.workers or default_workers())
     x, start_hessian = _tight_binding_minimum(molecule, options, progress, timings, notes)
     engine = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, options.engine, _dft_resources(options))
-    timings["basis_functions"] = engine.basis_functions
+    timings.basis_functions = engine.basis_functions
     x, ev, hessian, dmu, converged = _minimum_and_hessian(engine, molecule.numbers, x, options,
                                                           _analytic_step(engine, progress), progress, timings, notes,
                                                           start_hessian=start_hessian)

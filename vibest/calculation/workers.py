@@ -1,8 +1,7 @@
 """A persistent pool of worker processes for independent single points (Hessian displacements).
 
-Each worker is a fresh interpreter (``python -m vibest.calculation.worker_main``) with one
-OpenMP/BLAS thread, so N workers use N cores without over-subscription. Workers never import
-the caller's main script (unlike multiprocessing's spawn), so they are safe from any script.
+Each worker is a :class:`vibest.calculation.processes.WorkerProcess` running
+``vibest.calculation.worker_main`` (one OpenMP/BLAS thread, safe from any script).
 
 The pool lives for the whole process: the first Hessian (or :func:`prestart`, which
 :func:`vibest.pipeline.compute_record` calls right after the first gradient when the Hessian is
@@ -20,12 +19,8 @@ Protocol per job: a header pickle ``(numbers, x0, charge, uhf, settings, guess_p
 from __future__ import annotations
 
 import atexit
-import os
 import pickle
 import queue
-import select
-import subprocess
-import sys
 import threading
 from collections import deque
 from typing import Callable
@@ -33,19 +28,10 @@ from typing import Callable
 import numpy as np
 
 from ..errors import CalculationError
-from .worker_setup import close_process
+from .processes import WorkerProcess
 
-#: Environment variables that set thread counts of OpenMP/BLAS in worker processes.
-THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 #: Tasks in flight per worker (hides the pipe round trip).
 IN_FLIGHT = 2
-
-
-def worker_environment() -> dict:
-    env = dict(os.environ)
-    for v in THREAD_VARIABLES:
-        env[v] = "1"
-    return env
 
 
 class WorkerPool:
@@ -53,23 +39,21 @@ class WorkerPool:
 
     def __init__(self, size: int):
         self.size = int(size)
-        self.procs = [subprocess.Popen([sys.executable, "-m", "vibest.calculation.worker_main"],
-                                       stdin=subprocess.PIPE, stdout=subprocess.PIPE, env=worker_environment())
-                      for _ in range(self.size)]
+        self.procs = [WorkerProcess("vibest.calculation.worker_main") for _ in range(self.size)]
         self.lock = threading.Lock()
         self._ready = [False] * self.size
 
     def alive(self) -> bool:
-        return all(p.poll() is None for p in self.procs)
+        return all(p.alive() for p in self.procs)
 
     def _read_ready(self, k: int, timeout_s: float | None) -> bool:
         """Consume worker k's start-up message if it is there (wait up to ``timeout_s``; None: block)."""
         if self._ready[k]:
             return True
         proc = self.procs[k]
-        if timeout_s is not None and not select.select([proc.stdout], [], [], timeout_s)[0]:
+        if timeout_s is not None and not proc.has_output(timeout_s):
             return False
-        kind, _ = pickle.load(proc.stdout)
+        kind, _ = proc.receive()
         self._ready[k] = kind == "ready"
         return self._ready[k]
 
@@ -82,20 +66,11 @@ class WorkerPool:
 
     def close(self) -> None:
         for p in self.procs:
-            try:
-                if p.poll() is None:
-                    pickle.dump("exit", p.stdin)
-                    p.stdin.close()
-            except (OSError, ValueError):
-                pass
-        for p in self.procs:
-            close_process(p, 5.0)
+            p.close("exit", 5.0)
 
     def kill(self) -> None:
         for p in self.procs:
-            if p.poll() is None:
-                p.kill()
-        self.close()
+            p.kill()
 
     def _serve(self, k: int, header, pending: deque, guard: threading.Lock, out: queue.Queue,
                started: threading.Event) -> None:
@@ -103,7 +78,7 @@ class WorkerPool:
         try:
             self._read_ready(k, None)
             started.set()
-            pickle.dump(header, proc.stdin)
+            proc.send(header, flush=False)
             in_flight = 0
             finished = False
             while True:
@@ -111,13 +86,13 @@ class WorkerPool:
                     with guard:
                         task = pending.popleft() if pending else None
                     if task is None:
-                        pickle.dump(None, proc.stdin)
+                        proc.send(None, flush=False)
                         finished = True
                     else:
-                        pickle.dump(task, proc.stdin)
+                        proc.send(task, flush=False)
                         in_flight += 1
-                proc.stdin.flush()
-                kind, payload = pickle.load(proc.stdout)
+                proc.flush()
+                kind, payload = proc.receive()
                 if kind == "result":
                     in_flight -= 1
                     out.put(("result", payload))
