@@ -127,6 +127,30 @@ def cases(f: dict[str, Path], tmp: Path) -> list[tuple[str, list[str], str]]:
     out.append(("check decoys -1", ["check", str(f["good.csv"]), "CC=O", "--decoys", "-1"], "refuse"))
     out.append(("check bad SMILES", ["check", str(f["good.csv"]), "C1CC"], "refuse"))
     out.append(("check ok", ["check", str(f["good.csv"]), "CC=O", "--decoys", "2"], "ok"))
+    good = str(f["good.csv"])
+    for name in ("zeros.csv", "flat.csv", "pipe.csv", "binary.jdx"):
+        out.append((f"difference {name}", ["difference", good, str(f[name])], "refuse"))
+    out.append(("difference no overlap", ["difference", good, str(f["partial.csv"]), "--scale-on", "100", "200"],
+                "refuse"))
+    out.append(("difference both scalings", ["difference", good, good, "--scale-on", "1600", "1800", "--no-scaling"],
+                "refuse"))
+    out.append(("difference ok", ["difference", good, str(f["partial.csv"]), "--start", "CC=O", "--product", "CC(=O)O"],
+                "ok"))
+    out.append(("components none", ["components", good], "refuse"))
+    out.append(("components twice", ["components", good, "--smiles", "CC=O", "--smiles", "O=CC"], "refuse"))
+    out.append(("components bad SMILES", ["components", good, "--smiles", "C1CC"], "refuse"))
+    out.append(("components bad concentration", ["components", good, "--reference", f"{good}@lots"], "refuse"))
+    out.append(("components ok", ["components", good, "--smiles", "CC=O acetaldehyde", "--smiles", "O water"], "ok"))
+    listing = tmp / "runs.csv"
+    listing.write_text(f"file,time_min\n{good},0\n{good},not-a-time\n")
+    out.append(("series bad time", ["series", "--list", str(listing), "--start", "CC=O", "--product", "CCO"],
+                "refuse"))
+    out.append(("series one file", ["series", good, "--start", "CC=O", "--product", "CCO"], "refuse"))
+    out.append(("series undated files", ["series", good, good, "--start", "CC=O", "--product", "CCO"], "refuse"))
+    valid = tmp / "runs2.csv"
+    valid.write_text(f"file,time_min\n{good},0\n{good},10\n")
+    out.append(("series same structures", ["series", "--list", str(valid), "--start", "CCO", "--product", "OCC"],
+                "refuse"))
     foreign = tmp / "foreign.sqlite"
     import sqlite3
 

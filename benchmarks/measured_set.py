@@ -57,13 +57,8 @@ def _sha256(path: Path) -> str:
     return h.hexdigest()
 
 
-def fetch(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
-    """Folder holding the listed .jdx files (downloading and verifying the sdist once)."""
-    root = directory or cache_dir()
-    out = root / "jcamp-1.3.2-infrared"
-    wanted = [e.file for e in entries()]
-    if all((out / f).exists() for f in wanted):
-        return out
+def _verified_sdist(root: Path, timeout_s: float) -> Path:
+    """The jcamp 1.3.2 sdist in ``root``, downloaded if missing, SHA-256 checked."""
     root.mkdir(parents=True, exist_ok=True)
     sdist = root / SDIST
     if not sdist.exists() or _sha256(sdist) != SHA256:
@@ -78,10 +73,38 @@ def fetch(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
     digest = _sha256(sdist)
     if digest != SHA256:
         raise IntegrityError(f"jcamp-1.3.2.tar.gz has SHA-256 {digest}, expected {SHA256}")
+    return sdist
+
+
+def _extract(sdist: Path, member_dir: str, files: list[str], out: Path) -> Path:
     out.mkdir(parents=True, exist_ok=True)
     with tarfile.open(sdist) as tar:
-        for f in wanted:
-            member = tar.getmember(MEMBER_DIR + f)
-            data = tar.extractfile(member).read()
-            (out / f).write_bytes(data)
+        for f in files:
+            (out / f).write_bytes(tar.extractfile(tar.getmember(member_dir + f)).read())
     return out
+
+
+def fetch(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
+    """Folder holding the listed .jdx files (downloading and verifying the sdist once)."""
+    root = directory or cache_dir()
+    out = root / "jcamp-1.3.2-infrared"
+    wanted = [e.file for e in entries()]
+    if all((out / f).exists() for f in wanted):
+        return out
+    return _extract(_verified_sdist(root, timeout_s), MEMBER_DIR, wanted, out)
+
+
+#: Mass spectra of the same sdist (data/mass_spectra/), for the mass-spectrum cross-check; like
+#: the infrared files they are read at run time, never stored in this repository.
+MASS_SPECTRA_DIR = "jcamp-1.3.2/data/mass_spectra/"
+MASS_SPECTRA = ("1-propanol_ms.jdx", "ethanol_ms.jdx", "Tetrachloroethylene_ms.jdx", "118-96-7-Mass.jdx",
+                "CH4_CI.jdx")
+
+
+def fetch_mass_spectra(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
+    """Folder holding the sdist's mass spectra (:data:`MASS_SPECTRA`)."""
+    root = directory or cache_dir()
+    out = root / "jcamp-1.3.2-mass"
+    if all((out / f).exists() for f in MASS_SPECTRA):
+        return out
+    return _extract(_verified_sdist(root, timeout_s), MASS_SPECTRA_DIR, list(MASS_SPECTRA), out)

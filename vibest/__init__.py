@@ -21,7 +21,8 @@ _LAZY = {"predict": "pipeline", "analyse": "pipeline", "compute_record": "pipeli
          "HessianRecord": "calculation.record", "calculation_options": "calculation.driver",
          "check_structure": "verdict", "make_decoys": "decoys",
          "compare": "comparison", "ComparisonOptions": "comparison", "rank_candidates": "ranking",
-         "load_spectrum": "measured",
+         "load_spectrum": "measured", "difference_spectrum": "difference", "fit_components": "components",
+         "Component": "components", "conversion_series": "series", "load_series": "series",
          "predict_many": "batch", "RecordStore": "store"}
 
 __all__ = [*_LAZY, "InputError", "CalculationError", "VibestError", "__version__"]

@@ -3,8 +3,9 @@
 Commands: ``predict`` (one structure), ``compare`` (one structure against a measured spectrum),
 ``rank`` (many candidates against a measured spectrum), ``check`` (is a measured sample the
 intended structure? verdict, decoys, confidence, group evidence), ``batch`` (many structures,
-result store), ``store`` (what the store holds), ``methods`` and ``solvents`` (what --method and
---solvent accept).
+result store), ``difference`` (what changed between two measured spectra), ``components`` (a
+measured spectrum as a mixture of components), ``series`` (conversion over time), ``store`` (what the store holds), ``methods`` and
+``solvents`` (what --method and --solvent accept).
 Exit codes: 0 success, 2 bad input (one-line message), 3 calculation failed, 130 interrupted.
 """
 
@@ -742,6 +743,187 @@ def store_command(store_path, list_rows) -> None:
                            f"{'' if energy is None else f'{energy:.8f}':>16}  {method[:22]:<22}  {smiles}"
                            + (f"  ({name})" if name else ""))
         store.close()
+
+
+def result_outputs(csv_help: str, plot_help: str, json_help: str):
+    """--csv, --plot, --json of a command whose result has write_csv and to_dict, then the store
+    options and -q (see :func:`_write_result`)."""
+    def deco(f):
+        for opt in reversed([
+            click.option("--csv", "csv_path", metavar="FILE", help=csv_help),
+            click.option("--plot", "plot_path", metavar="FILE", help=plot_help + " (.png, .svg, .pdf)."),
+            click.option("--json", "json_path", metavar="FILE", help=json_help),
+        ]):
+            f = opt(f)
+        f = store_options(f)
+        return click.option("-q", "--quiet", is_flag=True, help="No progress output.")(f)
+    return deco
+
+
+def _y_kind(what: str):
+    return click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
+                        help=f"What the Y values of {what} are (CSV); default: from the file's units, else guessed.")
+
+
+def _write_result(result, plot, csv_path, plot_path, json_path) -> None:
+    """Echo the caution and write the result's CSV, plot (``plot(result, path)``) and JSON."""
+    from .files import atomic_write_text
+    from .pipeline import CAUTION
+
+    click.echo(f"# caution: {CAUTION}")
+    _write_all([("--csv", csv_path, lambda: result.write_csv(csv_path)),
+                ("--plot", plot_path, lambda: plot(result, plot_path)),
+                ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(result.to_dict(), indent=1)))])
+
+
+@main.command("difference")
+@click.argument("before", type=click.Path(dir_okay=False))
+@click.argument("after", type=click.Path(dir_okay=False))
+@click.option("--start", "start_smiles", metavar="SMILES", default=None,
+              help="Starting material: the bands that go are named by its predicted bands.")
+@click.option("--product", "product_smiles", metavar="SMILES", default=None,
+              help="Product: the bands that appear are named by its predicted bands.")
+@click.option("--scale-on", type=(float, float), default=None, metavar="LOW HIGH",
+              help="Scale BEFORE on the band in this window, cm^-1 (a solvent or standard band) "
+                   "[automatic: the strongest band both share].")
+@click.option("--no-scaling", is_flag=True, help="Keep both spectra as recorded (same cell and path length).")
+@click.option("--baseline", is_flag=True, help="Subtract a rubber-band baseline from both first.")
+@_y_kind("both files")
+@calculation_options
+@spectrum_options
+@result_outputs("Curves and their difference as CSV.", "Both spectra and the difference", "The band changes as JSON.")
+def difference_command(before, after, start_smiles, product_smiles, scale_on, no_scaling, baseline, y_kind,
+                       calc_values, scale_factor, scale_model, fwhm, line_shape, csv_path, plot_path, json_path,
+                       store_path, no_store, quiet) -> None:
+    """What changed from BEFORE to AFTER (two measured spectra): the difference spectrum and the
+    bands that appear or go, named by the predicted bands of --start and --product."""
+    from .difference import difference_spectrum, plot_difference
+    from .measured import load_spectrum
+    from .ranking import predict_stored
+
+    progress = ProgressLine(enabled=not quiet)
+    with _user_errors(progress):
+        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path})
+        if no_scaling and scale_on:
+            raise InputError("--scale-on and --no-scaling exclude each other")
+        specs = [load_spectrum(p, kind=y_kind) for p in (before, after)]
+        calc = _calc_options(**calc_values)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        store = _store(store_path, no_store)
+        preds = [predict_stored(s, calc, sopts, store, progress)[0] if s else None
+                 for s in (start_smiles, product_smiles)]
+        progress.finish()
+        diff = difference_spectrum(*specs, scale_on_cm1=scale_on, scale=1.0 if no_scaling else None, start=preds[0],
+                          product=preds[1], baseline=baseline)
+        for spec in specs:
+            for note in spec.notes:
+                click.echo(f"# note: {spec.source}: {note}")
+        click.echo(diff.summary())
+        _write_result(diff, plot_difference, csv_path, plot_path, json_path)
+
+
+def _reference_arg(text: str) -> tuple[str, str, float | None]:
+    """--reference 'FILE[=NAME][@CONCENTRATION]' -> (file, name, concentration)."""
+    what, conc = text, None
+    if "@" in text:
+        what, _, c = text.rpartition("@")
+        try:
+            conc = float(c)
+        except ValueError:
+            raise InputError(f"--reference {text!r}: the concentration after @ must be a number") from None
+    path, _, name = what.partition("=")
+    if not path.strip():
+        raise InputError(f"--reference {text!r}: no file before the name")
+    return path.strip(), (name.strip() or Path(path.strip()).name), conc
+
+
+def _smiles_arg(text: str) -> tuple[str, str]:
+    """--smiles 'SMILES [NAME]' (a space ends a SMILES, as in SMILES files) -> (smiles, name)."""
+    parts = text.strip().split(None, 1)
+    if not parts:
+        raise InputError("--smiles: empty")
+    return parts[0], (parts[1].strip() if len(parts) > 1 else parts[0])
+
+
+@main.command("components")
+@click.argument("measured", type=click.Path(dir_okay=False))
+@click.option("--smiles", "smiles_list", multiple=True, metavar="'SMILES [NAME]'",
+              help="A predicted component, optionally named after a space (repeat for more).")
+@click.option("--reference", "references", multiple=True, metavar="FILE[=NAME][@CONC]",
+              help="A measured reference spectrum, optionally with the concentration it was recorded at (repeat).")
+@click.option("--compare-range", type=(float, float), default=None, metavar="LOW HIGH",
+              help="Wavenumber range fitted, cm^-1 [500 3800].")
+@click.option("--baseline", is_flag=True, help="Subtract a rubber-band baseline from the measured spectrum.")
+@_y_kind("the files")
+@calculation_options
+@spectrum_options
+@result_outputs("One row per component as CSV.", "Measured spectrum with the stacked components", "The fit as JSON.")
+def components_command(measured, smiles_list, references, compare_range, baseline, y_kind, calc_values, scale_factor,
+                       scale_model, fwhm, line_shape, csv_path, plot_path, json_path, store_path, no_store,
+                       quiet) -> None:
+    """Fit MEASURED as a non-negative mixture of components (predicted from --smiles, or measured
+    --reference files): absorbance and estimated mole fractions with uncertainties."""
+    from .comparison import DEFAULT_COMPARE_RANGE_CM1, check_range
+    from .components import Component, fit_components, plot_components
+    from .measured import load_spectrum
+    from .ranking import predict_stored
+
+    progress = ProgressLine(enabled=not quiet)
+    with _user_errors(progress):
+        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path})
+        if not smiles_list and not references:
+            raise InputError("give the components: --smiles SMILES and/or --reference FILE (each repeatable)")
+        rng = tuple(compare_range) if compare_range else DEFAULT_COMPARE_RANGE_CM1
+        check_range(rng)
+        spec = load_spectrum(measured, kind=y_kind)
+        calc = _calc_options(**calc_values)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        store = _store(store_path, no_store)
+        comps = []
+        for text in references:
+            path, name, conc = _reference_arg(text)
+            comps.append(Component(name, reference=load_spectrum(path, kind=y_kind), concentration=conc))
+        for k, text in enumerate(smiles_list):
+            smiles, name = _smiles_arg(text)
+            progress("components", k, len(smiles_list), name)
+            comps.append(Component(name, prediction=predict_stored(smiles, calc, sopts, store, progress)[0]))
+        progress.finish()
+        fit = fit_components(spec, comps, range_cm1=rng, baseline=baseline)
+        click.echo(fit.summary())
+        _write_result(fit, plot_components, csv_path, plot_path, json_path)
+
+
+@main.command("series")
+@click.argument("files", nargs=-1, type=click.Path(dir_okay=False))
+@click.option("--list", "list_path", type=click.Path(dir_okay=False), default=None,
+              help="CSV with a 'file' and a 'time_<unit>' column (e.g. time_min) [else: the JCAMP-DX date/time labels].")
+@click.option("--start", "start_smiles", metavar="SMILES", required=True, help="Starting material.")
+@click.option("--product", "product_smiles", metavar="SMILES", required=True, help="Product.")
+@click.option("--conversion-by", "series_method", type=click.Choice(["band", "fit"]), default="band", show_default=True,
+              help="Conversion from the fading diagnostic band of the starting material, or from a component fit.")
+@_y_kind("the files")
+@calculation_options
+@spectrum_options
+@result_outputs("Conversion against time as CSV.", "Conversion against time", "The series as JSON.")
+def series_command(files, list_path, start_smiles, product_smiles, series_method, y_kind, calc_values, scale_factor,
+                   scale_model, fwhm, line_shape, csv_path, plot_path, json_path, store_path, no_store, quiet) -> None:
+    """Conversion of --start to --product over time, from measured FILES (or --list) of a reaction,
+    with the diagnostic band used."""
+    from .ranking import predict_stored
+    from .series import conversion_series, load_series, plot_series
+
+    progress = ProgressLine(enabled=not quiet)
+    with _user_errors(progress):
+        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path})
+        spectra, times, unit = load_series(list_path, list(files), kind=y_kind)
+        calc = _calc_options(**calc_values)
+        sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        store = _store(store_path, no_store)
+        start, product = (predict_stored(s, calc, sopts, store, progress)[0] for s in (start_smiles, product_smiles))
+        progress.finish()
+        series = conversion_series(spectra, times, start, product, time_unit=unit, method=series_method)
+        click.echo(series.summary())
+        _write_result(series, plot_series, csv_path, plot_path, json_path)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -8,6 +8,7 @@ say what was converted or guessed.
 from __future__ import annotations
 
 import dataclasses
+import datetime
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -35,6 +36,8 @@ class MeasuredSpectrum:
         title: the file's title, if any.
         notes: conversions and guesses made while reading.
         phase: "gas" when the file says the sample was a gas or vapour (JCAMP-DX ##STATE), else "".
+        recorded_at: when the spectrum was recorded, if the file says (JCAMP-DX ##LONGDATE, or
+            ##DATE YY/MM/DD with ##TIME); None otherwise.
     """
 
     wavenumbers_cm1: np.ndarray
@@ -44,6 +47,7 @@ class MeasuredSpectrum:
     title: str = ""
     notes: tuple[str, ...] = ()
     phase: str = ""
+    recorded_at: datetime.datetime | None = None
 
     def with_note(self, note: str) -> "MeasuredSpectrum":
         return dataclasses.replace(self, notes=self.notes + (note,))
@@ -198,7 +202,37 @@ def _from_jcamp(p: Path, data: bytes, kind: str | None, block: int | None) -> Me
     spec = finish(x, y, kind, str(p), blk.title(), xnotes + ynotes)
     if state.startswith(("gas", "vapor", "vapour")):
         spec = dataclasses.replace(spec, phase="gas")
+    when = recorded_at(blk.labels)
+    if when is not None:
+        spec = dataclasses.replace(spec, recorded_at=when)
+    elif blk.labels.get("LONGDATE") or blk.labels.get("DATE"):
+        spec = spec.with_note("its date/time labels could not be read as a date")
     return spec
+
+
+_LONGDATE = re.compile(r"^\s*(\d{4})[/-](\d{1,2})[/-](\d{1,2})(?:[ T]+(\d{1,2}):(\d{2})(?::(\d{2})(?:\.\d*)?)?)?")
+_SHORT = re.compile(r"^\s*(\d{2})/(\d{1,2})/(\d{1,2})\s*$")
+_TIME = re.compile(r"^\s*(\d{1,2}):(\d{2})(?::(\d{2}))?")
+
+
+def recorded_at(labels: dict[str, str]) -> datetime.datetime | None:
+    """The recording time of a JCAMP-DX block: ##LONGDATE (YYYY/MM/DD [HH:MM[:SS]], JCAMP-DX 5.01)
+    or else ##DATE (YY/MM/DD, JCAMP-DX 4.24; years 00-69 read as 20xx) with ##TIME; None when
+    absent or not a valid date. A time zone after the time is ignored."""
+    try:
+        m = _LONGDATE.match(labels.get("LONGDATE", ""))
+        if m:
+            y, mo, d, h, mi, s = (int(v) if v else 0 for v in m.groups())
+            return datetime.datetime(y, mo, d, h, mi, s)
+        m = _SHORT.match(labels.get("DATE", ""))
+        if m:
+            yy, mo, d = (int(v) for v in m.groups())
+            t = _TIME.match(labels.get("TIME", ""))
+            h, mi, s = (int(v) if v else 0 for v in t.groups()) if t else (0, 0, 0)
+            return datetime.datetime(2000 + yy if yy < 70 else 1900 + yy, mo, d, h, mi, s)
+    except ValueError:  # month 13, hour 25, ...
+        return None
+    return None
 
 
 def _kind_from_header(header: str) -> str | None:
