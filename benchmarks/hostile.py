@@ -141,6 +141,13 @@ def cases(f: dict[str, Path], tmp: Path) -> list[tuple[str, list[str], str]]:
     out.append(("components bad SMILES", ["components", good, "--smiles", "C1CC"], "refuse"))
     out.append(("components bad concentration", ["components", good, "--reference", f"{good}@lots"], "refuse"))
     out.append(("components ok", ["components", good, "--smiles", "CC=O acetaldehyde", "--smiles", "O water"], "ok"))
+    out.append(("rank --ms on an IR file", ["rank", good, "CCO", "--ms", good], "refuse"))
+    out.append(("rank --ms on a folder", ["rank", good, "CCO", "--ms", str(tmp)], "refuse"))
+    out.append(("rank --formula nonsense", ["rank", good, "CCO", "--formula", "c2h6o"], "refuse"))
+    out.append(("rank --mass 0", ["rank", good, "CCO", "--mass", "0"], "refuse"))
+    out.append(("rank --ms-drop alone", ["rank", good, "CCO", "--ms-drop"], "refuse"))
+    out.append(("rank --mass drops all", ["rank", good, "CCO", "--mass", "99", "--ms-drop"], "refuse"))
+    out.append(("rank --formula ok", ["rank", good, "CCO", "CC=O", "--formula", "C2H6O", "--ms-drop"], "ok"))
     listing = tmp / "runs.csv"
     listing.write_text(f"file,time_min\n{good},0\n{good},not-a-time\n")
     out.append(("series bad time", ["series", "--list", str(listing), "--start", "CC=O", "--product", "CCO"],

@@ -57,3 +57,21 @@ def measured_folder():
         pytest.fail(f"measured spectra do not verify: {exc}")
     except measured_set.FetchError as exc:
         pytest.skip(f"measured spectra not available: {exc}")
+
+
+@pytest.fixture(scope="session")
+def mass_folder():
+    """Folder of the real mass spectra of the jcamp 1.3.2 sdist (data/mass_spectra; fetched and
+    SHA-256-checked at test time like the infrared files)."""
+    import sys
+    from pathlib import Path
+
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+    import measured_set
+
+    try:
+        return measured_set.fetch_mass_spectra()
+    except measured_set.IntegrityError as exc:
+        pytest.fail(f"mass spectra do not verify: {exc}")
+    except measured_set.FetchError as exc:
+        pytest.skip(f"mass spectra not available: {exc}")

@@ -209,6 +209,35 @@ def store_options(f):
     return f
 
 
+def mass_options(f):
+    """What is known of the sample's mass (vibest.ms): a mass spectrum, formula or nominal mass."""
+    for opt in reversed([
+        click.option("--ms", "ms_path", type=click.Path(dir_okay=False), default=None, metavar="FILE",
+                     help="Mass spectrum of the sample (JCAMP-DX or CSV of m/z, intensity): candidates are checked "
+                          "against its molecular ion and isotope pattern."),
+        click.option("--ms-block", type=click.IntRange(min=1), default=None, metavar="N",
+                     help="Block number in a JCAMP-DX file of several [the first mass spectrum]."),
+        click.option("--formula", default=None, metavar="FORMULA", help="Molecular formula of the sample, e.g. C2Cl4."),
+        click.option("--mass", "nominal_mass", type=click.IntRange(min=1), default=None, metavar="M",
+                     help="Nominal molecular mass of the sample."),
+        click.option("--ms-drop", is_flag=True, help="Leave out candidates the mass evidence contradicts."),
+    ]):
+        f = opt(f)
+    return f
+
+
+def _mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop):
+    """vibest.ms.MassEvidence of the mass options, or None when none was given."""
+    from .ms import MassEvidence, load_mass_spectrum
+
+    if ms_path is None and formula is None and nominal_mass is None:
+        if ms_drop or ms_block:
+            raise InputError("--ms-drop and --ms-block need --ms, --formula or --mass")
+        return None
+    spectrum = load_mass_spectrum(ms_path, block=ms_block) if ms_path else None
+    return MassEvidence(spectrum, formula, nominal_mass, ms_drop)
+
+
 def _phase(choice: str):
     return {"auto": None, "gas": True, "condensed": False}[choice]
 
@@ -492,14 +521,15 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
               help="Recompute the best K candidates at --refine-method and rank them again.")
 @click.option("--refine-method", default="b3lyp", show_default=True, metavar="METHOD",
               help="Level of theory for --refine (a density-functional one, e.g. b3lyp or gfn2+b3lyp).")
+@mass_options
 @click.option("--decoys", type=click.IntRange(min=0), default=0, show_default=True, metavar="N",
               help="Also rank up to N decoys (isomers, functional-group changes) of each candidate.")
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
                  max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor, scale_model,
-                 fwhm, line_shape, csv_path, json_path, plot_dir, top, refine, refine_method, decoys, store_path,
-                 no_store, quiet) -> None:
+                 fwhm, line_shape, csv_path, json_path, plot_dir, top, refine, refine_method, ms_path, ms_block,
+                 formula, nominal_mass, ms_drop, decoys, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
     from .confidence import assess
@@ -519,6 +549,14 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
             raise InputError("give candidate SMILES as arguments or with --candidates-file")
         if decoys:
             cands = with_decoys(cands, decoys)
+        evidence = _mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop)
+        checks = evidence.checks(cands) if evidence else []
+        dropped = {c.smiles for c in checks if evidence.drop and c.status == "contradicted"}
+        if dropped and len(dropped) == len({c.smiles for c in cands}):
+            raise InputError("the mass evidence contradicts every candidate ("
+                             + "; ".join(f"{c.name}: {c.reason}" for c in checks[:3]) + (" ..." if len(checks) > 3 else "")
+                             + ")")
+        cands = [c for c in cands if c.smiles not in dropped]
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
@@ -539,9 +577,13 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
                              + (" ..." if len(ranking.entries) > 3 else "") + ")")
         assessment = assess(ranking, (refine_calc if refine else calc).method_name, sopts.fwhm_cm1)
         click.echo(output.ranking_table(ranking, assessment))
+        if checks:
+            click.echo(f"\nmass evidence ({evidence.describe()}):\n" + output.mass_table(checks)
+                       + "".join(f"\n  dropped from the ranking: {c.name}" for c in checks if c.smiles in dropped))
         items = [("--csv", csv_path, lambda: ranking.write_csv(csv_path)),
                  ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
-                     ranking.to_dict() | {"assessment": assessment.to_dict()}, indent=1)))]
+                     ranking.to_dict() | {"assessment": assessment.to_dict(),
+                                          "mass_checks": [c.to_dict() for c in checks]}, indent=1)))]
         if plot_dir:
             for e in [e for e in ranking.entries if e.comparison][:top]:
                 path = Path(plot_dir) / f"rank{e.rank}.png"
@@ -564,13 +606,15 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 @comparison_options
 @calculation_options
 @spectrum_options
+@mass_options
 @click.option("--json", "json_path", metavar="FILE", help="The verdict with ranking and evidence as JSON.")
 @click.option("--plot", "plot_path", metavar="FILE", help="Overlay of the intended structure (.png, .svg, .pdf).")
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block, score_name, compare_range, fit_scale,
                   fit_shift, max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor,
-                  scale_model, fwhm, line_shape, json_path, plot_path, store_path, no_store, quiet) -> None:
+                  scale_model, fwhm, line_shape, ms_path, ms_block, formula, nominal_mass, ms_drop, json_path, plot_path,
+                  store_path, no_store, quiet) -> None:
     """Is the MEASURED sample the structure SMILES? A verdict in plain words, with its decoys
     ranked, a calibrated confidence, flags and the evidence of each functional group."""
     from . import output
@@ -593,7 +637,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
         verdict = check_structure(spec, smiles, name=name, decoys=decoys, candidates=extra, calc=calc, spec=sopts,
                                   store=_store(store_path, no_store), progress=report,
                                   options=_comparison(score_name, compare_range, fit_scale, fit_shift, max_shift,
-                                                      baseline, tolerance, phase, intensity_power))
+                                                      baseline, tolerance, phase, intensity_power),
+                                  mass_evidence=_mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop))
         progress.finish()
         click.echo(output.verdict_report(verdict))
         mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)

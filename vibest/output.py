@@ -359,6 +359,13 @@ def ensemble_table(ens) -> str:
     return "\n".join(lines)
 
 
+def mass_table(checks) -> str:
+    """Candidates against the mass evidence (vibest.ms), one row each."""
+    from .ms import table
+
+    return table(list(checks))
+
+
 def verdict_report(verdict) -> str:
     """The verdict of vibest.verdict.check_structure as text: conclusion, reasons, how sure,
     the ranking, and the evidence by functional group."""
@@ -382,5 +389,8 @@ def verdict_report(verdict) -> str:
     absent = [e.name for e in verdict.evidence if not e.in_structure and e.status == "absent"]
     if absent:
         lines.append(f"  no strong band of groups the structure lacks: {', '.join(absent)}")
+    if verdict.mass_checks:
+        lines += ["", "mass evidence:"] + [f"  {line}" for line in mass_table(verdict.mass_checks).splitlines()]
+        lines += [f"  dropped from the ranking: {c.name}" for c in verdict.dropped]
     lines.append(f"# caution: {CAUTION}")
     return "\n".join(lines)

@@ -27,6 +27,7 @@ from .decoys import Decoy, make_decoys
 from .errors import InputError
 from .evidence import GroupEvidence, group_evidence
 from .measured import MeasuredSpectrum
+from .ms import CONTRADICTED, MassEvidence, MsCheck
 from .pipeline import CAUTION, SpectrumOptions
 from .ranking import Candidate, Ranking, rank_candidates
 from .store import RecordStore
@@ -48,6 +49,8 @@ class Verdict:
         assessment: confidence of the ranking's first candidate and its flags.
         evidence: functional-group evidence for the intended structure.
         decoys: the decoys that were ranked (with why each was made).
+        mass_checks: each candidate against the mass evidence, when given (:mod:`vibest.ms`).
+        dropped: candidates left out because the mass evidence contradicts them (``drop``).
     """
 
     intended: Candidate
@@ -57,6 +60,8 @@ class Verdict:
     assessment: Assessment
     evidence: tuple[GroupEvidence, ...]
     decoys: tuple[Decoy, ...]
+    mass_checks: tuple[MsCheck, ...] = ()
+    dropped: tuple[MsCheck, ...] = ()
 
     @property
     def intended_rank(self) -> int | None:
@@ -70,6 +75,8 @@ class Verdict:
                 "conclusion": self.conclusion, "reasons": list(self.reasons), "intended_rank": self.intended_rank,
                 "assessment": self.assessment.to_dict(), "evidence": [e.to_dict() for e in self.evidence],
                 "decoys": [{"smiles": d.smiles, "reason": d.reason} for d in self.decoys],
+                "mass_checks": [c.to_dict() for c in self.mass_checks],
+                "dropped_by_mass": [c.to_dict() for c in self.dropped],
                 "ranking": self.ranking.to_dict()}
 
 
@@ -77,12 +84,16 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
                     decoys: int = DEFAULT_DECOYS, candidates: list[Candidate] | tuple = (),
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
                     store: RecordStore | None = None, progress: Callable[[int, int, str], None] | None = None,
-                    options: ComparisonOptions | None = None, **changes) -> Verdict:
+                    options: ComparisonOptions | None = None, mass_evidence: MassEvidence | None = None,
+                    **changes) -> Verdict:
     """Judge whether ``measured`` is the structure ``smiles`` (see the module docstring).
 
     ``decoys``: how many generated decoys to rank with it; ``candidates``: further structures to
     rank; ``options`` (:class:`vibest.comparison.ComparisonOptions`, any field also as a keyword)
-    say how each is compared (and the confidence is given only for the settings it was calibrated for)."""
+    say how each is compared (and the confidence is given only for the settings it was calibrated for).
+    ``mass_evidence``: a mass spectrum, formula or mass (:class:`vibest.ms.MassEvidence`); each
+    candidate is checked against it, contradicted decoys are dropped when it says so, and an
+    intended structure it contradicts is not supported whatever the IR ranking."""
     if decoys < 0:
         raise InputError("the number of decoys cannot be negative")
     own = canonical_smiles(smiles)
@@ -98,6 +109,8 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
         if key not in seen:
             seen.add(key)
             pool.append(c)
+    checks, dropped = _mass_checks(mass_evidence, pool, intended)
+    pool = [c for c in pool if c.smiles not in {d.smiles for d in dropped}]
     ranking = rank_candidates(measured, pool, calc=calc, spec=spec, store=store, progress=progress, options=options,
                               **changes)
     entry = next(e for e in ranking.entries if e.candidate == intended)
@@ -109,7 +122,20 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
         assessment = assess(ranking, calc.method_name, spec.fwhm_cm1)
     evidence = tuple(group_evidence(entry.prediction, entry.comparison))
     conclusion, reasons = _conclude(intended, ranking, assessment, evidence)
-    return Verdict(intended, conclusion, tuple(reasons), ranking, assessment, evidence, made)
+    mine = next((c for c in checks if c.smiles == intended.smiles), None)
+    if mine is not None and mine.status == CONTRADICTED:
+        conclusion, reasons = NOT_SUPPORTED, [f"the mass evidence contradicts {intended.name}: {mine.reason}"] + reasons
+    return Verdict(intended, conclusion, tuple(reasons), ranking, assessment, evidence, made, tuple(checks),
+                   tuple(dropped))
+
+
+def _mass_checks(evidence: MassEvidence | None, pool: list[Candidate], intended: Candidate):
+    """(checks of every candidate, the contradicted ones to drop: never the intended structure)."""
+    if evidence is None:
+        return [], []
+    checks = evidence.checks(pool)
+    dropped = [c for c in checks if evidence.drop and c.status == CONTRADICTED and c.smiles != intended.smiles]
+    return checks, dropped
 
 
 def _conclude(intended: Candidate, ranking: Ranking, assessment: Assessment,

@@ -205,8 +205,6 @@ def _from_jcamp(p: Path, data: bytes, kind: str | None, block: int | None) -> Me
     when = recorded_at(blk.labels)
     if when is not None:
         spec = dataclasses.replace(spec, recorded_at=when)
-    elif blk.labels.get("LONGDATE") or blk.labels.get("DATE"):
-        spec = spec.with_note("its date/time labels could not be read as a date")
     return spec
 
 
@@ -217,10 +215,15 @@ _TIME = re.compile(r"^\s*(\d{1,2}):(\d{2})(?::(\d{2}))?")
 
 def recorded_at(labels: dict[str, str]) -> datetime.datetime | None:
     """The recording time of a JCAMP-DX block: ##LONGDATE (YYYY/MM/DD [HH:MM[:SS]], JCAMP-DX 5.01)
-    or else ##DATE (YY/MM/DD, JCAMP-DX 4.24; years 00-69 read as 20xx) with ##TIME; None when
-    absent or not a valid date. A time zone after the time is ignored."""
+    or else ##DATE (YY/MM/DD, JCAMP-DX 4.24, years 00-69 read as 20xx; or YYYY/MM/DD) with
+    ##TIME; None when absent, only a year, or not a valid date. A time zone is ignored."""
     try:
-        m = _LONGDATE.match(labels.get("LONGDATE", ""))
+        m = _LONGDATE.match(labels.get("LONGDATE", "")) or _LONGDATE.match(labels.get("DATE", ""))
+        if m and not m.group(4) and labels.get("TIME") and not labels.get("LONGDATE"):
+            t = _TIME.match(labels.get("TIME", ""))
+            if t:
+                h, mi, s = (int(v) if v else 0 for v in t.groups())
+                return datetime.datetime(int(m.group(1)), int(m.group(2)), int(m.group(3)), h, mi, s)
         if m:
             y, mo, d, h, mi, s = (int(v) if v else 0 for v in m.groups())
             return datetime.datetime(y, mo, d, h, mi, s)
