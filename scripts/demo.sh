@@ -27,7 +27,8 @@ echo "== ranking candidate solvents against the (invented) measured spectrum of 
 echo
 echo "== is batch HX-07 2-butanone? verdict with decoys, confidence and group evidence =="
 .venv/bin/vibest check examples/hx07-recovered-solvent.csv "CCC(C)=O" --name 2-butanone --y-kind transmittance \
-  --store out/demo/store.sqlite --json out/demo/hx07-verdict.json --plot out/demo/hx07-verdict.png
+  --store out/demo/store.sqlite --json out/demo/hx07-verdict.json --plot out/demo/hx07-verdict.png \
+  --report out/demo/hx07-verdict.html
 if [ "$with_dft" = 1 ]; then
   echo
   echo "== the best three candidates again at B3LYP-D3(BJ)/6-31G(d) (minutes) =="

@@ -107,8 +107,11 @@ def test_formula_and_mass_alone_decide():
     assert ms.check_candidate("CC=O", mass=46).reason == "nominal mass 44, not the given 46"
 
 
-@settings(max_examples=200, deadline=None)
-@given(st.binary(max_size=300))
+CSV_LIKE = st.text(alphabet="0123456789.,;\t\r\n -e#\"ab", max_size=200).map(str.encode)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.one_of(st.binary(max_size=300), CSV_LIKE))
 def test_mass_spectrum_csv_reader_gives_a_spectrum_or_one_input_error(tmp_path_factory, data):
     p = tmp_path_factory.mktemp("ms") / "ms.csv"
     p.write_bytes(data)

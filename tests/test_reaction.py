@@ -167,8 +167,9 @@ def test_jcamp_date_labels_never_break_reading(longdate, date, time):
     assert got is None or isinstance(got, datetime.datetime)
 
 
-@settings(max_examples=150, deadline=None)
-@given(st.binary(max_size=400))
+@settings(max_examples=300, deadline=None)
+@given(st.one_of(st.binary(max_size=400),
+                 st.text(alphabet="filetm_,0123456789.\r\n \"#-", max_size=200).map(str.encode)))
 def test_series_list_reader_gives_rows_or_one_input_error(tmp_path_factory, data):
     p = tmp_path_factory.mktemp("lists") / "list.csv"
     p.write_bytes(data)

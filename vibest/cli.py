@@ -238,6 +238,17 @@ def _mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop):
     return MassEvidence(spectrum, formula, nominal_mass, ms_drop)
 
 
+def report_option(f):
+    return click.option("--report", "report_path", metavar="FILE.html", default=None,
+                        help="One self-contained HTML report (interactive overlays, tables, method; opens offline).")(f)
+
+
+def _check_report(report_path) -> None:
+    from .files import check_outputs
+
+    check_outputs({"--report": report_path}, {"--report": (".html", ".htm")})
+
+
 def _phase(choice: str):
     return {"auto": None, "gas": True, "condensed": False}[choice]
 
@@ -334,6 +345,7 @@ def main() -> None:
 @click.option("--record", "record_path", metavar="FILE",
               help="Write the Hessian record (JSON) for later re-analysis without new gradients.")
 @click.option("--plot", "plot_path", metavar="FILE", help="Write a plot (.png, .svg or .pdf).")
+@report_option
 @click.option("--transmittance", is_flag=True, help="Plot %T instead of absorbance.")
 @click.option("--range", "range_cm1", type=(float, float), default=(400.0, 4000.0), show_default=True,
               metavar="LOW HIGH", help="Spectrum range, cm^-1.")
@@ -360,7 +372,7 @@ def main() -> None:
 @store_options
 @click.option("-v", "--verbose", is_flag=True, help="Show gradient counts and timings.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
-def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, transmittance,
+def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_path, plot_path, report_path, transmittance,
                     range_cm1, calc_values, scale_factor, scale_model, fwhm,
                     line_shape, min_intensity, isotopes, isotopes_csv, thermo, temperature, pressure, quasi_harmonic,
                     symmetry_number, conformers, max_conformers, energy_window, weighting, store_path, no_store,
@@ -374,9 +386,13 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--csv": csv_path, "--jcamp": jcamp_path, "--bands-csv": bands_csv, "--json": json_path,
-                        "--record": record_path, "--plot": plot_path, "--isotopes-csv": isotopes_csv})
+                        "--record": record_path, "--plot": plot_path, "--isotopes-csv": isotopes_csv,
+                        "--report": report_path})
         if isotopes_csv and not isotopes:
             raise InputError("--isotopes-csv needs at least one --isotope")
+        _check_report(report_path)
+        if report_path and conformers:
+            raise InputError("--report is not available with --conformers yet: use --json and --plot")
         _check_analysis_options(isotopes, temperature, pressure)
         if conformers:
             _predict_ensemble(smiles, progress, temperature=temperature, csv_path=csv_path, jcamp_path=jcamp_path,
@@ -385,8 +401,8 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                               spec=_spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
                               max_conformers=max_conformers, energy_window=energy_window, weighting=weighting)
             return
-        pred, _ = predict_stored(smiles, _calc_options(**calc_values),
-                                 _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
+        calc = _calc_options(**calc_values)
+        pred, _ = predict_stored(smiles, calc, _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1),
                                  _store(store_path, no_store), progress)
         progress.finish()
         click.echo(output.bands_table(pred, min_intensity, verbose=verbose))
@@ -409,7 +425,15 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                     ("--isotopes-csv", isotopes_csv, lambda: write_table(isotopes_csv, output.ISOTOPE_HEADER, iso_rows, {
                         "what": "vibest isotopologue band shifts", "smiles": pred.smiles, "caution": output.CAUTION})),
                     ("--record", record_path, lambda: pred.record.save(record_path)),
-                    ("--plot", plot_path, lambda: output.plot_prediction(pred, plot_path, transmittance=transmittance))])
+                    ("--plot", plot_path, lambda: output.plot_prediction(pred, plot_path, transmittance=transmittance)),
+                    ("--report", report_path, lambda: _report(report_path, "prediction_report", pred, calc))])
+
+
+def _report(path, builder: str, *args, **kwargs) -> None:
+    """Write the HTML report made by vibest.report.<builder>(*args, **kwargs)."""
+    from . import report
+
+    report.write_report(path, getattr(report, builder)(*args, **kwargs))
 
 
 def _check_analysis_options(isotopes, temperature_K: float, pressure_Pa: float) -> None:
@@ -470,11 +494,12 @@ def solvents_command() -> None:
 @spectrum_options
 @click.option("--plot", "plot_path", metavar="FILE", help="Overlay plot (.png, .svg, .pdf).")
 @click.option("--json", "json_path", metavar="FILE", help="Comparison with peak table as JSON.")
+@report_option
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, max_shift, baseline,
                     tolerance, phase, intensity_power, calc_values, scale_factor, scale_model, fwhm,
-                    line_shape, plot_path, json_path, store_path, no_store, quiet) -> None:
+                    line_shape, plot_path, json_path, report_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
     from .comparison import compare
@@ -484,7 +509,8 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--plot": plot_path, "--json": json_path})
+        _check_outputs({"--plot": plot_path, "--json": json_path, "--report": report_path}, plots=("--plot",))
+        _check_report(report_path)
         copts = _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
                             intensity_power)
         spec = load_spectrum(measured, kind=y_kind, block=block)
@@ -502,7 +528,9 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
                                                                       measured_label=f"measured {Path(measured).name}")),
                     ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
                         comp.to_dict(include_curves=True) | {"caution": output.CAUTION,
-                                                             "measured_notes": list(spec.notes)}, indent=1)))])
+                                                             "measured_notes": list(spec.notes)}, indent=1))),
+                    ("--report", report_path, lambda: _report(report_path, "comparison_report", comp, pred, spec,
+                                                              calc=calc))])
 
 
 @main.command("rank")
@@ -515,6 +543,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @spectrum_options
 @click.option("--csv", "csv_path", metavar="FILE", help="Ranked table as CSV.")
 @click.option("--json", "json_path", metavar="FILE", help="Ranking with peak tables as JSON.")
+@report_option
 @click.option("--plot-dir", metavar="DIR", default=None, help="Write overlay plots of the best candidates here.")
 @click.option("--top", type=click.IntRange(min=1), default=3, show_default=True, help="How many overlays to plot.")
 @click.option("--refine", type=click.IntRange(min=0), default=0, show_default=True, metavar="K",
@@ -528,7 +557,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
                  max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor, scale_model,
-                 fwhm, line_shape, csv_path, json_path, plot_dir, top, refine, refine_method, ms_path, ms_block,
+                 fwhm, line_shape, csv_path, json_path, report_path, plot_dir, top, refine, refine_method, ms_path, ms_block,
                  formula, nominal_mass, ms_drop, decoys, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
     from . import output
@@ -539,7 +568,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--csv": csv_path, "--json": json_path, "--plot-dir": None})
+        _check_outputs({"--csv": csv_path, "--json": json_path, "--plot-dir": None, "--report": report_path})
+        _check_report(report_path)
         if plot_dir:
             _check_outputs({"--plot-dir": str(Path(plot_dir) / "rank1.png")}, plots=())
         cands = [Candidate(s, s) for s in candidates]
@@ -583,7 +613,9 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         items = [("--csv", csv_path, lambda: ranking.write_csv(csv_path)),
                  ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(
                      ranking.to_dict() | {"assessment": assessment.to_dict(),
-                                          "mass_checks": [c.to_dict() for c in checks]}, indent=1)))]
+                                          "mass_checks": [c.to_dict() for c in checks]}, indent=1))),
+                 ("--report", report_path, lambda: _report(report_path, "ranking_report", ranking, assessment,
+                                                           refine_calc if refine else calc, checks, top=max(top, 3)))]
         if plot_dir:
             for e in [e for e in ranking.entries if e.comparison][:top]:
                 path = Path(plot_dir) / f"rank{e.rank}.png"
@@ -608,13 +640,14 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 @spectrum_options
 @mass_options
 @click.option("--json", "json_path", metavar="FILE", help="The verdict with ranking and evidence as JSON.")
+@report_option
 @click.option("--plot", "plot_path", metavar="FILE", help="Overlay of the intended structure (.png, .svg, .pdf).")
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block, score_name, compare_range, fit_scale,
                   fit_shift, max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor,
-                  scale_model, fwhm, line_shape, ms_path, ms_block, formula, nominal_mass, ms_drop, json_path, plot_path,
-                  store_path, no_store, quiet) -> None:
+                  scale_model, fwhm, line_shape, ms_path, ms_block, formula, nominal_mass, ms_drop, json_path,
+                  report_path, plot_path, store_path, no_store, quiet) -> None:
     """Is the MEASURED sample the structure SMILES? A verdict in plain words, with its decoys
     ranked, a calibrated confidence, flags and the evidence of each functional group."""
     from . import output
@@ -625,7 +658,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--json": json_path, "--plot": plot_path})
+        _check_outputs({"--json": json_path, "--plot": plot_path, "--report": report_path})
+        _check_report(report_path)
         extra = read_candidates(candidates_file) if candidates_file else []
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
@@ -646,7 +680,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
                     ("--plot", plot_path, lambda: output.plot_overlay(
                         mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
                         title=f"{verdict.intended.name}: {verdict.conclusion} (rank {mine.rank})",
-                        name=verdict.intended.name))])
+                        name=verdict.intended.name)),
+                    ("--report", report_path, lambda: _report(report_path, "verdict_report", verdict, calc))])
 
 
 class BatchBar:
@@ -800,6 +835,7 @@ def result_outputs(csv_help: str, plot_help: str, json_help: str):
             click.option("--json", "json_path", metavar="FILE", help=json_help),
         ]):
             f = opt(f)
+        f = report_option(f)
         f = store_options(f)
         return click.option("-q", "--quiet", is_flag=True, help="No progress output.")(f)
     return deco
@@ -810,15 +846,16 @@ def _y_kind(what: str):
                         help=f"What the Y values of {what} are (CSV); default: from the file's units, else guessed.")
 
 
-def _write_result(result, plot, csv_path, plot_path, json_path) -> None:
-    """Echo the caution and write the result's CSV, plot (``plot(result, path)``) and JSON."""
+def _write_result(result, plot, csv_path, plot_path, json_path, report_path=None) -> None:
+    """Echo the caution and write the result's CSV, plot (``plot(result, path)``), JSON and report."""
     from .files import atomic_write_text
     from .pipeline import CAUTION
 
     click.echo(f"# caution: {CAUTION}")
     _write_all([("--csv", csv_path, lambda: result.write_csv(csv_path)),
                 ("--plot", plot_path, lambda: plot(result, plot_path)),
-                ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(result.to_dict(), indent=1)))])
+                ("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(result.to_dict(), indent=1))),
+                ("--report", report_path, lambda: _report(report_path, "result_report", result))])
 
 
 @main.command("difference")
@@ -838,7 +875,7 @@ def _write_result(result, plot, csv_path, plot_path, json_path) -> None:
 @spectrum_options
 @result_outputs("Curves and their difference as CSV.", "Both spectra and the difference", "The band changes as JSON.")
 def difference_command(before, after, start_smiles, product_smiles, scale_on, no_scaling, baseline, y_kind,
-                       calc_values, scale_factor, scale_model, fwhm, line_shape, csv_path, plot_path, json_path,
+                       calc_values, scale_factor, scale_model, fwhm, line_shape, csv_path, plot_path, json_path, report_path,
                        store_path, no_store, quiet) -> None:
     """What changed from BEFORE to AFTER (two measured spectra): the difference spectrum and the
     bands that appear or go, named by the predicted bands of --start and --product."""
@@ -848,7 +885,8 @@ def difference_command(before, after, start_smiles, product_smiles, scale_on, no
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path})
+        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path, "--report": report_path})
+        _check_report(report_path)
         if no_scaling and scale_on:
             raise InputError("--scale-on and --no-scaling exclude each other")
         specs = [load_spectrum(p, kind=y_kind) for p in (before, after)]
@@ -864,7 +902,7 @@ def difference_command(before, after, start_smiles, product_smiles, scale_on, no
             for note in spec.notes:
                 click.echo(f"# note: {spec.source}: {note}")
         click.echo(diff.summary())
-        _write_result(diff, plot_difference, csv_path, plot_path, json_path)
+        _write_result(diff, plot_difference, csv_path, plot_path, json_path, report_path)
 
 
 def _reference_arg(text: str) -> tuple[str, str, float | None]:
@@ -904,7 +942,7 @@ def _smiles_arg(text: str) -> tuple[str, str]:
 @spectrum_options
 @result_outputs("One row per component as CSV.", "Measured spectrum with the stacked components", "The fit as JSON.")
 def components_command(measured, smiles_list, references, compare_range, baseline, y_kind, calc_values, scale_factor,
-                       scale_model, fwhm, line_shape, csv_path, plot_path, json_path, store_path, no_store,
+                       scale_model, fwhm, line_shape, csv_path, plot_path, json_path, report_path, store_path, no_store,
                        quiet) -> None:
     """Fit MEASURED as a non-negative mixture of components (predicted from --smiles, or measured
     --reference files): absorbance and estimated mole fractions with uncertainties."""
@@ -915,7 +953,8 @@ def components_command(measured, smiles_list, references, compare_range, baselin
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path})
+        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path, "--report": report_path})
+        _check_report(report_path)
         if not smiles_list and not references:
             raise InputError("give the components: --smiles SMILES and/or --reference FILE (each repeatable)")
         rng = tuple(compare_range) if compare_range else DEFAULT_COMPARE_RANGE_CM1
@@ -935,7 +974,7 @@ def components_command(measured, smiles_list, references, compare_range, baselin
         progress.finish()
         fit = fit_components(spec, comps, range_cm1=rng, baseline=baseline)
         click.echo(fit.summary())
-        _write_result(fit, plot_components, csv_path, plot_path, json_path)
+        _write_result(fit, plot_components, csv_path, plot_path, json_path, report_path)
 
 
 @main.command("series")
@@ -951,7 +990,7 @@ def components_command(measured, smiles_list, references, compare_range, baselin
 @spectrum_options
 @result_outputs("Conversion against time as CSV.", "Conversion against time", "The series as JSON.")
 def series_command(files, list_path, start_smiles, product_smiles, series_method, y_kind, calc_values, scale_factor,
-                   scale_model, fwhm, line_shape, csv_path, plot_path, json_path, store_path, no_store, quiet) -> None:
+                   scale_model, fwhm, line_shape, csv_path, plot_path, json_path, report_path, store_path, no_store, quiet) -> None:
     """Conversion of --start to --product over time, from measured FILES (or --list) of a reaction,
     with the diagnostic band used."""
     from .ranking import predict_stored
@@ -959,7 +998,8 @@ def series_command(files, list_path, start_smiles, product_smiles, series_method
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path})
+        _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path, "--report": report_path})
+        _check_report(report_path)
         spectra, times, unit = load_series(list_path, list(files), kind=y_kind)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
@@ -968,7 +1008,7 @@ def series_command(files, list_path, start_smiles, product_smiles, series_method
         progress.finish()
         series = conversion_series(spectra, times, start, product, time_unit=unit, method=series_method)
         click.echo(series.summary())
-        _write_result(series, plot_series, csv_path, plot_path, json_path)
+        _write_result(series, plot_series, csv_path, plot_path, json_path, report_path)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -20,7 +20,6 @@ JCAMP-DX date/time labels of the files (minutes since the first). Two ways to a 
 from __future__ import annotations
 
 import csv
-import io
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -118,7 +117,10 @@ def read_series_list(path: str | Path) -> tuple[list[tuple[float, Path]], str]:
     lines = [line for line in text.splitlines() if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
         raise InputError(f"{p}: empty series list")
-    rows = list(csv.reader(io.StringIO("\n".join(lines))))
+    try:
+        rows = [next(csv.reader([line])) for line in lines]
+    except csv.Error as exc:
+        raise InputError(f"{p}: not a readable CSV list ({exc})") from None
     header = [h.strip().lower() for h in rows[0]]
     time_cols = [k for k, h in enumerate(header) if h == "time" or h.startswith("time_")]
     if "file" not in header or len(time_cols) != 1:

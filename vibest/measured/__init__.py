@@ -38,6 +38,8 @@ class MeasuredSpectrum:
         phase: "gas" when the file says the sample was a gas or vapour (JCAMP-DX ##STATE), else "".
         recorded_at: when the spectrum was recorded, if the file says (JCAMP-DX ##LONGDATE, or
             ##DATE YY/MM/DD with ##TIME); None otherwise.
+        header: descriptive labels of a JCAMP-DX file as (label, text) pairs: origin, owner,
+            state, sampling procedure, resolution, instrument, date ... (for reports).
     """
 
     wavenumbers_cm1: np.ndarray
@@ -48,6 +50,7 @@ class MeasuredSpectrum:
     notes: tuple[str, ...] = ()
     phase: str = ""
     recorded_at: datetime.datetime | None = None
+    header: tuple[tuple[str, str], ...] = ()
 
     def with_note(self, note: str) -> "MeasuredSpectrum":
         return dataclasses.replace(self, notes=self.notes + (note,))
@@ -205,7 +208,17 @@ def _from_jcamp(p: Path, data: bytes, kind: str | None, block: int | None) -> Me
     when = recorded_at(blk.labels)
     if when is not None:
         spec = dataclasses.replace(spec, recorded_at=when)
-    return spec
+    header = tuple((name, " ".join(blk.labels[key].split())[:200]) for key, name in REPORTED_LABELS.items()
+                   if blk.labels.get(key, "").strip())
+    return dataclasses.replace(spec, header=header)
+
+
+#: JCAMP-DX labels (normalised) carried into reports, with their display names.
+REPORTED_LABELS = {"ORIGIN": "origin", "OWNER": "owner", "STATE": "state", "SAMPLINGPROCEDURE": "sampling procedure",
+                   "RESOLUTION": "resolution", "SPECTROMETERDATASYSTEM": "spectrometer", "INSTRUMENTPARAMETERS":
+                   "instrument parameters", "PATHLENGTH": "path length", "PRESSURE": "pressure", "TEMPERATURE":
+                   "temperature", "LONGDATE": "date", "DATE": "date", "TIME": "time", "CASREGISTRYNO": "CAS number",
+                   "MOLFORM": "formula", "SOURCEREFERENCE": "source reference"}
 
 
 _LONGDATE = re.compile(r"^\s*(\d{4})[/-](\d{1,2})[/-](\d{1,2})(?:[ T]+(\d{1,2}):(\d{2})(?::(\d{2})(?:\.\d*)?)?)?")
