@@ -190,12 +190,46 @@ def comparison_options(f):
         click.option("--tolerance", type=float, default=DEFAULT_MATCH_TOLERANCE_CM1, show_default=True,
                      help="Largest shift for a peak match, cm^-1."),
         click.option("--phase", type=click.Choice(["auto", "gas", "condensed"]), default="auto", show_default=True,
-                     help="gas: give predicted bands rotational P/Q/R contours; auto: gas when the file's ##STATE says so."),
+                     help="gas: give predicted bands rotational P/Q/R contours; auto: from the file's ##STATE, "
+                          "##SAMPLING PROCEDURE or title (said in a note)."),
         click.option("--intensity-power", type=click.FloatRange(0.1, 2.0), default=DEFAULT_INTENSITY_POWER,
                      show_default=True, help="Compare curves as y**p (p < 1: weak bands count more)."),
     ]):
         f = opt(f)
-    return f
+    return sample_options(f)
+
+
+#: Options of sample_options, turned into one ``sample_values`` argument (see :func:`_comparison`).
+_SAMPLE_KEYS = ("atr", "atr_angle", "keep_atmospheric", "exclude_windows", "matrix")
+
+
+def sample_options(f):
+    """How the sample was recorded: ATR correction, atmospheric bands, mull or matrix windows; the
+    command receives them as ``sample_values``."""
+    from .sampling import CRYSTALS, MATRIX_WINDOWS
+
+    @functools.wraps(f)
+    def wrapper(*args, **kwargs):
+        kwargs["sample_values"] = {k: kwargs.pop(k) for k in _SAMPLE_KEYS}
+        return f(*args, **kwargs)
+
+    for opt in reversed([
+        click.option("--atr", type=click.Choice(["auto", "off", *CRYSTALS]), default="auto", show_default=True,
+                     help="ATR correction of the measured spectrum: auto (when the file says ATR; diamond), off, "
+                          "or the crystal."),
+        click.option("--atr-angle", type=click.FloatRange(10.0, 80.0), default=45.0, show_default=True,
+                     help="ATR angle of incidence, degrees."),
+        click.option("--keep-atmospheric", is_flag=True,
+                     help="Keep the CO2 and water-vapour windows found in a condensed-phase spectrum in the comparison."),
+        click.option("--exclude-window", "exclude_windows", type=(float, float), multiple=True, metavar="LOW HIGH",
+                     help="Leave a window (cm^-1) out of the comparison (repeatable)."),
+        click.option("--matrix", type=click.Choice(sorted(MATRIX_WINDOWS)), default=None,
+                     help="Leave out the bands of a mull oil or pellet matrix: " + "; ".join(
+                         f"{k}: {', '.join(f'{a:.0f}-{b:.0f}' for a, b in v)}" for k, v in sorted(MATRIX_WINDOWS.items()))
+                          + " cm^-1."),
+    ]):
+        wrapper = opt(wrapper)
+    return wrapper
 
 
 def store_options(f):
@@ -254,7 +288,7 @@ def _phase(choice: str):
 
 
 def _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
-                intensity_power):
+                intensity_power, sample_values=None):
     """The vibest.comparison.ComparisonOptions of the comparison options (checked)."""
     from .comparison import check_range, comparison_options
 
@@ -263,7 +297,19 @@ def _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, base
         raise InputError(f"--tolerance {tolerance:g}: the peak-match tolerance must be positive (cm^-1)")
     return comparison_options(score_name=score_name, range_cm1=tuple(compare_range), fit_scale=fit_scale,
                               fit_shift=fit_shift, shift_bounds_cm1=(-max_shift, max_shift), baseline=baseline,
-                              tolerance_cm1=tolerance, gas_phase=_phase(phase), intensity_power=intensity_power)
+                              tolerance_cm1=tolerance, gas_phase=_phase(phase), intensity_power=intensity_power,
+                              **_sample(sample_values or {}))
+
+
+def _sample(values: dict) -> dict:
+    """ComparisonOptions fields of the sample options."""
+    from .sampling import MATRIX_WINDOWS
+
+    if not values:
+        return {}
+    windows = tuple(tuple(w) for w in values["exclude_windows"]) + MATRIX_WINDOWS.get(values["matrix"], ())
+    return {"atr": values["atr"], "atr_angle_deg": values["atr_angle"], "keep_atmospheric": values["keep_atmospheric"],
+            "exclude_cm1": windows}
 
 
 def _store(path, disabled: bool):
@@ -498,7 +544,7 @@ def solvents_command() -> None:
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def compare_command(measured, smiles, y_kind, block, score_name, compare_range, fit_scale, fit_shift, max_shift, baseline,
-                    tolerance, phase, intensity_power, calc_values, scale_factor, scale_model, fwhm,
+                    tolerance, phase, intensity_power, sample_values, calc_values, scale_factor, scale_model, fwhm,
                     line_shape, plot_path, json_path, report_path, store_path, no_store, quiet) -> None:
     """Compare the predicted spectrum of SMILES with a MEASURED spectrum (JCAMP-DX or CSV)."""
     from . import output
@@ -512,7 +558,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         _check_outputs({"--plot": plot_path, "--json": json_path, "--report": report_path}, plots=("--plot",))
         _check_report(report_path)
         copts = _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
-                            intensity_power)
+                            intensity_power, sample_values)
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
@@ -556,7 +602,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def rank_command(measured, candidates, candidates_file, y_kind, block, score_name, compare_range, fit_scale, fit_shift,
-                 max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor, scale_model,
+                 max_shift, baseline, tolerance, phase, intensity_power, sample_values, calc_values, scale_factor, scale_model,
                  fwhm, line_shape, csv_path, json_path, report_path, plot_dir, top, refine, refine_method, ms_path, ms_block,
                  formula, nominal_mass, ms_drop, decoys, store_path, no_store, quiet) -> None:
     """Rank CANDIDATES (SMILES, or a --candidates-file) by similarity to a MEASURED spectrum."""
@@ -596,7 +642,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
             progress("candidates", done, total, f"{done}/{total} {name}")
 
         copts = _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
-                            intensity_power)
+                            intensity_power, sample_values)
         ranking = rank_candidates(spec, cands, calc=calc, spec=sopts, store=_store(store_path, no_store),
                                   options=copts, progress=report, refine=refine, refine_calc=refine_calc,
                                   refine_progress=progress)
@@ -645,7 +691,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 @store_options
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block, score_name, compare_range, fit_scale,
-                  fit_shift, max_shift, baseline, tolerance, phase, intensity_power, calc_values, scale_factor,
+                  fit_shift, max_shift, baseline, tolerance, phase, intensity_power, sample_values, calc_values, scale_factor,
                   scale_model, fwhm, line_shape, ms_path, ms_block, formula, nominal_mass, ms_drop, json_path,
                   report_path, plot_path, store_path, no_store, quiet) -> None:
     """Is the MEASURED sample the structure SMILES? A verdict in plain words, with its decoys
@@ -671,7 +717,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
         verdict = check_structure(spec, smiles, name=name, decoys=decoys, candidates=extra, calc=calc, spec=sopts,
                                   store=_store(store_path, no_store), progress=report,
                                   options=_comparison(score_name, compare_range, fit_scale, fit_shift, max_shift,
-                                                      baseline, tolerance, phase, intensity_power),
+                                                      baseline, tolerance, phase, intensity_power,
+                                                      sample_values),
                                   mass_evidence=_mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop))
         progress.finish()
         click.echo(output.verdict_report(verdict))

@@ -292,6 +292,13 @@ class ComparisonOptions:
         condensed_shifts: in a condensed phase, move bands with a known shift (:mod:`vibest.condensed_phase`).
         smooth_measured_cm1: Gaussian smoothing (FWHM, cm^-1) of the measured curve; 0: none.
         intensity_power: both normalised curves are compared as y**p (0.1-2).
+        atr: ATR correction of the measured spectrum (:mod:`vibest.sampling`): "auto" (when the
+            file says ATR, with a diamond crystal), "off", or a crystal ("diamond", "znse", "ge").
+        atr_angle_deg: angle of incidence of the ATR correction (degrees).
+        keep_atmospheric: keep the windows of atmospheric CO2 and water vapour found in a
+            condensed-phase spectrum (:mod:`vibest.atmosphere`); by default they are left out.
+        exclude_cm1: further windows (low, high cm^-1) left out of the comparison, e.g. the
+            bands of a mull oil or of water in a KBr pellet (:data:`vibest.sampling.MATRIX_WINDOWS`).
     """
 
     score_name: str = DEFAULT_SCORE
@@ -310,6 +317,10 @@ class ComparisonOptions:
     condensed_shifts: bool = True
     smooth_measured_cm1: float = 0.0
     intensity_power: float = DEFAULT_INTENSITY_POWER
+    atr: str = "auto"
+    atr_angle_deg: float = 45.0
+    keep_atmospheric: bool = False
+    exclude_cm1: tuple[tuple[float, float], ...] = ()
 
     def checked(self) -> "ComparisonOptions":
         """These options, or an InputError naming the first unusable one."""
@@ -320,6 +331,14 @@ class ComparisonOptions:
             raise InputError(f"intensity power {self.intensity_power} must be between 0.1 and 2")
         if self.tolerance_cm1 <= 0:
             raise InputError(f"peak-match tolerance {self.tolerance_cm1:g} cm^-1 must be positive")
+        from .sampling import CRYSTALS
+
+        if self.atr not in ("auto", "off", *CRYSTALS):
+            raise InputError(f"ATR setting {self.atr!r}: choose auto, off or a crystal ({', '.join(CRYSTALS)})")
+        for window in self.exclude_cm1:
+            lo, hi = (float(v) for v in window)
+            if not (np.isfinite(lo) and np.isfinite(hi)) or lo >= hi:
+                raise InputError(f"excluded window {lo:g}-{hi:g} cm^-1: the low end must be below the high end")
         return self
 
     @property
@@ -345,6 +364,7 @@ class _Prepared:
 
     range_cm1: tuple[float, float]  # the compared range: the requested one within the measured one
     grid_cm1: np.ndarray
+    mask: np.ndarray  # True where the grid is left out (atmospheric, mull or matrix windows)
     measured_linear: np.ndarray  # normalised measured absorbance
     measured_curve: np.ndarray  # measured_linear ** intensity_power
     fwhm_cm1: float
@@ -372,10 +392,28 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
         notes.append(f"the measured data cover {lo:.0f}-{hi:.0f} cm^-1, {coverage:.0%} of the compared "
                      f"{opts.range_cm1[0]:.0f}-{opts.range_cm1[1]:.0f} cm^-1: bands outside are not judged")
     gas_phase = measured.phase == "gas" if opts.gas_phase is None else opts.gas_phase
+    if opts.gas_phase is None and measured.sampling:
+        notes.append(f"phase: {'gas' if gas_phase else 'condensed'} ({measured.sampling}, from the file's "
+                     f"{measured.sampling_from})")
+    measured, atr_note = _atr(measured, opts)
+    notes += atr_note
     g = grid(lo, hi, opts.step_cm1)
-    m_linear = preprocess(measured, g, baseline=opts.baseline)
+    windows = list(opts.exclude_cm1)
+    if not gas_phase and not opts.keep_atmospheric:
+        from .atmosphere import atmospheric_bands
+
+        found = atmospheric_bands(measured)
+        windows += found.windows_cm1
+        notes += [f"{n}: left out of the comparison (--keep-atmospheric keeps it)" for n in found.notes()]
+    mask = np.zeros(len(g), dtype=bool)
+    for a, b in windows:
+        mask |= (g >= min(a, b)) & (g <= max(a, b))
+    if mask.all():
+        raise InputError("the excluded windows cover the whole compared range")
+    m_linear = preprocess(measured, g, baseline=opts.baseline, normalise=False)
     if opts.smooth_measured_cm1 > 0:
         m_linear = smooth(m_linear, opts.step_cm1, opts.smooth_measured_cm1)
+    m_linear = _masked_normalised(m_linear, mask)
     contour = band_shifts = None
     if gas_phase:
         from .gas_phase import band_contour_inputs
@@ -388,7 +426,7 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
         if np.any(band_shifts):
             notes.append(f"condensed phase: predicted C=O stretches moved {CARBONYL_SHIFT_CM1:+.0f} cm^-1 "
                          "(vibest.condensed_phase)")
-    return _Prepared((lo, hi), g, m_linear, m_linear ** opts.intensity_power, opts.fwhm_cm1 or pred.spectrum.fwhm_cm1,
+    return _Prepared((lo, hi), g, mask, m_linear, m_linear ** opts.intensity_power, opts.fwhm_cm1 or pred.spectrum.fwhm_cm1,
                      opts.line_shape or pred.spectrum.line_shape, gas_phase, contour, band_shifts, coverage,
                      tuple(notes))
 
@@ -413,11 +451,29 @@ class _AlignedCurve:
 
     def __call__(self, f: float, s: float) -> np.ndarray:
         g = self.prep.grid_cm1
-        if self.shifted_base is not None and f == 1.0:
-            y = np.interp(g - s, *self.shifted_base)
-            top = y.max()
-            return y / top if top > 0 else y
-        return self._broadened(g, f, s)
+        y = np.interp(g - s, *self.shifted_base) if self.shifted_base is not None and f == 1.0 else \
+            self._broadened(g, f, s)
+        return _masked_normalised(y, self.prep.mask)
+
+
+def _masked_normalised(y: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    """The curve with the left-out windows at zero, scaled to a maximum of 1 over the rest."""
+    if mask.any():
+        y = np.where(mask, 0.0, y)
+    top = y.max()
+    return y / top if top > 0 else y
+
+
+def _atr(measured: MeasuredSpectrum, opts: ComparisonOptions) -> tuple[MeasuredSpectrum, list[str]]:
+    """The measured spectrum ATR-corrected when asked or when the file says ATR (and the note)."""
+    from .sampling import ATR, DEFAULT_CRYSTAL, atr_corrected
+
+    crystal = DEFAULT_CRYSTAL if opts.atr == "auto" and measured.sampling == ATR else \
+        (opts.atr if opts.atr not in ("auto", "off") else None)
+    if crystal is None:
+        return measured, []
+    out = atr_corrected(measured, crystal, opts.atr_angle_deg)
+    return out, [out.notes[-1]]
 
 
 def fit_alignment(curve: _AlignedCurve, opts: ComparisonOptions) -> tuple[float, float]:
@@ -502,7 +558,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, options: ComparisonOpt
                 "gas_phase": prep.gas_phase,
                 "condensed_shifts": bool(prep.band_shifts_cm1 is not None and np.any(prep.band_shifts_cm1)),
                 "smooth_measured_cm1": opts.smooth_measured_cm1, "intensity_power": opts.intensity_power,
-                "coverage": prep.coverage}
+                "coverage": prep.coverage, "excluded_points": int(prep.mask.sum())}
     return Comparison(pred.smiles, opts.score_name, scores[opts.score_name], scores, f_best, s_best, g,
                       prep.measured_curve, p_curve, peak_table(pred, prep, p_linear, f_best, s_best, opts),
                       settings, prep.notes)

@@ -34,7 +34,7 @@ from scipy.optimize import nnls
 from .comparison import DEFAULT_COMPARE_RANGE_CM1, DEFAULT_MAX_SHIFT_CM1, MIN_COMPARE_WIDTH_CM1, predicted_curve
 from .errors import InputError
 from .measured import MeasuredSpectrum, preprocess
-from .pipeline import CAUTION, Prediction
+from .pipeline import CAUTION, PLOT_CAUTION, Prediction
 from .spectrum import grid
 
 STEP_CM1 = 2.0
@@ -290,7 +290,7 @@ def plot_components(fit: MixtureFit, path: str | Path, title: str = "") -> None:
     axr.set_ylabel("residual")
     axr.set_xlabel("wavenumber / cm$^{-1}$")
     axr.set_xlim(max(4000, g[-1]), min(400, g[0]))
-    fig.text(0.01, 0.005, "Estimate only: confirm with reference standards and validated methods.", fontsize=6.5,
+    fig.text(0.01, 0.005, PLOT_CAUTION, fontsize=6.5,
              color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     write_with(path, fig.savefig)

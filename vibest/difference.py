@@ -26,7 +26,7 @@ import numpy as np
 from .comparison import DEFAULT_MATCH_TOLERANCE_CM1, MIN_COMPARE_WIDTH_CM1, pick_peaks
 from .errors import InputError
 from .measured import MeasuredSpectrum, preprocess
-from .pipeline import CAUTION, Prediction
+from .pipeline import CAUTION, PLOT_CAUTION, Prediction
 from .spectrum import grid, line_shape_values
 
 #: Grid step of the difference (cm^-1).
@@ -246,7 +246,7 @@ def plot_difference(diff: Difference, path: str | Path, title: str = "") -> None
     axd.set_ylabel("after - before")
     axd.set_xlabel("wavenumber / cm$^{-1}$")
     axd.set_xlim(max(4000, diff.grid_cm1[-1]), min(400, diff.grid_cm1[0]))
-    fig.text(0.01, 0.005, "Estimate only: confirm with reference standards and validated methods.", fontsize=6.5,
+    fig.text(0.01, 0.005, PLOT_CAUTION, fontsize=6.5,
              color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     write_with(path, fig.savefig)

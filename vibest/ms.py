@@ -356,12 +356,14 @@ def _against_spectrum(ms: MassSpectrum, p: IsotopePattern, counts: dict[str, int
     cl, br = implied_halogens(ms, m)
     has = (counts.get("Cl", 0), counts.get("Br", 0))
     cluster = ", ".join(f"{k} {meas:.2f} (computed {comp:.2f})" for k, (meas, comp) in ratios.items()
-                        if k != "M+1/M" and (meas > 0.02 or comp > 0.02))
-    said = f"{ion} {m} seen ({seen:.0f} % of base)" + (f"; {cluster}" if cluster else "")
+                        if k == "M+1/M" or meas > 0.02 or comp > 0.02)
+    said = f"{ion} {m} seen ({seen:.0f} % of base); {cluster}"
     if bad:
         return CONTRADICTED, (f"{said}: the cluster implies {_halogen_words(cl, br)}; the candidate has "
                               f"{_halogen_words(*has)}"), ratios
-    return CONSISTENT, said + (f": {_halogen_words(cl, br)}" if (cl, br) != (0, 0) or any(has) else ""), ratios
+    halogens = f": {_halogen_words(cl, br)}" if (cl, br) != (0, 0) or any(has) else ""
+    return CONSISTENT, f"{said}{halogens}; nitrogen rule for M = {p.nominal_mass}: {nitrogen_rule(p.nominal_mass)}", \
+        ratios
 
 
 def check_candidate(smiles: str, name: str = "", *, ms: MassSpectrum | None = None, formula: str | None = None,

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from .files import atomic_write_text, write_table, write_with
-from .pipeline import CAUTION, Prediction
+from .pipeline import CAUTION, PLOT_CAUTION, Prediction
 
 #: Below this wavenumber chemists speak of the fingerprint region (common practice, no source).
 FINGERPRINT_BELOW_CM1 = 1500.0
@@ -156,8 +156,7 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
         ax.set_ylim(0, 1.55)
         ax.legend(loc="upper left", fontsize=7.5, frameon=False)
     ax.set_title(f"predicted IR spectrum: {_short(pred.smiles, 40)}  ({pred.method_name}, {pred.medium})", fontsize=10)
-    fig.text(0.01, 0.01, f"scaling: {pred.scale.describe()}.  Estimate only: confirm with reference standards "
-             "and validated methods.", fontsize=6.5, color="#7f7f7f")
+    fig.text(0.01, 0.01, f"scaling: {pred.scale.describe()}.  {PLOT_CAUTION}", fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     write_with(path, fig.savefig)
     plt.close(fig)
@@ -297,7 +296,7 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
     axr.set_ylabel("residual")
     axr.set_xlabel("wavenumber / cm$^{-1}$")
     axr.set_xlim(4000, 400)
-    fig.text(0.01, 0.005, "Estimate only: confirm with reference standards and validated methods.",
+    fig.text(0.01, 0.005, PLOT_CAUTION,
              fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     write_with(path, fig.savefig)

@@ -32,6 +32,8 @@ from .structure import Molecule, build_molecule
 
 CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical model; confirm any "
            "identification with reference standards and a validated method.")
+#: The caution's short form, printed at the foot of every plot.
+PLOT_CAUTION = "Estimate only: confirm with reference standards and validated methods."
 
 
 def _is_real(value) -> bool:

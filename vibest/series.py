@@ -28,7 +28,7 @@ import numpy as np
 from .comparison import pick_peaks
 from .errors import InputError
 from .measured import MeasuredSpectrum, load_spectrum, preprocess, rubber_band_baseline
-from .pipeline import CAUTION, Prediction
+from .pipeline import CAUTION, PLOT_CAUTION, Prediction
 from .spectrum import broaden, grid, line_shape_values
 
 BAND, FIT = "band", "fit"
@@ -252,7 +252,7 @@ def plot_series(series: Series, path: str | Path, title: str = "") -> None:
     ax.set_ylim(-0.05, 1.1)
     ax.legend(loc="lower right", fontsize=7.5, frameon=False)
     ax.set_title(title or "conversion over time", fontsize=9.5)
-    fig.text(0.01, 0.005, "Estimate only: confirm with reference standards and validated methods.", fontsize=6.5,
+    fig.text(0.01, 0.005, PLOT_CAUTION, fontsize=6.5,
              color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     write_with(path, fig.savefig)

@@ -40,6 +40,9 @@ class MeasuredSpectrum:
             ##DATE YY/MM/DD with ##TIME); None otherwise.
         header: descriptive labels of a JCAMP-DX file as (label, text) pairs: origin, owner,
             state, sampling procedure, resolution, instrument, date ... (for reports).
+        sampling: how the sample was recorded ("gas", "ATR", "film", "KBr pellet", "mull",
+            "solution" or "" when not said), from ##STATE, ##SAMPLING PROCEDURE or the title
+            (:func:`vibest.sampling.sampling_of`); ``sampling_from`` says which.
     """
 
     wavenumbers_cm1: np.ndarray
@@ -51,6 +54,8 @@ class MeasuredSpectrum:
     phase: str = ""
     recorded_at: datetime.datetime | None = None
     header: tuple[tuple[str, str], ...] = ()
+    sampling: str = ""
+    sampling_from: str = ""
 
     def with_note(self, note: str) -> "MeasuredSpectrum":
         return dataclasses.replace(self, notes=self.notes + (note,))
@@ -190,7 +195,15 @@ def load_spectrum(path: str | Path, kind: str | None = None, block: int | None =
     if kind == TRANSMITTANCE and np.nanmax(y) > 1.5:
         y = y / 100.0
         notes.append("transmittance given in percent: divided by 100")
-    return check_values(finish(x, y, kind, str(path), p.stem, notes))
+    return check_values(_with_sampling(finish(x, y, kind, str(path), p.stem, notes)))
+
+
+def _with_sampling(spec: MeasuredSpectrum, state: str = "", procedure: str = "") -> MeasuredSpectrum:
+    from ..sampling import GAS, sampling_of
+
+    kind, where = sampling_of(state, procedure, spec.title)
+    out = dataclasses.replace(spec, sampling=kind, sampling_from=where)
+    return dataclasses.replace(out, phase="gas") if kind == GAS and where != "title" else out
 
 
 def _from_jcamp(p: Path, data: bytes, kind: str | None, block: int | None) -> MeasuredSpectrum:
@@ -210,7 +223,7 @@ def _from_jcamp(p: Path, data: bytes, kind: str | None, block: int | None) -> Me
         spec = dataclasses.replace(spec, recorded_at=when)
     header = tuple((name, " ".join(blk.labels[key].split())[:200]) for key, name in REPORTED_LABELS.items()
                    if blk.labels.get(key, "").strip())
-    return dataclasses.replace(spec, header=header)
+    return _with_sampling(dataclasses.replace(spec, header=header), state, blk.labels.get("SAMPLINGPROCEDURE", ""))
 
 
 #: JCAMP-DX labels (normalised) carried into reports, with their display names.
