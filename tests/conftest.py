@@ -40,11 +40,9 @@ def co2():
     return prediction_of("O=C=O")
 
 
-@pytest.fixture(scope="session")
-def measured_folder():
-    """Folder of the real measured spectra of benchmarks/data/measured_set.csv (jcamp 1.3.2 sdist,
-    fetched and SHA-256-checked at test time). A download that cannot happen skips; a file that
-    does not verify fails."""
+def _from_jcamp_sdist(what: str, fetch_name: str):
+    """A folder of the jcamp 1.3.2 sdist fetched by benchmarks/measured_set.py (SHA-256-checked at
+    test time): a download that cannot happen skips; a file that does not verify fails."""
     import sys
     from pathlib import Path
 
@@ -52,26 +50,20 @@ def measured_folder():
     import measured_set
 
     try:
-        return measured_set.fetch()
+        return getattr(measured_set, fetch_name)()
     except measured_set.IntegrityError as exc:
-        pytest.fail(f"measured spectra do not verify: {exc}")
+        pytest.fail(f"{what} do not verify: {exc}")
     except measured_set.FetchError as exc:
-        pytest.skip(f"measured spectra not available: {exc}")
+        pytest.skip(f"{what} not available: {exc}")
+
+
+@pytest.fixture(scope="session")
+def measured_folder():
+    """Folder of the real measured spectra of benchmarks/data/measured_set.csv (jcamp 1.3.2 sdist)."""
+    return _from_jcamp_sdist("measured spectra", "fetch")
 
 
 @pytest.fixture(scope="session")
 def mass_folder():
-    """Folder of the real mass spectra of the jcamp 1.3.2 sdist (data/mass_spectra; fetched and
-    SHA-256-checked at test time like the infrared files)."""
-    import sys
-    from pathlib import Path
-
-    sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
-    import measured_set
-
-    try:
-        return measured_set.fetch_mass_spectra()
-    except measured_set.IntegrityError as exc:
-        pytest.fail(f"mass spectra do not verify: {exc}")
-    except measured_set.FetchError as exc:
-        pytest.skip(f"mass spectra not available: {exc}")
+    """Folder of the real mass spectra of the jcamp 1.3.2 sdist (data/mass_spectra)."""
+    return _from_jcamp_sdist("mass spectra", "fetch_mass_spectra")
