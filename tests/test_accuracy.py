@@ -336,7 +336,7 @@ def test_every_coordinate_type_of_the_reference_set_has_the_expected_family():
     assert {name: family_of[name] for name in expected} == expected
 
 
-@pytest.mark.parametrize("method", ["GFN2-xTB", "B3LYP-D3(BJ)/6-31G(d)"])
+@pytest.mark.parametrize("method", ["GFN2-xTB", "GFN1-xTB", "B3LYP-D3(BJ)/6-31G(d)"])
 def test_every_shipped_type_factor_is_still_made_with_its_family(method):
     """The fitted factors are keyed by name and family: a type renamed or moved to another family
     in vibest/analysis/coordinate_types.py would silently lose its factor. Every type of the shipped
