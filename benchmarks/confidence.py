@@ -15,10 +15,11 @@ measured spectra (leave-one-spectrum-out), never with the model's own training r
 the reliability table, expected calibration error (ECE), and the two targets (wrong first
 candidates flagged by low confidence or a poor fit; right ones with confidence >= 0.7).
 
-    python benchmarks/confidence.py [--store FILE] [--write]
+    python benchmarks/confidence.py [--method gfn2|gfn1] [--store FILE] [--write]
 
-``--write`` stores the features (benchmarks/data/confidence_features.csv; the test refits from
-it) and the model fitted on all rows (vibest/data/confidence.json).
+``--write`` stores the features (benchmarks/data/confidence_features[-METHOD].csv; the test
+refits from it) and the model fitted on all rows (vibest/data/confidence[-METHOD].json; GFN2-xTB
+without a suffix).
 """
 
 from __future__ import annotations
@@ -83,10 +84,10 @@ def features(spectrum, candidates: list[str], right: str, preds: dict) -> dict:
             "matched": round(matched, 4), "against": against, "right": int(canonical(first) == canonical(right))}
 
 
-def build_rows(store: RecordStore) -> list[dict]:
+def build_rows(store: RecordStore, method: str = "gfn2") -> list[dict]:
     folder = measured_set.fetch()
     entries = measured_set.entries()
-    calc = calculation_options("gfn2")
+    calc = calculation_options(method)
     preds = {}
 
     def pred(smi):
@@ -120,6 +121,13 @@ def build_rows(store: RecordStore) -> list[dict]:
                          **features(spectrum, cands, e.smiles, preds)})
         print(f"  {e.name}: {len(sets)} rankings", file=sys.stderr)
     return rows
+
+
+def paths(method: str) -> tuple[Path, Path]:
+    """(features table, model file) of a method: the GFN2-xTB ones without a suffix."""
+    if method == "gfn2":
+        return FEATURES, MODEL
+    return FEATURES.with_name(f"confidence_features-{method}.csv"), MODEL.with_name(f"confidence-{method}.json")
 
 
 def read_rows(path: Path = FEATURES) -> list[dict]:
@@ -201,12 +209,15 @@ def main() -> None:
     ap.add_argument("--write", action="store_true", help="write the features table and vibest/data/confidence.json")
     ap.add_argument("--from-table", action="store_true", help="use the stored features table instead of computing")
     ap.add_argument("--dump", default=None, help="also write the features to this CSV file")
+    ap.add_argument("--method", default="gfn2", choices=["gfn2", "gfn1"], help="level of theory of the predictions")
     args = ap.parse_args()
+    features_path, model_path = paths(args.method)
+    settings = SETTINGS | {"method": calculation_options(args.method).method_name}
     if args.from_table:
-        rows = read_rows()
+        rows = read_rows(features_path)
     else:
         try:
-            rows = build_rows(RecordStore(args.store))
+            rows = build_rows(RecordStore(args.store), args.method)
         except measured_set.FetchError as exc:
             print(f"skipped: {exc}")
             return
@@ -221,7 +232,7 @@ def main() -> None:
             w.writerows(rows)
     if args.write:
         if not args.from_table:
-            with open(FEATURES, "w", newline="") as fh:
+            with open(features_path, "w", newline="") as fh:
                 fh.write("# Features of rankings of real measured spectra (benchmarks/confidence.py; spectra from the\n"
                          "# jcamp 1.3.2 sdist, benchmarks/data/measured_set.csv). score: first candidate's score;\n"
                          "# margin: to the second; right: whether the first is the measured compound.\n")
@@ -229,12 +240,12 @@ def main() -> None:
                                                    "matched", "against", "right"])
                 w.writeheader()
                 w.writerows(rows)
-        MODEL.write_text(json.dumps({
+        model_path.write_text(json.dumps({
             "intercept": round(float(coef[0]), 6), "score_weight": round(float(coef[1]), 6),
-            "margin_weight": round(float(coef[2]), 6), "matched_weight": round(float(coef[3]), 6), "settings": SETTINGS,
+            "margin_weight": round(float(coef[2]), 6), "matched_weight": round(float(coef[3]), 6), "settings": settings,
             "poor_fit_score": round(poor_fit_threshold(rows), 6), "cross_validated_ece": round(figures["ece"], 4),
             "script": "benchmarks/confidence.py", "rankings": len(rows)}, indent=1) + "\n")
-        print(f"wrote {FEATURES.relative_to(ROOT)} and {MODEL.relative_to(ROOT)}")
+        print(f"wrote {features_path.relative_to(ROOT)} and {model_path.relative_to(ROOT)}")
 
 
 if __name__ == "__main__":

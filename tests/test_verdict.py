@@ -95,14 +95,17 @@ def test_a_clear_case_has_no_flags():
     assert result.flags == () and result.confidence > 0.9 and result.sure
 
 
-def test_calibration_refit_reproduces_the_shipped_model():
-    """benchmarks/confidence.py --write fitted vibest/data/confidence.json on the features table it
-    wrote; refitting from that table gives the same coefficients, threshold and held-out ECE."""
+@pytest.mark.parametrize("method,name", [("gfn2", "GFN2-xTB"), ("gfn1", "GFN1-xTB")])
+def test_calibration_refit_reproduces_the_shipped_model(method, name):
+    """benchmarks/confidence.py --write fitted vibest/data/confidence[-gfn1].json on the features
+    table it wrote; refitting from that table gives the same coefficients, threshold and
+    held-out ECE, and the model holds for its own level of theory."""
     sys.path.insert(0, str(ROOT / "benchmarks"))
     import confidence as bench
 
-    rows = bench.read_rows()
-    model = shipped_model()
+    rows = bench.read_rows(bench.paths(method)[0])
+    model = shipped_model(name)
+    assert model.settings["method"] == name
     coef = bench.fit_rows(rows)
     assert coef == pytest.approx([model.intercept, model.score_weight, model.margin_weight, model.matched_weight],
                                  abs=1e-4)

@@ -28,6 +28,8 @@ from importlib import resources
 import numpy as np
 
 CONFIDENCE_FILE = "confidence.json"
+#: Level of theory (method name) -> its shipped confidence model (benchmarks/confidence.py --method).
+CONFIDENCE_FILES = {"GFN2-xTB": CONFIDENCE_FILE, "GFN1-xTB": "confidence-gfn1.json"}
 #: A confidence below this is called low.
 LOW_CONFIDENCE = 0.7
 #: A margin this small is a tie whatever the noise.
@@ -90,9 +92,12 @@ def _same(a, b) -> bool:
     return a == b
 
 
-def shipped_model() -> ConfidenceModel | None:
-    """The model in vibest/data/confidence.json, or None when none is shipped."""
-    path = resources.files("vibest.data").joinpath(CONFIDENCE_FILE)
+def shipped_model(method_name: str = "GFN2-xTB") -> ConfidenceModel | None:
+    """The model shipped for a level of theory (vibest/data/confidence*.json), or None."""
+    name = CONFIDENCE_FILES.get(method_name)
+    if name is None:
+        return None
+    path = resources.files("vibest.data").joinpath(name)
     if not path.is_file():
         return None
     d = json.loads(path.read_text())
@@ -230,7 +235,7 @@ def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | 
     scored = [e for e in ranking.entries if e.comparison is not None]
     if not scored:
         return Assessment(None, (), "no candidate could be scored")
-    model = model or shipped_model()
+    model = model or shipped_model(method_name) or shipped_model()
     first = scored[0]
     flags = []
     settings = comparison_settings(method_name, ranking.options, fwhm_cm1)
