@@ -57,7 +57,7 @@ DECOYS_PER_SPECTRUM = 8
 #: The comparison settings the model holds for (vibest.comparison defaults; the benchmark files
 #: are gas-phase spectra, compared with rotational contours).
 SETTINGS = {"score": DEFAULT_SCORE, "method": "GFN2-xTB", "fit_shift": True, "max_shift_cm1": DEFAULT_MAX_SHIFT_CM1,
-            "intensity_power": 0.5, "fwhm_cm1": 16.0, "range_cm1": [500.0, 3800.0]}
+            "intensity_power": 0.5, "fwhm_cm1": 16.0, "range_cm1": [500.0, 3800.0], "phase": "gas"}
 
 
 def formula(smiles: str) -> str:

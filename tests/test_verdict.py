@@ -149,3 +149,18 @@ def test_partial_coverage_still_gives_a_verdict_for_what_can_be_judged(measured_
     v = check_structure(part, "CCO", decoys=2)
     oh = next(e for e in v.evidence if e.name == "O-H stretch")
     assert oh.status == "not covered" and not oh.against
+
+
+def test_shipped_confidence_is_withheld_for_a_condensed_sample():
+    """The shipped models were calibrated on gas-phase spectra only (benchmarks/confidence.py):
+    a ranking compared as a condensed sample gets no confidence, and the note says why; the same
+    spectrum declared a gas gets one."""
+    import dataclasses
+
+    water = prediction_of("O")
+    condensed = _synthetic(water)
+    cands = [Candidate("water", "O"), Candidate("formaldehyde", "C=O")]
+    result = assess(rank_candidates(condensed, cands), "GFN2-xTB", 16.0)
+    assert result.confidence is None and "gas-phase spectra only" in result.note
+    gas = dataclasses.replace(condensed, phase="gas")
+    assert assess(rank_candidates(gas, cands), "GFN2-xTB", 16.0).confidence is not None

@@ -221,12 +221,14 @@ class Assessment:
                 "low_confidence_below": LOW_CONFIDENCE}
 
 
-def comparison_settings(method_name: str, options, fwhm_cm1: float) -> dict:
+def comparison_settings(method_name: str, options, fwhm_cm1: float, gas_phase: bool = True) -> dict:
     """The settings a confidence model is checked against (keys of ConfidenceModel.settings), from
-    the :class:`vibest.comparison.ComparisonOptions` used and the prediction's band width (cm^-1)."""
+    the :class:`vibest.comparison.ComparisonOptions` used, the prediction's band width (cm^-1) and
+    whether the sample was compared as a gas."""
     return {"score": options.score_name, "method": method_name, "fit_shift": bool(options.fit_shift),
             "max_shift_cm1": options.max_shift_cm1, "intensity_power": float(options.intensity_power),
-            "fwhm_cm1": float(options.fwhm_cm1 or fwhm_cm1), "range_cm1": [float(v) for v in options.range_cm1]}
+            "fwhm_cm1": float(options.fwhm_cm1 or fwhm_cm1), "range_cm1": [float(v) for v in options.range_cm1],
+            "phase": "gas" if gas_phase else "condensed"}
 
 
 def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | None = None) -> Assessment:
@@ -238,7 +240,8 @@ def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | 
     model = model or shipped_model(method_name) or shipped_model()
     first = scored[0]
     flags = []
-    settings = comparison_settings(method_name, ranking.options, fwhm_cm1)
+    settings = comparison_settings(method_name, ranking.options, fwhm_cm1,
+                                   bool(first.comparison.settings.get("gas_phase", True)))
     flag = shift_flag(first.comparison, settings["max_shift_cm1"])
     if flag:
         flags.append(flag)
@@ -247,9 +250,13 @@ def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | 
         note = "no confidence model is shipped"
     elif not model.applies_to(settings):
         differing = [k for k, v in model.settings.items() if not _same(settings.get(k), v)]
-        note = ("confidence is calibrated for the default comparison at " + str(model.settings.get("method")) +
-                f" only; here the {', '.join(name.replace('_', ' ') for name in differing)} "
-                + ("differs" if len(differing) == 1 else "differ"))
+        if "phase" in differing:
+            note = (f"confidence is calibrated on gas-phase spectra only; this sample was compared as "
+                    f"{settings['phase']}, where scores and margins run differently")
+        else:
+            note = ("confidence is calibrated for the default comparison at " + str(model.settings.get("method"))
+                    + f" only; here the {', '.join(name.replace('_', ' ') for name in differing)} "
+                    + ("differs" if len(differing) == 1 else "differ"))
     else:
         if first.score < model.poor_fit_score:
             flags.append(Flag(POOR_FIT, f"the best score ({first.score:.3f}) is below what right answers scored in "
