@@ -212,12 +212,13 @@ def test_cli_difference_components_and_series(tmp_path):
 @pytest.mark.parametrize("before,after,start,product,expected", [
     # Real gas-phase spectra (DOW CHEMICAL COMPANY, jcamp 1.3.2 sdist, fetched at test time).
     # Band positions of common practice, no source: an alcohol's O-H stretch (vapour) near
-    # 3650-3700 and C-O stretch 1000-1100 cm^-1; an alkene's C=C stretch 1620-1680 and =C-H
-    # stretches above 3000 cm^-1.
+    # 3650-3700 and C-O stretch 1000-1100 cm^-1; methyl C-H stretches 2850-3000; an alkene's C=C
+    # stretch 1620-1680 and =C-H stretches above 3000 cm^-1; an epoxide ring's CH2 stretches
+    # 2990-3070 cm^-1.
     ("ethane.jdx", "ethanol.jdx", "CC", "CCO",
-     [(APPEARS, "O-H stretch", 3600, 3700), (APPEARS, "C-O stretch", 1000, 1100)]),
+     [(APPEARS, "O-H stretch", 3600, 3700), (APPEARS, "C-O stretch", 1000, 1100), (GOES, "CH3 stretch", 2850, 3000)]),
     ("propylene.jdx", "propylene oxide.jdx", "C=CC", "CC1CO1",
-     [(GOES, "C=C stretch", 1620, 1680), (GOES, "=C-H stretch", 3000, 3150)]),
+     [(GOES, "C=C stretch", 1620, 1680), (GOES, "=C-H stretch", 3000, 3150), (APPEARS, "CH2 stretch", 2990, 3070)]),
 ])
 def test_difference_of_real_spectra_names_the_groups_that_come_and_go(before, after, start, product, expected,
                                                                        measured_folder):
