@@ -253,11 +253,12 @@ def page(title: str, body: list[str]) -> str:
 def _key(smiles: str, calc) -> str | None:
     if calc is None:
         return None
+    from .errors import VibestError
     from .store import RecordStore, structure_identity
 
     try:
         return RecordStore.key_of(*structure_identity(smiles), calc)
-    except Exception:  # an unreadable structure has no key; the report still shows the rest
+    except VibestError:  # an unreadable structure has no key; the report still shows the rest
         return None
 
 
