@@ -110,3 +110,18 @@ def test_detectors_on_real_spectra(measured_folder):
     assert atmospheric_bands(load_spectrum(measured_folder / "water.jdx")).water
     demo = atmospheric_bands(load_spectrum("examples/hx07-recovered-solvent.csv"))
     assert demo.co2 == "" and demo.water == ""
+
+
+@pytest.mark.slow
+def test_indene_film_ranks_first_among_its_isomers():
+    """R. J. Lancashire's public-domain indene spectrum (a condensed sample, tests/data/lancashire),
+    ranked with the default comparison against C9H8 isomers (benchmarks/condensed.py)."""
+    from pathlib import Path
+
+    from vibest.ranking import Candidate, rank_candidates
+
+    spectrum = load_spectrum(Path(__file__).parent / "data" / "lancashire" / "xyinc1.jdx")
+    isomers = [("indene", "C1C=Cc2ccccc21"), ("1-phenylpropyne", "CC#Cc1ccccc1"), ("3-phenylpropyne", "C#CCc1ccccc1"),
+               ("phenylallene", "C=C=Cc1ccccc1"), ("2-ethynyltoluene", "C#Cc1ccccc1C")]
+    ranking = rank_candidates(spectrum, [Candidate(n, s) for n, s in isomers])
+    assert ranking.entries[0].candidate.name == "indene", [(e.candidate.name, e.score) for e in ranking.entries]

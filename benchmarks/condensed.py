@@ -1,0 +1,64 @@
+"""Ranking of real condensed-phase spectra against isomers and close analogues, gas and condensed
+models side by side.
+
+Spectra: the indene spectrum of R. J. Lancashire's public-domain JCAMP-DX test files
+(tests/data/lancashire/xyinc1.jdx; a neat film, the only condensed-phase IR spectrum the
+repository may carry so far). Candidates: C9H8 isomers of indene and close analogues (indane,
+styrene, allylbenzene, naphthalene). Each is ranked with the default comparison taking the
+sample as condensed (C=O shift, atmospheric windows, ATR when the file says so) and as a gas
+(rotational contours), at GFN2-xTB and GFN1-xTB.
+
+    python benchmarks/condensed.py [--store FILE]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from vibest.calculation.driver import calculation_options  # noqa: E402
+from vibest.measured import load_spectrum  # noqa: E402
+from vibest.ranking import Candidate, rank_candidates  # noqa: E402
+from vibest.store import RecordStore  # noqa: E402
+
+SPECTRA = (("tests/data/lancashire/xyinc1.jdx", "indene", "C1C=Cc2ccccc21"),)
+CANDIDATES = (("indene", "C1C=Cc2ccccc21"), ("1-phenylpropyne", "CC#Cc1ccccc1"), ("3-phenylpropyne", "C#CCc1ccccc1"),
+              ("phenylallene", "C=C=Cc1ccccc1"), ("2-ethynyltoluene", "C#Cc1ccccc1C"),
+              ("4-ethynyltoluene", "C#Cc1ccc(C)cc1"), ("indane", "C1Cc2ccccc2C1"), ("styrene", "C=Cc1ccccc1"),
+              ("allylbenzene", "C=CCc1ccccc1"), ("naphthalene", "c1ccc2ccccc2c1"))
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--store", default=None, help="result store (SQLite file) [the default store]")
+    args = ap.parse_args()
+    store = RecordStore(args.store)
+    cands = [Candidate(n, s) for n, s in CANDIDATES]
+    print(f"{'spectrum':<10} {'level':<9} {'model':<10} {'rank':>4} {'isomer rank':>11} {'score':>6}  first")
+    for path, name, smiles in SPECTRA:
+        spectrum = load_spectrum(ROOT / path)
+        for method in ("gfn2", "gfn1"):
+            calc = calculation_options(method)
+            for model, gas in (("condensed", False), ("gas", True)):
+                ranking = rank_candidates(spectrum, cands, calc=calc, store=store, gas_phase=gas)
+                scored = [e for e in ranking.entries if e.comparison is not None]
+                mine = next(e for e in scored if e.candidate.smiles == smiles)
+                iso = [e for e in scored if len(e.candidate.smiles) and _formula(e.candidate.smiles) == _formula(smiles)]
+                iso_rank = 1 + [e.candidate.smiles for e in iso].index(smiles)
+                print(f"{name:<10} {method:<9} {model:<10} {mine.rank:>4} {iso_rank:>11} {mine.score:6.3f}  "
+                      f"{scored[0].candidate.name}")
+
+
+def _formula(smiles: str) -> str:
+    from rdkit import Chem
+    from rdkit.Chem import rdMolDescriptors
+
+    return rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(smiles))
+
+
+if __name__ == "__main__":
+    main()
