@@ -69,12 +69,17 @@ def _fail(message: str, code: int) -> None:
     sys.exit(code)
 
 
+#: Suffixes an HTML report may have (--report).
+REPORT_SUFFIXES = (".html", ".htm")
+
+
 def _check_outputs(paths: dict[str, str | None], plots: tuple[str, ...] = ("--plot",)) -> None:
-    """Every output path checked before any work (vibest.files.check_outputs)."""
+    """Every output path checked before any work (vibest.files.check_outputs); plots and the
+    report must have a suffix their writer can produce."""
     from .files import check_outputs
     from .output import PLOT_FORMATS
 
-    check_outputs(paths, {name: PLOT_FORMATS for name in plots})
+    check_outputs(paths, {name: PLOT_FORMATS for name in plots} | {"--report": REPORT_SUFFIXES})
 
 
 def _write_all(items) -> None:
@@ -170,13 +175,17 @@ def spectrum_options(f):
     return f
 
 
+def _y_kind(what: str):
+    return click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
+                        help=f"What the Y values of {what} are (CSV); default: from the file's units, else guessed.")
+
+
 def comparison_options(f):
     from .comparison import (DEFAULT_COMPARE_RANGE_CM1, DEFAULT_FIT_SHIFT, DEFAULT_INTENSITY_POWER,
                              DEFAULT_MATCH_TOLERANCE_CM1, DEFAULT_MAX_SHIFT_CM1, DEFAULT_SCORE, SCORES)
 
     for opt in reversed([
-        click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
-                     help="What the measured Y values are (CSV); default: from the file's units, else guessed."),
+        _y_kind("the measured file"),
         click.option("--block", type=click.IntRange(min=1), default=None, help="Spectrum number in a multi-block JCAMP-DX file."),
         click.option("--score", "score_name", type=click.Choice(SCORES), default=DEFAULT_SCORE, show_default=True),
         click.option("--compare-range", type=(float, float), default=DEFAULT_COMPARE_RANGE_CM1, show_default=True,
@@ -275,12 +284,6 @@ def _mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop):
 def report_option(f):
     return click.option("--report", "report_path", metavar="FILE.html", default=None,
                         help="One self-contained HTML report (interactive overlays, tables, method; opens offline).")(f)
-
-
-def _check_report(report_path) -> None:
-    from .files import check_outputs
-
-    check_outputs({"--report": report_path}, {"--report": (".html", ".htm")})
 
 
 def _phase(choice: str):
@@ -436,7 +439,6 @@ def predict_command(smiles, csv_path, jcamp_path, bands_csv, json_path, record_p
                         "--report": report_path})
         if isotopes_csv and not isotopes:
             raise InputError("--isotopes-csv needs at least one --isotope")
-        _check_report(report_path)
         if report_path and conformers:
             raise InputError("--report is not available with --conformers yet: use --json and --plot")
         _check_analysis_options(isotopes, temperature, pressure)
@@ -555,8 +557,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
-        _check_outputs({"--plot": plot_path, "--json": json_path, "--report": report_path}, plots=("--plot",))
-        _check_report(report_path)
+        _check_outputs({"--plot": plot_path, "--json": json_path, "--report": report_path})
         copts = _comparison(score_name, compare_range, fit_scale, fit_shift, max_shift, baseline, tolerance, phase,
                             intensity_power, sample_values)
         spec = load_spectrum(measured, kind=y_kind, block=block)
@@ -615,7 +616,6 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--csv": csv_path, "--json": json_path, "--plot-dir": None, "--report": report_path})
-        _check_report(report_path)
         if plot_dir:
             _check_outputs({"--plot-dir": str(Path(plot_dir) / "rank1.png")}, plots=())
         cands = [Candidate(s, s) for s in candidates]
@@ -626,8 +626,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
         if decoys:
             cands = with_decoys(cands, decoys)
         evidence = _mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop)
-        checks = evidence.checks(cands) if evidence else []
-        dropped = {c.smiles for c in checks if evidence.drop and c.status == "contradicted"}
+        checks, dropped_checks = evidence.screen(cands) if evidence else ([], [])
+        dropped = {c.smiles for c in dropped_checks}
         if dropped and len(dropped) == len({c.smiles for c in cands}):
             raise InputError("the mass evidence contradicts every candidate ("
                              + "; ".join(f"{c.name}: {c.reason}" for c in checks[:3]) + (" ..." if len(checks) > 3 else "")
@@ -705,7 +705,6 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--json": json_path, "--plot": plot_path, "--report": report_path})
-        _check_report(report_path)
         extra = read_candidates(candidates_file) if candidates_file else []
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
@@ -888,11 +887,6 @@ def result_outputs(csv_help: str, plot_help: str, json_help: str):
     return deco
 
 
-def _y_kind(what: str):
-    return click.option("--y-kind", type=click.Choice(["absorbance", "transmittance"]), default=None,
-                        help=f"What the Y values of {what} are (CSV); default: from the file's units, else guessed.")
-
-
 def _write_result(result, plot, csv_path, plot_path, json_path, report_path=None) -> None:
     """Echo the caution and write the result's CSV, plot (``plot(result, path)``), JSON and report."""
     from .files import atomic_write_text
@@ -933,7 +927,6 @@ def difference_command(before, after, start_smiles, product_smiles, scale_on, no
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path, "--report": report_path})
-        _check_report(report_path)
         if no_scaling and scale_on:
             raise InputError("--scale-on and --no-scaling exclude each other")
         specs = [load_spectrum(p, kind=y_kind) for p in (before, after)]
@@ -967,14 +960,6 @@ def _reference_arg(text: str) -> tuple[str, str, float | None]:
     return path.strip(), (name.strip() or Path(path.strip()).name), conc
 
 
-def _smiles_arg(text: str) -> tuple[str, str]:
-    """--smiles 'SMILES [NAME]' (a space ends a SMILES, as in SMILES files) -> (smiles, name)."""
-    parts = text.strip().split(None, 1)
-    if not parts:
-        raise InputError("--smiles: empty")
-    return parts[0], (parts[1].strip() if len(parts) > 1 else parts[0])
-
-
 @main.command("components")
 @click.argument("measured", type=click.Path(dir_okay=False))
 @click.option("--smiles", "smiles_list", multiple=True, metavar="'SMILES [NAME]'",
@@ -996,12 +981,11 @@ def components_command(measured, smiles_list, references, compare_range, baselin
     from .comparison import DEFAULT_COMPARE_RANGE_CM1, check_range
     from .components import Component, fit_components, plot_components
     from .measured import load_spectrum
-    from .ranking import predict_stored
+    from .ranking import candidate_of_line, predict_stored
 
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path, "--report": report_path})
-        _check_report(report_path)
         if not smiles_list and not references:
             raise InputError("give the components: --smiles SMILES and/or --reference FILE (each repeatable)")
         rng = tuple(compare_range) if compare_range else DEFAULT_COMPARE_RANGE_CM1
@@ -1015,7 +999,10 @@ def components_command(measured, smiles_list, references, compare_range, baselin
             path, name, conc = _reference_arg(text)
             comps.append(Component(name, reference=load_spectrum(path, kind=y_kind), concentration=conc))
         for k, text in enumerate(smiles_list):
-            smiles, name = _smiles_arg(text)
+            if not text.strip():
+                raise InputError("--smiles: empty")
+            cand = candidate_of_line(text)
+            smiles, name = cand.smiles, cand.name
             progress("components", k, len(smiles_list), name)
             comps.append(Component(name, prediction=predict_stored(smiles, calc, sopts, store, progress)[0]))
         progress.finish()
@@ -1046,7 +1033,6 @@ def series_command(files, list_path, start_smiles, product_smiles, series_method
     progress = ProgressLine(enabled=not quiet)
     with _user_errors(progress):
         _check_outputs({"--csv": csv_path, "--plot": plot_path, "--json": json_path, "--report": report_path})
-        _check_report(report_path)
         spectra, times, unit = load_series(list_path, list(files), kind=y_kind)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)

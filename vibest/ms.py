@@ -435,6 +435,13 @@ class MassEvidence:
     def checks(self, candidates) -> list[MsCheck]:
         return check_candidates(candidates, ms=self.spectrum, formula=self.formula, mass=self.mass)
 
+    def screen(self, candidates, keep: str | None = None) -> tuple[list[MsCheck], list[MsCheck]]:
+        """(the check of every candidate, the contradicted ones to leave out when ``drop`` is set;
+        never the candidate with SMILES ``keep``)."""
+        checks = self.checks(candidates)
+        dropped = [c for c in checks if self.drop and c.status == CONTRADICTED and c.smiles != keep]
+        return checks, dropped
+
     def describe(self) -> str:
         parts = [f"mass spectrum {self.spectrum.source}" + (" (chemical ionisation)" if self.spectrum.chemical_ionisation
                                                             else "")] if self.spectrum else []

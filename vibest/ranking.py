@@ -121,11 +121,16 @@ def read_candidates(path: str | Path) -> list[Candidate]:
     if "smiles" in header:
         return [_csv_candidate(path, k, text, problem, header) for k, text, problem in rows[1:]] or \
             _no_rows(path)
-    out = []
-    for k, text, problem in rows:
-        parts = text.split(None, 1)
-        out.append(Candidate(parts[1].strip() if len(parts) > 1 else parts[0], parts[0], problem))
-    return out
+    return [candidate_of_line(text, problem) for _, text, problem in rows]
+
+
+def candidate_of_line(text: str, problem: str = "") -> Candidate:
+    """'SMILES [name]' (a space ends a SMILES, as in SMILES files) -> Candidate; the name is the
+    SMILES when none is given."""
+    parts = text.strip().split(None, 1)
+    if not parts:
+        raise InputError("an empty line is not a candidate")
+    return Candidate(parts[1].strip() if len(parts) > 1 else parts[0], parts[0], problem)
 
 
 def _no_rows(path) -> list[Candidate]:

@@ -109,7 +109,7 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
         if key not in seen:
             seen.add(key)
             pool.append(c)
-    checks, dropped = _mass_checks(mass_evidence, pool, intended)
+    checks, dropped = mass_evidence.screen(pool, keep=intended.smiles) if mass_evidence else ([], [])
     pool = [c for c in pool if c.smiles not in {d.smiles for d in dropped}]
     ranking = rank_candidates(measured, pool, calc=calc, spec=spec, store=store, progress=progress, options=options,
                               **changes)
@@ -127,15 +127,6 @@ def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None
         conclusion, reasons = NOT_SUPPORTED, [f"the mass evidence contradicts {intended.name}: {mine.reason}"] + reasons
     return Verdict(intended, conclusion, tuple(reasons), ranking, assessment, evidence, made, tuple(checks),
                    tuple(dropped))
-
-
-def _mass_checks(evidence: MassEvidence | None, pool: list[Candidate], intended: Candidate):
-    """(checks of every candidate, the contradicted ones to drop: never the intended structure)."""
-    if evidence is None:
-        return [], []
-    checks = evidence.checks(pool)
-    dropped = [c for c in checks if evidence.drop and c.status == CONTRADICTED and c.smiles != intended.smiles]
-    return checks, dropped
 
 
 def _conclude(intended: Candidate, ranking: Ranking, assessment: Assessment,
