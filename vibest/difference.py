@@ -218,7 +218,7 @@ def plot_difference(diff: Difference, path: str | Path, title: str = "") -> None
 
     from .files import write_with
 
-    fig, (ax, axd) = plt.subplots(2, 1, figsize=(10, 6), dpi=120, sharex=True, gridspec_kw={"height_ratios": [2, 1.4]})
+    fig, (ax, axd) = plt.subplots(2, 1, figsize=(10, 6.5), dpi=120, sharex=True, gridspec_kw={"height_ratios": [2, 1.8]})
     ax.plot(diff.grid_cm1, diff.before, color="#1f4e79", lw=1.0, label=f"before x {diff.scale:.2f}: {Path(diff.before_source).name}")
     ax.plot(diff.grid_cm1, diff.after, color="#c55a11", lw=1.0, label=f"after: {Path(diff.after_source).name}")
     ax.set_ylabel("absorbance")
@@ -237,12 +237,12 @@ def plot_difference(diff: Difference, path: str | Path, title: str = "") -> None
         widths = [max(len(line) for line in t.split("\n")) * 0.0055 * span for t in texts]
         heights = [abs(c.change_absorbance) / top for c in chosen]
         for c, t, y in zip(chosen, texts, place_labels([c.wavenumber_cm1 for c in chosen], heights, widths, span,
-                                                       levels=4, step=0.22, gap=0.06)):
+                                                       levels=3, step=0.5, gap=0.06)):
             axd.plot([c.wavenumber_cm1], [c.change_absorbance], "v" if sign > 0 else "^", color=color, ms=4)
             if y is not None:
                 axd.annotate(t, (c.wavenumber_cm1, sign * y * top), ha="center", va="bottom" if sign > 0 else "top",
                              fontsize=6.5, color=color)
-    axd.set_ylim(-2.1 * top, 2.1 * top)
+    axd.set_ylim(-3.2 * top, 3.2 * top)
     axd.set_ylabel("after - before")
     axd.set_xlabel("wavenumber / cm$^{-1}$")
     axd.set_xlim(max(4000, diff.grid_cm1[-1]), min(400, diff.grid_cm1[0]))
