@@ -1,4 +1,4 @@
-"""Shared fixtures: small molecules computed once per test session (GFN2-xTB via tblite)."""
+"""Shared fixtures: small molecules computed once per test session (the default level, GFN1-xTB, via tblite)."""
 
 from __future__ import annotations
 

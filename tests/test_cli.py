@@ -41,12 +41,12 @@ def test_predict_writes_outputs(tmp_path):
     assert res.exit_code == 0, res.output
     assert "O-H stretch" in res.output and "caution" in res.output and "gradients" in res.output
     data = json.loads(files["json"].read_text())
-    assert len(data["bands"]) == 3 and data["settings"]["engine"]["method"] == "GFN2-xTB"
+    assert len(data["bands"]) == 3 and data["settings"]["engine"]["method"] == "GFN1-xTB"
     rows = files["csv"].read_text().splitlines()
     # header row first (spreadsheets read it as a table), what it is in the sidecar JSON
     assert rows[0].startswith("wavenumber_cm1") and len(rows) == 1 + 3601
     meta = json.loads((tmp_path / "w.csv.meta.json").read_text())
-    assert meta["smiles"] == "O" and "confirm" in meta["caution"] and meta["method"] == "GFN2-xTB"
+    assert meta["smiles"] == "O" and "confirm" in meta["caution"] and meta["method"] == "GFN1-xTB"
     assert files["png"].stat().st_size > 10000
     assert run("predict", "O", "-q", "--plot", str(files["svg"]), "--transmittance").exit_code == 0
     assert files["svg"].read_text().lstrip().startswith("<?xml")

@@ -17,8 +17,10 @@ def strongest(pred, lo=0.0, hi=5000.0):
 
 @pytest.mark.parametrize("smiles", ["CC(C)=O", "CCC(C)=O", "O=C1CCCCC1"])
 def test_ketone_strongest_band_is_carbonyl_near_1700_1750(smiles):
+    """1700-1750 cm^-1 is the window of liquids and solutions; a gas lies 10-30 cm^-1 higher
+    (common practice; vibest.condensed_phase), and the prediction is of a gas: 1710-1780."""
     b = strongest(prediction_of(smiles))
-    assert 1700 <= b.wavenumber_cm1 <= 1750
+    assert 1710 <= b.wavenumber_cm1 <= 1780
     assert "C=O stretch" in b.character
 
 

@@ -7,6 +7,7 @@ from ase.units import Bohr, Hartree
 from scipy import constants as sc
 
 from vibest.analysis.harmonic import default_masses, harmonic_analysis
+from vibest.calculation.engine import EngineSettings
 
 from .conftest import prediction_of, record_of
 
@@ -71,7 +72,7 @@ def _ase_reference(rec, tmp_path):
     from tblite.ase import TBLite
 
     atoms = Atoms(numbers=rec.numbers, positions=rec.positions_angstrom)
-    atoms.calc = TBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    atoms.calc = TBLite(method=EngineSettings().method, accuracy=0.01, electronic_temperature=300.0, verbosity=0)
     ir = Infrared(atoms, delta=rec.settings["hessian_step_bohr"] * Bohr, nfree=2, name=str(tmp_path / "ir"))
     ir.run()
     freqs = np.real(ir.get_frequencies())  # cm^-1, 3N values incl. rigid body

@@ -28,7 +28,7 @@ def test_optimiser_reaches_the_same_minimum_as_ase_bfgs(coordinates):
     assert res.converged and res.max_force_hartree_bohr < 5e-5
     assert res.coordinates == coordinates
     atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
-    atoms.calc = TBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    atoms.calc = TBLite(method=EngineSettings().method, accuracy=0.01, electronic_temperature=300.0, verbosity=0)
     BFGS(atoms, logfile=None).run(fmax=5e-5 * Hartree / Bohr, steps=1000)
     assert res.energy_hartree == pytest.approx(atoms.get_potential_energy() / Hartree, abs=1e-6)
     assert res.gradient_calls < 60
@@ -45,13 +45,18 @@ def test_internal_optimiser_on_a_flexible_molecule_matches_ase_bfgs():
     res = optimize(make_engine(mol.numbers, x), mol.numbers, x)
     assert res.converged and res.coordinates == "internal"
     atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
-    atoms.calc = TBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    atoms.calc = TBLite(method=EngineSettings().method, accuracy=0.01, electronic_temperature=300.0, verbosity=0)
     BFGS(atoms, logfile=None).run(fmax=5e-5 * Hartree / Bohr, steps=1000)
-    assert res.energy_hartree == pytest.approx(atoms.get_potential_energy() / Hartree, abs=1e-6)
-    # same structure: interatomic distances agree (Angstrom)
+    # same minimum: within what the force threshold leaves along 1-butanol's soft torsions (see
+    # test_a_computed_start_hessian_saves_optimisation_gradients), and not above ASE's
+    e_ase = atoms.get_potential_energy() / Hartree
+    assert res.energy_hartree == pytest.approx(e_ase, abs=1e-5) and res.energy_hartree < e_ase + 1e-6
+    # same structure: interatomic distances agree (Angstrom); bond lengths tightly, the distances a
+    # soft torsion sets (the O-H rotor: a force below the threshold still moves it by ~0.01 A) to 0.02
     d_vb = np.linalg.norm(res.positions_bohr[:, None] - res.positions_bohr[None], axis=-1) * Bohr
     d_ase = np.linalg.norm(atoms.positions[:, None] - atoms.positions[None], axis=-1)
-    assert np.abs(d_vb - d_ase).max() < 0.01
+    bonded = d_ase < 1.6
+    assert np.abs(d_vb - d_ase)[bonded].max() < 0.002 and np.abs(d_vb - d_ase).max() < 0.02
 
 
 @pytest.mark.parametrize("smiles", ["CC#N", "O=C=O", "C=O"])
@@ -326,7 +331,8 @@ def test_isotopes_written_in_the_smiles_are_used_and_kept_in_the_record(tmp_path
 def test_a_computed_start_hessian_saves_optimisation_gradients():
     """Started from a randomly displaced minimum, an optimisation given that minimum's Hessian as
     its start curvature needs fewer gradients than one from Lindh's model, and reaches the same
-    minimum (energy within 1e-6 Eh: the convergence threshold's scale)."""
+    minimum (energy within 1e-5 Eh: the force threshold, 5e-5 Eh/Bohr, left along a methyl torsion
+    whose curvature is ~1e-4 Eh/Bohr^2 allows F^2/2k ~ 1e-5 Eh; GFN1-xTB's two runs differ by 4e-6)."""
     record = record_of("CCC(C)=O")
     numbers = record.numbers
     x0 = record.positions_angstrom / Bohr
@@ -335,7 +341,7 @@ def test_a_computed_start_hessian_saves_optimisation_gradients():
     plain = optimize(engine, numbers, x)
     seeded = optimize(engine, numbers, x, hessian=record.hessian_hartree_bohr2)
     assert seeded.converged and seeded.gradient_calls < plain.gradient_calls
-    assert seeded.energy_hartree == pytest.approx(plain.energy_hartree, abs=1e-6)
+    assert seeded.energy_hartree == pytest.approx(plain.energy_hartree, abs=1e-5)
 
 
 def test_a_flexible_molecule_does_not_depend_on_the_embedding_seed():

@@ -369,7 +369,7 @@ def _quiet_broken_pipe() -> None:
 @click.group(cls=_Commands, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="vibest")
 def main() -> None:
-    """vibest: predicted IR spectra from structure (GFN2-xTB or DFT, harmonic, scaled),
+    """vibest: predicted IR spectra from structure (GFN1-/GFN2-xTB or DFT, harmonic, scaled),
     compared with measured spectra; verdicts on whether a sample is the intended structure.
 
     Predictions are estimates: confirm identifications with reference standards.

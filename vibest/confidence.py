@@ -27,6 +27,8 @@ from importlib import resources
 
 import numpy as np
 
+from .analysis.scaling import DEFAULT_METHOD_NAME
+
 CONFIDENCE_FILE = "confidence.json"
 #: Level of theory (method name) -> its shipped confidence model (benchmarks/confidence.py --method).
 CONFIDENCE_FILES = {"GFN2-xTB": CONFIDENCE_FILE, "GFN1-xTB": "confidence-gfn1.json"}
@@ -92,7 +94,7 @@ def _same(a, b) -> bool:
     return a == b
 
 
-def shipped_model(method_name: str = "GFN2-xTB") -> ConfidenceModel | None:
+def shipped_model(method_name: str = DEFAULT_METHOD_NAME) -> ConfidenceModel | None:
     """The model shipped for a level of theory (vibest/data/confidence*.json), or None."""
     name = CONFIDENCE_FILES.get(method_name)
     if name is None:

@@ -1,4 +1,4 @@
-"""Conformer ensembles: search, GFN2-xTB refinement, Boltzmann-weighted spectrum.
+"""Conformer ensembles: search, tight-binding refinement (the chosen level), Boltzmann-weighted spectrum.
 
 Steps (each documented in README "Flexible molecules"):
 1. RDKit ETKDGv3 ensemble, 5 + 10 x (rotatable bonds) conformers, capped by ``max_conformers``;
@@ -6,11 +6,11 @@ Steps (each documented in README "Flexible molecules"):
 2. De-duplication: same force-field energy (0.05 kcal/mol) and all-atom RMSD below
    ``rmsd_angstrom`` after symmetry-aware alignment count once; the ``max_refined`` lowest within
    ``mmff_window_kcal`` go on.
-3. GFN2-xTB optimisation of each; de-duplication again (same energy within 0.01 kcal/mol and RMSD
+3. Optimisation of each at the chosen level (GFN1-xTB by default); de-duplication again (same energy within 0.01 kcal/mol and RMSD
    below 0.1 Angstrom: the same minimum reached twice counts once).
 4. Hessians only for conformers within ``energy_window_kcal`` of the lowest.
 5. Boltzmann weights w_i = exp(-dE_i / RT) / sum_j exp(-dE_j / RT) at ``temperature_K`` from the
-   GFN2-xTB electronic energies, or from harmonic free energies (``weighting="free-energy"``);
+   electronic energies at that level, or from harmonic free energies (``weighting="free-energy"``);
    the ensemble spectrum is sum_i w_i S_i.
 """
 
@@ -231,7 +231,7 @@ def predict_ensemble(smiles: str, *, calc: CalculationOptions = CalculationOptio
     y = sum(m.weight * m.prediction.spectrum.absorption_km_mol_cm1 for m in members)
     first = members[0].prediction.spectrum
     spectrum = dataclasses.replace(first, absorption_km_mol_cm1=np.asarray(y))
-    notes.append(f"{found} conformers embedded, {len(kept)} refined with GFN2-xTB, {len(unique)} distinct minima, "
+    notes.append(f"{found} conformers embedded, {len(kept)} refined with {preds[0][0].method_name}, {len(unique)} distinct minima, "
                  f"{len(window)} within {ens.energy_window_kcal:g} kcal/mol")
     return EnsemblePrediction(members[0].prediction.smiles, members, spectrum, ens.temperature_K, ens.weighting,
                               found, len(kept), tuple(notes))

@@ -18,7 +18,7 @@ from . import __version__
 from .analysis.composition import ModeComposition, mode_composition
 from .analysis.harmonic import HarmonicModes, harmonic_analysis, rayleigh_wavenumbers
 from .analysis.internal_space import InternalSpace
-from .analysis.scaling import (DEFAULT_METHOD_NAME, ScaleModel, default_scale_model, named_scale_model,
+from .analysis.scaling import (DEFAULT_METHOD_NAME, UNRECORDED_METHOD_NAME, ScaleModel, default_scale_model, named_scale_model,
                                user_scale_model)
 from .calculation.driver import (DEFAULT_DFT_MEMORY_MB, DEFAULT_SEED, IMAGINARY_THRESHOLD_CM1,  # noqa: F401
                                  CalculationOptions, Progress, calculation_options, check_cost, compute_record)
@@ -216,7 +216,7 @@ def _versions() -> dict:
 
 def record_method(record: HessianRecord) -> str:
     """Name of the method that computed the record's Hessian (GFN2-xTB for records without one)."""
-    return str(record.settings.get("engine", {}).get("method", DEFAULT_METHOD_NAME))
+    return str(record.settings.get("engine", {}).get("method", UNRECORDED_METHOD_NAME))
 
 
 def record_level(record: HessianRecord) -> str:
@@ -289,7 +289,7 @@ def predict(smiles: str, *, method: str = DEFAULT_METHOD, seed: int = DEFAULT_SE
     Args:
         smiles: the structure; charges and radicals in the SMILES set charge and spin, isotopes
             ([2H], [13CH3]) the masses.
-        method: level of theory: "gfn2" (GFN2-xTB, default), "b3lyp" (B3LYP-D3(BJ)/6-31G(d) for
+        method: level of theory: "gfn1" (GFN1-xTB, default), "gfn2" (GFN2-xTB), "b3lyp" (B3LYP-D3(BJ)/6-31G(d) for
             geometry, Hessian and intensities), "gfn2+b3lyp" (GFN2-xTB positions, B3LYP
             intensities); see ``vibest methods``.
         seed: embedding seed (same seed, same result).

@@ -10,10 +10,13 @@ At a density-functional level the molecule is computed from that GFN2-xTB record
 
 from __future__ import annotations
 
+from .calculation.driver import DFT_START_ENGINE
 from .calculation.record import HessianRecord
 from .pipeline import CalculationOptions, SpectrumOptions, compute_record
 
-REFERENCE_OPTIONS = CalculationOptions(workers=1)
+#: The level the reference conformers are found at (GFN2-xTB: density-functional levels start from
+#: these records, as every DFT optimisation starts from a GFN2-xTB minimum).
+REFERENCE_OPTIONS = CalculationOptions(engine=DFT_START_ENGINE, workers=1)
 
 
 def reference_record(smiles: str, options: CalculationOptions = REFERENCE_OPTIONS) -> HessianRecord:

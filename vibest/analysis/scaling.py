@@ -279,7 +279,10 @@ def coupling_pairs(numbers, primitives) -> dict[str, tuple[np.ndarray, np.ndarra
 #: ``benchmarks/fit_scale_factor.py --method KEY --write``).
 SCALE_FILES = {"GFN2-xTB": "scale_factors.json", "GFN1-xTB": "scale_factors-gfn1.json",
                "B3LYP-D3(BJ)/6-31G(d)": "scale_factors-b3lyp.json"}
-DEFAULT_METHOD_NAME = "GFN2-xTB"
+#: Name of the default level (vibest.calculation.methods.DEFAULT_METHOD; a test keeps them equal).
+DEFAULT_METHOD_NAME = "GFN1-xTB"
+#: Method of a stored record that names none: records were GFN2-xTB before levels were recorded.
+UNRECORDED_METHOD_NAME = "GFN2-xTB"
 
 
 @functools.lru_cache(maxsize=None)

@@ -25,7 +25,7 @@ from ..errors import InputError
 from ..structure import DEFAULT_SEED
 from .engine import Engine, EngineSettings, Evaluation, calculation_threads, make_engine, solvent_keyword
 from .hessian import default_workers, finite_difference_hessian
-from .methods import DEFAULT_METHOD, parse_level
+from .methods import DEFAULT_METHOD, METHODS, parse_level
 from .optimizer import OptimizerSettings, optimize
 from .record import HessianRecord
 from .workers import pool_is_ready, prestart
@@ -409,6 +409,11 @@ def _dft_resources(options: CalculationOptions):
     return DFTResources(threads=options.workers, memory_mb=options.memory_mb)
 
 
+#: The tight-binding level a density-functional optimisation starts from (and its records were
+#: fitted from): GFN2-xTB, whatever the default level.
+DFT_START_ENGINE = EngineSettings(method=METHODS["gfn2"].name)
+
+
 def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Progress | None,
                            timings: Timings, notes: list[str]) -> tuple[np.ndarray, np.ndarray]:
     """The GFN2-xTB minimum (Bohr) a density-functional optimisation starts from, and the GFN2-xTB
@@ -417,7 +422,7 @@ def _tight_binding_minimum(molecule, options: CalculationOptions, progress: Prog
     optimisations from randomly displaced minima: 8/13/25/9/8 -> 5/9/16/5/6)."""
     t = time.perf_counter()
     x = molecule.positions_angstrom / Bohr
-    start = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, EngineSettings())
+    start = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, DFT_START_ENGINE)
     _notify(progress, "pre-optimisation", 0, 1, "GFN2-xTB")
     x = _lowest_start(start, molecule, options, progress, timings, notes)
     opt = optimize(start, molecule.numbers, x, options.optimizer)

@@ -16,7 +16,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from ..errors import CalculationError, InputError
-from .methods import DFTSettings, Method
+from .methods import DEFAULT_METHOD, METHODS, DFTSettings, Method
 
 BACKENDS = ("tblite", "xtb", "pyscf")
 #: Solvent names with parametrised GFN2-xTB ALPB models (Ehlert, Stahn, Spicher, Grimme,
@@ -54,7 +54,7 @@ class EngineSettings:
     """What defines the level of theory; everything that changes the numbers.
 
     Attributes:
-        method: tight-binding Hamiltonian (``"GFN2-xTB"``).
+        method: tight-binding Hamiltonian (``"GFN1-xTB"``, the default, or ``"GFN2-xTB"``).
         backend: ``"tblite"`` (default) or ``"xtb"`` (xtb-python, optional extra).
         accuracy: tblite/xtb numerical accuracy multiplier (smaller is tighter; 1.0 is the codes' default).
         electronic_temperature_K: Fermi smearing temperature in kelvin.
@@ -64,7 +64,7 @@ class EngineSettings:
         dft: density-functional settings (backend "pyscf" only), else None.
     """
 
-    method: str = "GFN2-xTB"
+    method: str = METHODS[DEFAULT_METHOD].name
     backend: str = "tblite"
     accuracy: float = 0.01
     electronic_temperature_K: float = 300.0
