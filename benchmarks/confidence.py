@@ -39,6 +39,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import measured_set  # noqa: E402
 
 from vibest.calculation.driver import calculation_options  # noqa: E402
+from vibest.calculation.methods import DEFAULT_METHOD  # noqa: E402
 from vibest.comparison import DEFAULT_MAX_SHIFT_CM1, DEFAULT_SCORE, compare  # noqa: E402
 from vibest.confidence import (LOW_CONFIDENCE, expected_calibration_error, fit_logistic,  # noqa: E402
                                margin_noise, matched_share)
@@ -209,7 +210,8 @@ def main() -> None:
     ap.add_argument("--write", action="store_true", help="write the features table and vibest/data/confidence.json")
     ap.add_argument("--from-table", action="store_true", help="use the stored features table instead of computing")
     ap.add_argument("--dump", default=None, help="also write the features to this CSV file")
-    ap.add_argument("--method", default="gfn2", choices=["gfn2", "gfn1"], help="level of theory of the predictions")
+    ap.add_argument("--method", default=DEFAULT_METHOD, choices=["gfn2", "gfn1"],
+                    help="level of theory of the predictions [the default level]")
     args = ap.parse_args()
     features_path, model_path = paths(args.method)
     settings = SETTINGS | {"method": calculation_options(args.method).method_name}

@@ -27,6 +27,7 @@ from vibest.comparison import DEFAULT_SCORE, SCORES, compare  # noqa: E402
 from vibest.errors import VibestError  # noqa: E402
 from vibest.measured import load_spectrum  # noqa: E402
 from vibest.calculation.driver import calculation_options  # noqa: E402
+from vibest.calculation.methods import DEFAULT_METHOD  # noqa: E402
 from vibest.pipeline import SpectrumOptions  # noqa: E402
 from vibest.ranking import predict_stored  # noqa: E402
 from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
@@ -106,7 +107,8 @@ def main() -> None:
     ap.add_argument("--store", default=None, help="result store (SQLite file) [the default store]")
     ap.add_argument("--fwhm", type=float, nargs="+", default=[DEFAULT_FWHM_CM1, 30.0])
     ap.add_argument("--quick", action="store_true", help="default score and first FWHM only")
-    ap.add_argument("--method", default="gfn2", help="level of theory of every candidate (gfn2, b3lyp, gfn2+b3lyp)")
+    ap.add_argument("--method", default=DEFAULT_METHOD,
+                    help="level of theory of every candidate (gfn1, gfn2, b3lyp, gfn2+b3lyp) [the default level]")
     ap.add_argument("--refine", type=int, default=0, metavar="K", help="recompute the best K at --refine-method")
     ap.add_argument("--refine-method", default="b3lyp")
     ap.add_argument("--set", choices=["training", "blind"], default="training",

@@ -1,7 +1,7 @@
 """Speed benchmark: vibest against the path a user would script with general-purpose tools.
 
 Side by side, in one process, from the same MMFF-pre-relaxed start and with the same tblite
-settings (GFN2-xTB, accuracy 0.01, electronic temperature 300 K):
+settings (the default level, GFN1-xTB since 2026-12-04, accuracy 0.01, electronic temperature 300 K):
   1. reference: ASE BFGS to the same convergence (largest atomic force below vibest's default,
      5e-5 Eh/Bohr = 2.57e-3 eV/Angstrom) + ase.vibrations.Infrared (central differences,
      step 0.005 Bohr, serial);
@@ -43,7 +43,7 @@ from ase.vibrations import Infrared
 from tblite.ase import TBLite
 
 from vibest.analysis.harmonic import harmonic_analysis
-from vibest.calculation.engine import calculation_threads, make_engine
+from vibest.calculation.engine import EngineSettings, calculation_threads, make_engine
 from vibest.calculation.hessian import default_workers, finite_difference_hessian
 from vibest.pipeline import CalculationOptions, compute_record
 from vibest.structure import build_molecule
@@ -77,7 +77,7 @@ class CountingTBLite(TBLite):
 
 def reference_path(mol, step_bohr: float, fmax_hartree_bohr: float = FMAX_HARTREE_BOHR):
     atoms = Atoms(numbers=mol.numbers, positions=mol.positions_angstrom)
-    atoms.calc = CountingTBLite(method="GFN2-xTB", accuracy=0.01, electronic_temperature=300.0, verbosity=0)
+    atoms.calc = CountingTBLite(method=EngineSettings().method, accuracy=0.01, electronic_temperature=300.0, verbosity=0)
     CountingTBLite.calls = 0
     t0 = time.perf_counter()
     BFGS(atoms, logfile=None).run(fmax=fmax_hartree_bohr * Hartree / Bohr, steps=3000)
