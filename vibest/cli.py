@@ -563,7 +563,12 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
-        pred, _ = predict_stored(smiles, calc, sopts, _store(store_path, no_store), progress)
+        store = _store(store_path, no_store)
+        pred, _ = predict_stored(smiles, calc, sopts, store, progress)
+        if copts.computes_hydrogen_bonding(spec):
+            from .hydrogen_bonding import with_hydrogen_bonding
+
+            pred = with_hydrogen_bonding(pred, calc, store, progress)
         progress.finish()
         comp = compare(pred, spec, copts)
         for note in spec.notes:

@@ -186,25 +186,30 @@ class Comparison:
 def predicted_curve(pred: Prediction, grid_cm1, extra_scale: float = 1.0, shift_cm1: float = 0.0,
                     fwhm_cm1: float | None = None, line_shape: str | None = None, gas_phase: bool = False,
                     temperature_K: float = 298.15, contour: tuple | None = None,
-                    band_shifts_cm1=None) -> np.ndarray:
-    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift (+ a shift per
-    band, ``band_shifts_cm1``), max 1.
+                    adjustments=None) -> np.ndarray:
+    """The prediction broadened on ``grid_cm1`` after nu -> extra_scale * nu + shift, max 1.
 
     With ``gas_phase`` each band gets a rotational P/Q/R contour (:mod:`vibest.gas_phase`);
-    ``contour`` is its (B, Q fractions) when already known."""
+    ``contour`` is its (B, Q fractions) when already known. ``adjustments``
+    (:class:`vibest.condensed_phase.BandAdjustments`) move, strengthen and widen single bands first."""
     nu = pred.wavenumbers_cm1 * extra_scale + shift_cm1
-    if band_shifts_cm1 is not None:
-        nu = nu + band_shifts_cm1
+    intensities = pred.intensities_km_mol
     fwhm = fwhm_cm1 or pred.spectrum.fwhm_cm1
     shape = line_shape or pred.spectrum.line_shape
+    if adjustments is not None:
+        nu = nu + adjustments.shift_cm1
+        intensities = intensities * adjustments.intensity_factor
     if gas_phase:
         from .gas_phase import band_contour_inputs, envelope_spectrum
 
         b, q = contour if contour is not None else band_contour_inputs(pred)
-        s = envelope_spectrum(nu, pred.intensities_km_mol, b, q, fwhm, shape, grid_cm1, temperature_K)
+        y = envelope_spectrum(nu, intensities, b, q, fwhm, shape, grid_cm1, temperature_K).absorption_km_mol_cm1
     else:
-        s = broaden(nu, pred.intensities_km_mol, fwhm, shape, grid_cm1)
-    y = s.absorption_km_mol_cm1
+        own = adjustments.fwhm_cm1 if adjustments is not None else np.full(len(nu), np.nan)
+        common = ~np.isfinite(own)
+        y = broaden(nu[common], intensities[common], fwhm, shape, grid_cm1).absorption_km_mol_cm1
+        for k in np.flatnonzero(~common):  # a hydrogen-bonded band's own width
+            y = y + broaden(nu[k:k + 1], intensities[k:k + 1], float(own[k]), shape, grid_cm1).absorption_km_mol_cm1
     return y / y.max() if y.max() > 0 else y
 
 
@@ -322,6 +327,15 @@ class ComparisonOptions:
     keep_atmospheric: bool = False
     exclude_cm1: tuple[tuple[float, float], ...] = ()
 
+    def is_gas_phase(self, measured: MeasuredSpectrum) -> bool:
+        """Whether ``measured`` is compared as a gas: :attr:`gas_phase`, or when None what the file says."""
+        return measured.phase == "gas" if self.gas_phase is None else bool(self.gas_phase)
+
+    def computes_hydrogen_bonding(self, measured: MeasuredSpectrum) -> bool:
+        """Whether predictions compared with ``measured`` should carry computed hydrogen bonding
+        (a condensed sample with condensed-phase adjustments on)."""
+        return self.condensed_shifts and not self.is_gas_phase(measured)
+
     def checked(self) -> "ComparisonOptions":
         """These options, or an InputError naming the first unusable one."""
         if self.score_name not in SCORES:
@@ -371,7 +385,7 @@ class _Prepared:
     line_shape: str
     gas_phase: bool
     contour: tuple | None
-    band_shifts_cm1: np.ndarray | None
+    adjustments: object | None  # vibest.condensed_phase.BandAdjustments in a condensed phase
     coverage: float
     notes: tuple[str, ...]
 
@@ -391,7 +405,7 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
     if coverage < 0.9:
         notes.append(f"the measured data cover {lo:.0f}-{hi:.0f} cm^-1, {coverage:.0%} of the compared "
                      f"{opts.range_cm1[0]:.0f}-{opts.range_cm1[1]:.0f} cm^-1: bands outside are not judged")
-    gas_phase = measured.phase == "gas" if opts.gas_phase is None else opts.gas_phase
+    gas_phase = opts.is_gas_phase(measured)
     if opts.gas_phase is None and measured.sampling:
         notes.append(f"phase: {'gas' if gas_phase else 'condensed'} ({measured.sampling}, from the file's "
                      f"{measured.sampling_from})")
@@ -414,20 +428,23 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
     if opts.smooth_measured_cm1 > 0:
         m_linear = smooth(m_linear, opts.step_cm1, opts.smooth_measured_cm1)
     m_linear = _masked_normalised(m_linear, mask)
-    contour = band_shifts = None
+    contour = adjustments = None
+    fwhm = opts.fwhm_cm1 or pred.spectrum.fwhm_cm1
     if gas_phase:
         from .gas_phase import band_contour_inputs
 
         contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
     elif opts.condensed_shifts:
-        from .condensed_phase import CARBONYL_SHIFT_CM1, condensed_band_shifts
+        from .condensed_phase import condensed_bands
+        from .hydrogen_bonding import needs_hydrogen_bonding
 
-        band_shifts = condensed_band_shifts(pred)
-        if np.any(band_shifts):
-            notes.append(f"condensed phase: predicted C=O stretches moved {CARBONYL_SHIFT_CM1:+.0f} cm^-1 "
-                         "(vibest.condensed_phase)")
-    return _Prepared((lo, hi), g, mask, m_linear, m_linear ** opts.intensity_power, opts.fwhm_cm1 or pred.spectrum.fwhm_cm1,
-                     opts.line_shape or pred.spectrum.line_shape, gas_phase, contour, band_shifts, coverage,
+        adjustments = condensed_bands(pred, fwhm)
+        notes += adjustments.notes
+        if needs_hydrogen_bonding(pred):
+            notes.append("hydrogen bonding not computed for this prediction: its O-H/N-H bands are those of a "
+                         "free molecule (vibest.hydrogen_bonding.with_hydrogen_bonding computes them)")
+    return _Prepared((lo, hi), g, mask, m_linear, m_linear ** opts.intensity_power, fwhm,
+                     opts.line_shape or pred.spectrum.line_shape, gas_phase, contour, adjustments, coverage,
                      tuple(notes))
 
 
@@ -447,7 +464,7 @@ class _AlignedCurve:
     def _broadened(self, g, f: float, s: float) -> np.ndarray:
         p = self.prep
         return predicted_curve(self.pred, g, f, s, p.fwhm_cm1, p.line_shape, p.gas_phase, contour=p.contour,
-                               band_shifts_cm1=p.band_shifts_cm1)
+                               adjustments=p.adjustments)
 
     def __call__(self, f: float, s: float) -> np.ndarray:
         g = self.prep.grid_cm1
@@ -556,7 +573,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, options: ComparisonOpt
                 "line_shape": prep.line_shape, "baseline": opts.baseline, "fit_scale": opts.fit_scale,
                 "fit_shift": opts.fit_shift, "tolerance_cm1": opts.tolerance_cm1, "prominence": opts.prominence,
                 "gas_phase": prep.gas_phase,
-                "condensed_shifts": bool(prep.band_shifts_cm1 is not None and np.any(prep.band_shifts_cm1)),
+                "condensed_shifts": bool(prep.adjustments is not None and prep.adjustments.changes_anything),
                 "smooth_measured_cm1": opts.smooth_measured_cm1, "intensity_power": opts.intensity_power,
                 "coverage": prep.coverage, "excluded_points": int(prep.mask.sum())}
     return Comparison(pred.smiles, opts.score_name, scores[opts.score_name], scores, f_best, s_best, g,

@@ -108,7 +108,8 @@ DIAGNOSTICS: tuple[Diagnostic, ...] = (
                explained_by=("N-H stretch",)),
     Diagnostic("N-H stretch", (3250.0, 3550.0), _xh(7), "an N-H (amine, amide)", explained_by=("O-H stretch",)),
     Diagnostic("acetylenic C-H stretch", (3250.0, 3340.0), _xh(6, lambda c: c.GetHybridization().name == "SP"),
-               "a terminal alkyne C-H"),
+               "a terminal alkyne C-H",  # hydrogen-bonded O-H and N-H bands cover it (common practice)
+               explained_by=("O-H stretch", "N-H stretch")),
     Diagnostic("=C-H stretch (alkene, aromatic)", (3000.0, 3120.0),
                _xh(6, lambda c: c.GetHybridization().name == "SP2" and not _carbonyl_carbon(c)),
                "an alkene or aromatic C-H"),

@@ -125,6 +125,9 @@ class Prediction:
         converged: whether the geometry optimisation converged.
         imaginary_cm1: imaginary wavenumbers that remain (negative numbers, cm^-1).
         notes: remarks for the user (fragment choice, retries, warnings).
+        hydrogen_bonding: computed hydrogen-bond changes of its stretches
+            (:class:`vibest.hydrogen_bonding.HydrogenBonding`), attached for comparisons with
+            condensed samples by :func:`vibest.hydrogen_bonding.with_hydrogen_bonding`; else None.
     """
 
     record: HessianRecord
@@ -136,6 +139,7 @@ class Prediction:
     converged: bool
     imaginary_cm1: tuple[float, ...]
     notes: tuple[str, ...]
+    hydrogen_bonding: object | None = None
 
     @property
     def smiles(self) -> str:

@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import csv
+import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
 from .comparison import SCORES, Comparison, ComparisonOptions, compare, comparison_options
 from .errors import InputError, VibestError
+from .hydrogen_bonding import with_hydrogen_bonding
 from .measured import MeasuredSpectrum
 from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record
 from .store import RecordStore
@@ -224,6 +226,8 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
             continue
         try:
             pred, hit = predict_stored(cand.smiles, calc, spec, store, name=cand.name)
+            if opts.computes_hydrogen_bonding(measured):
+                pred = with_hydrogen_bonding(pred, calc, store)
             comp = compare(pred, measured, opts)
             scored.append((cand, pred, comp, hit, False, ""))
         except VibestError as exc:
@@ -251,6 +255,8 @@ def _refined(top, measured, calc, spec, store, opts: ComparisonOptions, progress
             progress(k, len(top), f"{cand.name} at {calc.method_name}")
         try:
             better, hit2 = predict_stored(cand.smiles, calc, spec, store, stage_progress)
+            if getattr(pred, "hydrogen_bonding", None) is not None:  # the first level's cluster (a
+                better = dataclasses.replace(better, hydrogen_bonding=pred.hydrogen_bonding)  # DFT one: hours)
         except VibestError as exc:
             out.append((cand, pred, comp, hit, False, f"not refined: {exc}"))
             continue
