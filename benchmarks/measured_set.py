@@ -22,6 +22,8 @@ MEMBER_DIR = "jcamp-1.3.2/data/infrared_spectra/"
 TABLE = Path(__file__).parent / "data" / "measured_set.csv"
 #: The reserved blind set (NIST ADC files of the same sdist): looked at once, see DEVELOPERS.md.
 BLIND_TABLE = Path(__file__).parent / "data" / "blind_set.csv"
+#: Two real condensed-phase (liquid) alcohol spectra of the same sdist folder.
+CONDENSED_TABLE = Path(__file__).parent / "data" / "condensed_set.csv"
 
 
 @dataclass(frozen=True)
@@ -89,11 +91,16 @@ def _extract(sdist: Path, member_dir: str, files: list[str], out: Path) -> Path:
 def fetch(directory: Path | None = None, timeout_s: float = 180.0, table: Path = TABLE) -> Path:
     """Folder holding the .jdx files listed in ``table`` (downloading and verifying the sdist once)."""
     root = directory or cache_dir()
-    out = root / ("jcamp-1.3.2-infrared" if table == TABLE else "jcamp-1.3.2-blind")
+    out = root / ("jcamp-1.3.2-infrared" if table == TABLE else f"jcamp-1.3.2-{table.stem}")
     wanted = [e.file for e in entries(table)]
     if all((out / f).exists() for f in wanted):
         return out
     return _extract(_verified_sdist(root, timeout_s), MEMBER_DIR, wanted, out)
+
+
+def fetch_condensed(directory: Path | None = None, timeout_s: float = 180.0) -> Path:
+    """Folder holding the condensed-phase files of :data:`CONDENSED_TABLE`."""
+    return fetch(directory, timeout_s, CONDENSED_TABLE)
 
 
 #: Mass spectra of the same sdist (data/mass_spectra/), for the mass-spectrum cross-check; like

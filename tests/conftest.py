@@ -64,6 +64,12 @@ def measured_folder():
 
 
 @pytest.fixture(scope="session")
+def condensed_folder():
+    """Folder of the real liquid alcohol spectra of benchmarks/data/condensed_set.csv (jcamp 1.3.2 sdist)."""
+    return _from_jcamp_sdist("condensed-phase spectra", "fetch_condensed")
+
+
+@pytest.fixture(scope="session")
 def mass_folder():
     """Folder of the real mass spectra of the jcamp 1.3.2 sdist (data/mass_spectra)."""
     return _from_jcamp_sdist("mass spectra", "fetch_mass_spectra")

@@ -65,3 +65,17 @@ def test_predict_writes_jcamp_that_reads_back(tmp_path):
     assert spec.kind == "absorbance"
     np.testing.assert_allclose(spec.wavenumbers_cm1, pred.wavenumbers_cm1, atol=1e-6)
     np.testing.assert_allclose(spec.values, pred.absorbance_normalised, atol=1e-6)
+
+
+def test_compare_computes_hydrogen_bonding_for_a_condensed_sample_unless_told_not_to(tmp_path):
+    """A CSV states no phase: taken as condensed, methanol's O-H bands come from its computed
+    hydrogen-bonded cluster (said in a note); --no-h-bonds keeps the free molecule's and says
+    nothing of clusters."""
+    m = _measured_csv(tmp_path / "m.csv")
+    store = ["--store", str(tmp_path / "s.sqlite")]
+    res = CliRunner().invoke(main, ["compare", str(m), "CO", "-q", *store])
+    assert res.exit_code == 0, res.output
+    assert "hydrogen bonding computed on the chain trimer" in res.output
+    res = CliRunner().invoke(main, ["compare", str(m), "CO", "-q", "--no-h-bonds", *store])
+    assert res.exit_code == 0, res.output
+    assert "hydrogen bonding" not in res.output

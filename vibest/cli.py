@@ -209,7 +209,7 @@ def comparison_options(f):
 
 
 #: Options of sample_options, turned into one ``sample_values`` argument (see :func:`_comparison`).
-_SAMPLE_KEYS = ("atr", "atr_angle", "keep_atmospheric", "exclude_windows", "matrix")
+_SAMPLE_KEYS = ("atr", "atr_angle", "keep_atmospheric", "exclude_windows", "matrix", "no_h_bonds")
 
 
 def sample_options(f):
@@ -228,6 +228,9 @@ def sample_options(f):
                           "or the crystal."),
         click.option("--atr-angle", type=click.FloatRange(10.0, 80.0), default=45.0, show_default=True,
                      help="ATR angle of incidence, degrees."),
+        click.option("--no-h-bonds", is_flag=True,
+                     help="Condensed samples: compare O-H/N-H bands of free molecules instead of computing "
+                          "hydrogen-bonded clusters (seconds to a minute per candidate with a donor, stored)."),
         click.option("--keep-atmospheric", is_flag=True,
                      help="Keep the CO2 and water-vapour windows found in a condensed-phase spectrum in the comparison."),
         click.option("--exclude-window", "exclude_windows", type=(float, float), multiple=True, metavar="LOW HIGH",
@@ -312,7 +315,7 @@ def _sample(values: dict) -> dict:
         return {}
     windows = tuple(tuple(w) for w in values["exclude_windows"]) + MATRIX_WINDOWS.get(values["matrix"], ())
     return {"atr": values["atr"], "atr_angle_deg": values["atr_angle"], "keep_atmospheric": values["keep_atmospheric"],
-            "exclude_cm1": windows}
+            "exclude_cm1": windows, "hydrogen_bonding": not values["no_h_bonds"]}
 
 
 def _store(path, disabled: bool):

@@ -295,6 +295,10 @@ class ComparisonOptions:
             the maximum).
         gas_phase: rotational contours for a gas sample (None: when the measured file says gas).
         condensed_shifts: in a condensed phase, move bands with a known shift (:mod:`vibest.condensed_phase`).
+        hydrogen_bonding: in a condensed phase (with ``condensed_shifts``), compute hydrogen-bonded
+            clusters for candidates with O-H/N-H donors (:mod:`vibest.hydrogen_bonding`; rankings,
+            verdicts and the ``compare`` command attach them, :func:`compare` uses what a
+            prediction carries).
         smooth_measured_cm1: Gaussian smoothing (FWHM, cm^-1) of the measured curve; 0: none.
         intensity_power: both normalised curves are compared as y**p (0.1-2).
         atr: ATR correction of the measured spectrum (:mod:`vibest.sampling`): "auto" (when the
@@ -320,6 +324,7 @@ class ComparisonOptions:
     prominence: float = 0.03
     gas_phase: bool | None = None
     condensed_shifts: bool = True
+    hydrogen_bonding: bool = True
     smooth_measured_cm1: float = 0.0
     intensity_power: float = DEFAULT_INTENSITY_POWER
     atr: str = "auto"
@@ -334,7 +339,7 @@ class ComparisonOptions:
     def computes_hydrogen_bonding(self, measured: MeasuredSpectrum) -> bool:
         """Whether predictions compared with ``measured`` should carry computed hydrogen bonding
         (a condensed sample with condensed-phase adjustments on)."""
-        return self.condensed_shifts and not self.is_gas_phase(measured)
+        return self.condensed_shifts and self.hydrogen_bonding and not self.is_gas_phase(measured)
 
     def checked(self) -> "ComparisonOptions":
         """These options, or an InputError naming the first unusable one."""
@@ -440,7 +445,7 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
 
         adjustments = condensed_bands(pred, fwhm)
         notes += adjustments.notes
-        if needs_hydrogen_bonding(pred):
+        if opts.hydrogen_bonding and needs_hydrogen_bonding(pred):
             notes.append("hydrogen bonding not computed for this prediction: its O-H/N-H bands are those of a "
                          "free molecule (vibest.hydrogen_bonding.with_hydrogen_bonding computes them)")
     return _Prepared((lo, hi), g, mask, m_linear, m_linear ** opts.intensity_power, fwhm,
