@@ -1,15 +1,16 @@
 """Calibrate the confidence of a ranking on real measured gas-phase spectra, and print how it does.
 
-Rankings (default comparison settings, GFN2-xTB, benchmarks/data/measured_set.csv):
+Rankings (default comparison settings, the chosen level, benchmarks/data/measured_set.csv):
   all       every distinct molecule of the set as candidates;
   isomers   the molecules of the same formula (where there are several);
   decoys    the right structure with its decoys (vibest.decoys, up to 8);
   without   every molecule but the right one (the first candidate is always wrong).
 For each ranking the first candidate's score s1, margin m to the second and share f of the
-measured peaks it matches are the features (chosen by the cross-validated calibration error and
-log loss among score, margin, the margin's noise, order flips, group evidence against and matched
-share; benchmarks/confidence.py prints the figures of the chosen set), and whether it is the
-right structure the label. A logistic model P(right | s1, m, f) is fitted
+measured peaks it matches are the candidate features (for GFN2-xTB chosen by the cross-validated
+calibration error and log loss among score, margin, the margin's noise, order flips, group
+evidence against and matched share); each level then uses the subset of them with the lowest
+held-out log loss (GFN2-xTB all three, GFN1-xTB margin and matched share), and whether the first
+candidate is the right structure is the label. A logistic model P(right | s1, m, f) is fitted
 (vibest.confidence.fit_logistic); its calibration is measured with folds that hold out whole
 measured spectra (leave-one-spectrum-out), never with the model's own training rows. Printed:
 the reliability table, expected calibration error (ECE), and the two targets (wrong first
@@ -140,13 +141,35 @@ def read_rows(path: Path = FEATURES) -> list[dict]:
         return out
 
 
+#: The features a shipped model can weigh (vibest.confidence.ConfidenceModel); each level uses the
+#: subset with the lowest leave-one-spectrum-out log loss (:func:`chosen_features`).
 FEATURE_NAMES = ("score", "margin", "matched")
 
 
-def fit_rows(rows: list[dict]) -> np.ndarray:
-    x = np.array([[r[k] for k in FEATURE_NAMES] for r in rows])
+def chosen_features(rows: list[dict]) -> tuple[str, ...]:
+    """The non-empty subset of :data:`FEATURE_NAMES` whose model has the lowest held-out log loss
+    (leave-one-spectrum-out; chosen once on all rows of a level: GFN2-xTB keeps all three,
+    GFN1-xTB drops the score)."""
+    from itertools import combinations
+
     y = np.array([r["right"] for r in rows])
-    return fit_logistic(x, y)
+    best = None
+    for k in range(1, len(FEATURE_NAMES) + 1):
+        for subset in combinations(FEATURE_NAMES, k):
+            p, _, _ = cross_validated(rows, subset)
+            loss = -np.mean(y * np.log(np.clip(p, 1e-12, 1)) + (1 - y) * np.log(np.clip(1 - p, 1e-12, 1)))
+            if best is None or loss < best[0] - 1e-12:
+                best = (loss, subset)
+    return best[1]
+
+
+def fit_rows(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES) -> np.ndarray:
+    """[intercept, weight of each of FEATURE_NAMES] (0 for a feature not in ``features``)."""
+    x = np.array([[r[k] for k in features] for r in rows])
+    y = np.array([r["right"] for r in rows])
+    coef = fit_logistic(x, y)
+    full = dict(zip(features, coef[1:]))
+    return np.array([coef[0], *(full.get(k, 0.0) for k in FEATURE_NAMES)])
 
 
 def probability(coef: np.ndarray, row: dict) -> float:
@@ -160,7 +183,7 @@ def poor_fit_threshold(rows: list[dict]) -> float:
     return float(np.percentile(right, 5)) if len(right) else 0.0
 
 
-def cross_validated(rows: list[dict]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def cross_validated(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Held-out probabilities by leave-one-spectrum-out (every ranking of a spectrum held out
     together), with the poor-fit threshold also fitted without it; returns (p, labels, poor)."""
     spectra = sorted({r["spectrum"] for r in rows})
@@ -168,7 +191,7 @@ def cross_validated(rows: list[dict]) -> tuple[np.ndarray, np.ndarray, np.ndarra
     poor = np.zeros(len(rows), dtype=bool)
     for name in spectra:
         train = [r for r in rows if r["spectrum"] != name]
-        coef = fit_rows(train)
+        coef = fit_rows(train, features)
         threshold = poor_fit_threshold(train)
         for k, r in enumerate(rows):
             if r["spectrum"] == name:
@@ -177,8 +200,8 @@ def cross_validated(rows: list[dict]) -> tuple[np.ndarray, np.ndarray, np.ndarra
     return p, np.array([r["right"] for r in rows]), poor
 
 
-def report(rows: list[dict]) -> dict:
-    p, y, poor = cross_validated(rows)
+def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES) -> dict:
+    p, y, poor = cross_validated(rows, features)
     ece = expected_calibration_error(p, y)
     print(f"{len(rows)} rankings of {len({r['spectrum'] for r in rows})} spectra; first candidate right in "
           f"{y.mean():.0%}")
@@ -223,8 +246,10 @@ def main() -> None:
         except measured_set.FetchError as exc:
             print(f"skipped: {exc}")
             return
-    figures = report(rows)
-    coef = fit_rows(rows)
+    features = chosen_features(rows)
+    print(f"features (lowest held-out log loss among subsets of {', '.join(FEATURE_NAMES)}): {', '.join(features)}")
+    figures = report(rows, features)
+    coef = fit_rows(rows, features)
     print(f"\nmodel on all rows: P = 1 / (1 + exp(-({coef[0]:.3f} + {coef[1]:.3f} s1 + {coef[2]:.3f} m "
           f"+ {coef[3]:.3f} f))); poor fit below s1 = {poor_fit_threshold(rows):.3f}")
     if args.dump:
@@ -245,6 +270,7 @@ def main() -> None:
         model_path.write_text(json.dumps({
             "intercept": round(float(coef[0]), 6), "score_weight": round(float(coef[1]), 6),
             "margin_weight": round(float(coef[2]), 6), "matched_weight": round(float(coef[3]), 6), "settings": settings,
+            "features": list(features),
             "poor_fit_score": round(poor_fit_threshold(rows), 6), "cross_validated_ece": round(figures["ece"], 4),
             "script": "benchmarks/confidence.py", "rankings": len(rows)}, indent=1) + "\n")
         print(f"wrote {features_path.relative_to(ROOT)} and {model_path.relative_to(ROOT)}")

@@ -106,11 +106,13 @@ def test_calibration_refit_reproduces_the_shipped_model(method, name):
     rows = bench.read_rows(bench.paths(method)[0])
     model = shipped_model(name)
     assert model.settings["method"] == name
-    coef = bench.fit_rows(rows)
+    features = bench.chosen_features(rows)  # the subset with the lowest held-out log loss
+    assert features == tuple(json.loads((ROOT / "vibest" / "data" / bench.paths(method)[1].name).read_text())["features"])
+    coef = bench.fit_rows(rows, features)
     assert coef == pytest.approx([model.intercept, model.score_weight, model.margin_weight, model.matched_weight],
                                  abs=1e-4)
     assert bench.poor_fit_threshold(rows) == pytest.approx(model.poor_fit_score, abs=1e-5)
-    p, y, _ = bench.cross_validated(rows)
+    p, y, _ = bench.cross_validated(rows, features)
     assert expected_calibration_error(p, y) == pytest.approx(model.cross_validated_ece, abs=1e-3)
 
 
