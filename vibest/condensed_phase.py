@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .analysis.harmonic import stretch_shares
 from .internal_coordinates import STRETCH
 
 #: Shift of C=O stretching bands in a condensed phase (cm^-1): the middle of the 10-30 range.
@@ -75,7 +76,7 @@ def condensed_bands(pred, fwhm_cm1: float) -> BandAdjustments:
         for change in hb.changes:
             bonds = _bonds_of_group(pred.record, change)
             covered |= {tuple(sorted(b)) for b in bonds}
-            share = np.max([_stretch_shares(pred, i, j) for i, j in bonds], axis=0)
+            share = np.max([stretch_shares(pred.modes, pred.record.positions_angstrom, i, j) for i, j in bonds], axis=0)
             shift += share * change.shift_cm1 * ratio
             if np.isfinite(change.intensity_ratio):
                 factor *= 1.0 + share * (change.intensity_ratio - 1.0)
@@ -104,19 +105,6 @@ def _bonds_of_group(record, change) -> list[tuple[int, int]]:
         if {zi, zj} == {heavy, 1}:
             out.append((i, j) if zi == heavy else (j, i))
     return out or [change.atoms]
-
-
-def _stretch_shares(pred, i: int, j: int) -> np.ndarray:
-    """Share of the stretch of bond i-j in each of ``pred``'s modes (mass-weighted overlap, sums to 1)."""
-    x = pred.record.positions_angstrom
-    e = (x[j] - x[i]) / np.linalg.norm(x[j] - x[i])
-    b = np.zeros_like(x)
-    b[i], b[j] = -e, e
-    local = (b / np.sqrt(pred.modes.masses_amu)[:, None]).ravel()
-    local /= np.linalg.norm(local)
-    q = pred.modes.modes_mass_weighted.reshape(len(pred.bands), -1)
-    share = (q @ local) ** 2
-    return share / share.sum()
 
 
 def _carbonyl_shift(pred, covered: set[tuple[int, int]]) -> np.ndarray:

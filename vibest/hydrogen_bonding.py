@@ -258,19 +258,11 @@ def cluster_smiles(record: HessianRecord, plan: ClusterPlan) -> str:
 def local_stretch(record: HessianRecord, i: int, j: int, masses_amu=None) -> tuple[float, float]:
     """(local harmonic wavenumber in cm^-1, share-weighted IR intensity in km/mol) of the stretch
     of bond i-j in ``record`` (unscaled; see the module docstring)."""
-    from .analysis.harmonic import harmonic_analysis
+    from .analysis.harmonic import harmonic_analysis, stretch_shares
 
     modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
                               record.dipole_derivatives_e, masses_amu=masses_amu, charge=record.charge)
-    masses = modes.masses_amu
-    e = _unit(record.positions_angstrom[j] - record.positions_angstrom[i])
-    b = np.zeros((record.natoms, 3))
-    b[i], b[j] = -e, e
-    local = (b / np.sqrt(masses)[:, None]).ravel()
-    local /= np.linalg.norm(local)
-    q = modes.modes_mass_weighted.reshape(len(modes.wavenumbers_cm1), -1)
-    share = (q @ local) ** 2
-    share /= share.sum()
+    share = stretch_shares(modes, record.positions_angstrom, i, j)
     nu = modes.wavenumbers_cm1
     wavenumber = float(np.sign(share @ (np.sign(nu) * nu ** 2)) * np.sqrt(abs(share @ (np.sign(nu) * nu ** 2))))
     intensity = float(share @ modes.intensities_km_mol) if modes.intensities_km_mol is not None else 0.0

@@ -145,3 +145,16 @@ def rayleigh_wavenumbers(hessian_hartree_bohr2, modes: HarmonicModes) -> np.ndar
     q = modes.modes_mass_weighted.reshape(modes.count, -1) * inv_sqrt_m[None, :]
     values = np.einsum("mi,ij,mj->m", q, np.asarray(hessian_hartree_bohr2), q)
     return eigenvalues_to_wavenumbers(values)
+
+
+def stretch_shares(modes: HarmonicModes, positions_angstrom, i: int, j: int) -> np.ndarray:
+    """Share of the stretch of bond i-j in each mode: (l . q_k)^2 for the unit mass-weighted bond
+    stretch vector l and the mass-weighted eigenvectors q_k, normalised to sum to 1 over the modes."""
+    x = np.asarray(positions_angstrom, dtype=float)
+    e = (x[j] - x[i]) / np.linalg.norm(x[j] - x[i])
+    b = np.zeros_like(x)
+    b[i], b[j] = -e, e
+    local = (b / np.sqrt(modes.masses_amu)[:, None]).ravel()
+    q = modes.modes_mass_weighted.reshape(len(modes.wavenumbers_cm1), -1)
+    share = (q @ (local / np.linalg.norm(local))) ** 2
+    return share / share.sum()
