@@ -115,3 +115,12 @@ def test_real_liquid_alcohols_rank_first_among_their_isomers(name, condensed_fol
              (("bonded", bonded), ("free", free))}
     assert score["bonded"] > score["free"] + 0.05
     assert any("hydrogen bonding computed" in n for n in bonded.entries[0].comparison.notes)
+
+
+def test_a_donor_without_a_cluster_is_said_not_silently_compared_free():
+    """An ion with N-H donors gets no cluster: a condensed comparison says so in a note."""
+    pred = prediction_of("C[NH3+]")
+    assert plan_cluster(pred.record) is None
+    liquid = MeasuredSpectrum(pred.spectrum.wavenumbers_cm1, pred.spectrum.absorbance_normalised, ABSORBANCE, "l.csv")
+    assert any("an ion or radical gets no hydrogen-bonded cluster" in n for n in compare(pred, liquid).notes)
+    assert not any("hydrogen bonding" in n for n in compare(prediction_of("CC(C)=O"), liquid).notes)

@@ -441,13 +441,17 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
         contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
     elif opts.condensed_shifts:
         from .condensed_phase import condensed_bands
-        from .hydrogen_bonding import needs_hydrogen_bonding
+        from .hydrogen_bonding import cluster_skipped, needs_hydrogen_bonding
 
         adjustments = condensed_bands(pred, fwhm)
         notes += adjustments.notes
+        first = pred.members[0].prediction if hasattr(pred, "members") else pred
         if opts.hydrogen_bonding and needs_hydrogen_bonding(pred):
             notes.append("hydrogen bonding not computed for this prediction: its O-H/N-H bands are those of a "
                          "free molecule (vibest.hydrogen_bonding.with_hydrogen_bonding computes them)")
+        elif opts.hydrogen_bonding and cluster_skipped(first.record):
+            notes.append(f"hydrogen bonding not computed ({cluster_skipped(first.record)}): its O-H/N-H bands "
+                         "are those of a free molecule")
     return _Prepared((lo, hi), g, mask, m_linear, m_linear ** opts.intensity_power, fwhm,
                      opts.line_shape or pred.spectrum.line_shape, gas_phase, contour, adjustments, coverage,
                      tuple(notes))

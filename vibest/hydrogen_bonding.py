@@ -367,6 +367,19 @@ def compute_hydrogen_bonding(monomer: HessianRecord, calc, store=None, progress=
     return hydrogen_bond_changes(monomer, record, plan)
 
 
+def cluster_skipped(record: HessianRecord) -> str | None:
+    """Why a molecule with an O-H or N-H donor gets no cluster (an ion, a radical, too large), or
+    None (it gets one, or has no donor)."""
+    donor = any({int(record.numbers[i]), int(record.numbers[j])} in ({1, 7}, {1, 8}) for i, j, _ in record.bonds)
+    if not donor:
+        return None
+    if record.charge or record.uhf:
+        return "an ion or radical gets no hydrogen-bonded cluster"
+    if record.natoms > CLUSTER_MAX_MONOMER_ATOMS:
+        return f"{record.natoms} atoms: clusters are computed up to {CLUSTER_MAX_MONOMER_ATOMS}"
+    return None
+
+
 def needs_hydrogen_bonding(pred) -> bool:
     """Whether ``pred`` (a prediction or an ensemble) has a donor a cluster would be computed for
     and carries no hydrogen-bonding result yet."""
