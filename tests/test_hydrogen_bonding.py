@@ -124,3 +124,13 @@ def test_a_donor_without_a_cluster_is_said_not_silently_compared_free():
     liquid = MeasuredSpectrum(pred.spectrum.wavenumbers_cm1, pred.spectrum.absorbance_normalised, ABSORBANCE, "l.csv")
     assert any("an ion or radical gets no hydrogen-bonded cluster" in n for n in compare(pred, liquid).notes)
     assert not any("hydrogen bonding" in n for n in compare(prediction_of("CC(C)=O"), liquid).notes)
+
+
+def test_a_deuterated_donor_is_computed_with_its_own_mass():
+    """Isotopes named in the SMILES count in the cluster too: the O-D stretch of CH3OD moves less
+    than the O-H stretch of CH3OH, by about the ratio of the stretch wavenumbers (nu_OH / nu_OD
+    about 1.35-1.37, common practice)."""
+    oh = compute_hydrogen_bonding(record_of("CO"), SERIAL).change("O-H")
+    od = compute_hydrogen_bonding(record_of("CO[2H]"), SERIAL).change("O-H")
+    assert 1.25 < oh.monomer_cm1 / od.monomer_cm1 < 1.45
+    assert 1.2 < oh.shift_cm1 / od.shift_cm1 < 1.6

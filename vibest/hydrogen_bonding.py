@@ -246,7 +246,8 @@ def cluster_molecule(record: HessianRecord, plan: ClusterPlan):
                     positions_angstrom=positions, charge=0, uhf=0, bonds=bonds,
                     symbols=tuple(a.GetSymbol() for a in combined.GetAtoms()),
                     molblock=Chem.MolToMolBlock(combined),
-                    notes=(f"hydrogen-bonded {plan.kind} of {record.smiles}",))
+                    notes=(f"hydrogen-bonded {plan.kind} of {record.smiles}",),
+                    mass_numbers=tuple(record.mass_numbers) * plan.copies)
 
 
 def cluster_smiles(record: HessianRecord, plan: ClusterPlan) -> str:
@@ -257,11 +258,13 @@ def cluster_smiles(record: HessianRecord, plan: ClusterPlan) -> str:
 
 def local_stretch(record: HessianRecord, i: int, j: int, masses_amu=None) -> tuple[float, float]:
     """(local harmonic wavenumber in cm^-1, share-weighted IR intensity in km/mol) of the stretch
-    of bond i-j in ``record`` (unscaled; see the module docstring)."""
+    of bond i-j in ``record`` (unscaled; see the module docstring), with the record's masses
+    (isotopes named in its SMILES) unless ``masses_amu`` is given."""
     from .analysis.harmonic import harmonic_analysis, stretch_shares
 
     modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
-                              record.dipole_derivatives_e, masses_amu=masses_amu, charge=record.charge)
+                              record.dipole_derivatives_e,
+                              masses_amu=record.masses_amu if masses_amu is None else masses_amu, charge=record.charge)
     share = stretch_shares(modes, record.positions_angstrom, i, j)
     nu = modes.wavenumbers_cm1
     wavenumber = float(np.sign(share @ (np.sign(nu) * nu ** 2)) * np.sqrt(abs(share @ (np.sign(nu) * nu ** 2))))
