@@ -134,3 +134,22 @@ def test_a_deuterated_donor_is_computed_with_its_own_mass():
     od = compute_hydrogen_bonding(record_of("CO[2H]"), SERIAL).change("O-H")
     assert 1.25 < oh.monomer_cm1 / od.monomer_cm1 < 1.45
     assert 1.2 < oh.shift_cm1 / od.shift_cm1 < 1.6
+
+
+def test_a_cluster_that_fails_keeps_the_candidate_and_says_why(tmp_path, monkeypatch):
+    from vibest.calculation import driver
+    from vibest.errors import CalculationError
+
+    pred = prediction_of("CCO")
+    liquid = MeasuredSpectrum(pred.spectrum.wavenumbers_cm1, pred.spectrum.absorbance_normalised, ABSORBANCE, "l.csv")
+
+    def fail(*args, **kwargs):
+        raise CalculationError("SCF did not converge (test)")
+
+    monkeypatch.setattr(driver, "compute_record", fail)
+    store = RecordStore(tmp_path / "s.sqlite")
+    store.put("CCO", SERIAL, pred.record)  # the monomer is stored; only the cluster would be computed
+    ranking = rank_candidates(liquid, [Candidate("ethanol", "CCO")], calc=SERIAL, store=store)
+    entry = ranking.entries[0]
+    assert entry.comparison is not None and entry.rank == 1
+    assert any("hydrogen bonding not computed (SCF did not converge (test))" in n for n in entry.comparison.notes)

@@ -441,20 +441,31 @@ def prepare(pred: Prediction, measured: MeasuredSpectrum, opts: ComparisonOption
         contour = band_contour_inputs(pred)  # once, not once per trial scale/shift
     elif opts.condensed_shifts:
         from .condensed_phase import condensed_bands
-        from .hydrogen_bonding import cluster_skipped, needs_hydrogen_bonding
-
         adjustments = condensed_bands(pred, fwhm)
         notes += adjustments.notes
-        first = pred.members[0].prediction if hasattr(pred, "members") else pred
-        if opts.hydrogen_bonding and needs_hydrogen_bonding(pred):
-            notes.append("hydrogen bonding not computed for this prediction: its O-H/N-H bands are those of a "
-                         "free molecule (vibest.hydrogen_bonding.with_hydrogen_bonding computes them)")
-        elif opts.hydrogen_bonding and cluster_skipped(first.record):
-            notes.append(f"hydrogen bonding not computed ({cluster_skipped(first.record)}): its O-H/N-H bands "
-                         "are those of a free molecule")
+        if opts.hydrogen_bonding:
+            notes += _hydrogen_bonding_gap(pred)
     return _Prepared((lo, hi), g, mask, m_linear, m_linear ** opts.intensity_power, fwhm,
                      opts.line_shape or pred.spectrum.line_shape, gas_phase, contour, adjustments, coverage,
                      tuple(notes))
+
+
+def _hydrogen_bonding_gap(pred) -> list[str]:
+    """A note when a condensed comparison of a molecule with an O-H/N-H donor has no computed
+    hydrogen bonding (never compared free in silence)."""
+    from .hydrogen_bonding import NOT_COMPUTED, cluster_skipped, needs_hydrogen_bonding
+
+    first = pred.members[0].prediction if hasattr(pred, "members") else pred
+    free = "its O-H/N-H bands are those of a free molecule"
+    failed = [n for n in getattr(pred, "notes", ()) if n.startswith(NOT_COMPUTED)]
+    if failed:
+        return [f"{failed[0]}: {free}"]
+    if cluster_skipped(first.record):
+        return [f"{NOT_COMPUTED} ({cluster_skipped(first.record)}): {free}"]
+    if needs_hydrogen_bonding(pred):
+        return [f"{NOT_COMPUTED} for this prediction: {free} (vibest.hydrogen_bonding.with_hydrogen_bonding "
+                "computes them)"]
+    return []
 
 
 class _AlignedCurve:

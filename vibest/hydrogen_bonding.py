@@ -370,6 +370,10 @@ def compute_hydrogen_bonding(monomer: HessianRecord, calc, store=None, progress=
     return hydrogen_bond_changes(monomer, record, plan)
 
 
+#: How a prediction's notes say that its cluster failed (:func:`with_hydrogen_bonding`).
+NOT_COMPUTED = "hydrogen bonding not computed"
+
+
 def cluster_skipped(record: HessianRecord) -> str | None:
     """Why a molecule with an O-H or N-H donor gets no cluster (an ion, a radical, too large), or
     None (it gets one, or has no donor)."""
@@ -394,13 +398,20 @@ def with_hydrogen_bonding(pred, calc, store=None, progress=None):
     """``pred`` (a prediction or an ensemble) carrying its computed hydrogen bonding (computed on
     the lowest conformer's record and shared by an ensemble's members); unchanged when the
     molecule has no donor or already carries it. The cluster is computed at ``calc``'s level
-    (the monomer's calculation options) and kept in ``store``."""
+    (the monomer's calculation options) and kept in ``store``. A cluster that cannot be built or
+    computed never costs the prediction: it comes back unchanged but for a note
+    (:data:`NOT_COMPUTED` and the reason), which a condensed comparison repeats."""
     import dataclasses
+
+    from .errors import VibestError
 
     if not needs_hydrogen_bonding(pred):
         return pred
     first = pred.members[0].prediction if hasattr(pred, "members") else pred
-    hb = compute_hydrogen_bonding(first.record, calc, store, progress)
+    try:
+        hb = compute_hydrogen_bonding(first.record, calc, store, progress)
+    except VibestError as exc:
+        return dataclasses.replace(pred, notes=tuple(pred.notes) + (f"{NOT_COMPUTED} ({exc})",))
     if hasattr(pred, "members"):
         members = tuple(dataclasses.replace(m, prediction=dataclasses.replace(m.prediction, hydrogen_bonding=hb))
                         for m in pred.members)
