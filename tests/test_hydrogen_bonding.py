@@ -115,6 +115,15 @@ def test_real_liquid_alcohols_rank_first_among_their_isomers(name, condensed_fol
              (("bonded", bonded), ("free", free))}
     assert score["bonded"] > score["free"] + 0.05
     assert any("hydrogen bonding computed" in n for n in bonded.entries[0].comparison.notes)
+    # the group evidence looks where the compared (hydrogen-bonded, broad) band is: the liquid's
+    # O-H band (3331 / 3350 cm^-1 in these files) is seen, and not taken for an alkyne C-H
+    from vibest.evidence import SEEN, UNEXPLAINED, group_evidence
+
+    first = bonded.entries[0]
+    evidence = {e.name: e for e in group_evidence(first.prediction, first.comparison)}
+    oh = evidence["O-H stretch"]
+    assert oh.status == SEEN and oh.predicted_cm1 < 3500 and 3300 < oh.measured_cm1 < 3380
+    assert all(e.status != UNEXPLAINED for e in evidence.values())
 
 
 def test_a_donor_without_a_cluster_is_said_not_silently_compared_free():

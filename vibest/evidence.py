@@ -205,18 +205,32 @@ def group_evidence(prediction, comparison, tolerance_cm1: float = DEFAULT_TOLERA
     strongest = max(prediction.intensities_km_mol.max(), 1e-12)
     carried = {diag.name: [k for k, p in enumerate(comp.primitives) if p.kind == STRETCH and diag.bond(mol, *p.atoms)]
                for diag in DIAGNOSTICS}
+    moved = _condensed_shifts(prediction, comparison)
     out = []
     for diag in DIAGNOSTICS:
         if carried[diag.name]:
             out.append(_present(diag, prediction, carried[diag.name], g, measured, lo, hi, shift, scale, strongest,
-                                tolerance_cm1))
+                                tolerance_cm1, moved))
         else:
             others = [name for name in diag.explained_by if carried.get(name)]
             out.append(_absent(diag, g, measured, predicted, lo, hi, tolerance_cm1, others))
     return out
 
 
-def _present(diag, prediction, stretches, g, measured, lo, hi, shift, scale, strongest, tol) -> GroupEvidence:
+def _condensed_shifts(prediction, comparison) -> tuple[np.ndarray, np.ndarray]:
+    """Per band, the condensed-phase shift the comparison applied (hydrogen bonding, C=O) and the
+    band's own width (NaN: the common one), so that evidence looks where the compared band was and
+    as widely as it is broad; zeros and NaN for a gas-phase comparison."""
+    n = len(prediction.bands)
+    if not comparison.settings.get("condensed_shifts"):
+        return np.zeros(n), np.full(n, np.nan)
+    from .condensed_phase import condensed_bands
+
+    adj = condensed_bands(prediction, float(comparison.settings.get("fwhm_cm1", 16.0)))
+    return adj.shift_cm1, adj.fwhm_cm1
+
+
+def _present(diag, prediction, stretches, g, measured, lo, hi, shift, scale, strongest, tol, moved) -> GroupEvidence:
     shares = prediction.composition.shares[:, stretches].sum(axis=1)
     modes = sorted((k for k in range(len(shares)) if shares[k] >= DIAGNOSTIC_SHARE),
                    key=lambda m: -prediction.intensities_km_mol[m])
@@ -226,13 +240,14 @@ def _present(diag, prediction, stretches, g, measured, lo, hi, shift, scale, str
     looked = []
     for k in modes[:3]:
         band = prediction.bands[k]
-        position = band.wavenumber_cm1 * scale + shift
+        position = band.wavenumber_cm1 * scale + shift + moved[0][k]
         rel = float(prediction.intensities_km_mol[k] / strongest)
         if lo <= position <= hi and (rel >= 0.02 or not looked):
-            peak = _peak_near(g, measured, position - tol, position + tol)
+            reach = max(tol, float(moved[1][k])) if np.isfinite(moved[1][k]) else tol  # a broad band: its width
+            peak = _peak_near(g, measured, position - reach, position + reach)
             looked.append((position, rel, band.label or band.character, peak))
     if not looked or not any(lo <= p <= hi for p, *_ in looked):
-        position = prediction.bands[modes[0]].wavenumber_cm1 * scale + shift
+        position = prediction.bands[modes[0]].wavenumber_cm1 * scale + shift + moved[0][modes[0]]
         return GroupEvidence(diag.name, True, OUT_OF_RANGE, f"{diag.name}: predicted at {position:.0f} cm^-1, "
                              f"outside the compared range {lo:.0f}-{hi:.0f} cm^-1", predicted_cm1=float(position))
     found = [x for x in looked if x[3] is not None and x[3][1] >= ABSENT_RELATIVE]
