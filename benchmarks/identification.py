@@ -27,7 +27,7 @@ from vibest.comparison import DEFAULT_SCORE, SCORES, compare  # noqa: E402
 from vibest.errors import VibestError  # noqa: E402
 from vibest.measured import load_spectrum  # noqa: E402
 from vibest.calculation.driver import calculation_options  # noqa: E402
-from vibest.calculation.methods import DEFAULT_METHOD  # noqa: E402
+from vibest.calculation.methods import DEFAULT_METHOD, parse_level  # noqa: E402
 from vibest.pipeline import SpectrumOptions  # noqa: E402
 from vibest.ranking import predict_stored  # noqa: E402
 from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
@@ -127,12 +127,15 @@ def main() -> None:
     store = RecordStore(args.store)
     calc = calculation_options(args.method)
     preds = {}
-    fallback = calculation_options("gfn2")
+    # a molecule the level cannot compute (iodine with a basis set that lacks it) is computed with
+    # the level's own tight-binding positions method, else the default level, and said here
+    positions = parse_level(args.method).positions
+    fallback = calculation_options(DEFAULT_METHOD if positions.is_dft else positions.key)
     for smi in pool:
         try:
             preds[smi], hit = predict_stored(smi, calc, SpectrumOptions(), store)
-        except VibestError as exc:  # e.g. iodine with a basis set that lacks it: GFN2-xTB instead, said here
-            print(f"  {smi}: {exc}; GFN2-xTB used instead")
+        except VibestError as exc:
+            print(f"  {smi}: {exc}; {fallback.method_name} used instead")
             preds[smi], hit = predict_stored(smi, fallback, SpectrumOptions(), store)
         print(f"  predicted {smi:<16} {'(stored)' if hit else ''}", file=sys.stderr)
     refine_calc = calculation_options(args.refine_method) if args.refine else None

@@ -288,7 +288,7 @@ def build_pyscf_molecule(numbers, positions_bohr, charge: int, uhf: int, setting
 
     if uhf:
         raise InputError(f"{settings.method} is available for closed-shell molecules only; this one has "
-                         f"{uhf} unpaired electron(s): use GFN2-xTB (--method gfn2)")
+                         f"{uhf} unpaired electron(s): use a tight-binding level (--method gfn1, the default, or gfn2)")
     dft = settings.dft
     atoms = [(chemical_symbols[int(z)], tuple(map(float, p))) for z, p in zip(numbers, np.reshape(positions_bohr, (-1, 3)))]
     try:
@@ -300,12 +300,12 @@ def build_pyscf_molecule(numbers, positions_bohr, charge: int, uhf: int, setting
         missing = sorted({a for a, _ in atoms if not _basis_has(a, dft.basis)})
         if missing:
             raise InputError(f"basis set {dft.basis} has no functions for {', '.join(missing)}: "
-                             "use GFN2-xTB (--method gfn2) for this molecule") from None
+                             "use a tight-binding level (--method gfn1, the default, or gfn2) for this molecule") from None
         raise InputError(f"PySCF cannot set up this molecule with {dft.basis}: {exc}") from None
     missing = sorted({mol.atom_symbol(i) for i in range(mol.natm) if mol.atom_nshells(i) == 0})
     if missing:
         raise InputError(f"basis set {dft.basis} has no functions for {', '.join(missing)}: "
-                         "use GFN2-xTB (--method gfn2) for this molecule")
+                         "use a tight-binding level (--method gfn1, the default, or gfn2) for this molecule")
     return mol
 
 
