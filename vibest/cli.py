@@ -524,7 +524,7 @@ def methods_command() -> None:
 
     for m in METHODS.values():
         click.echo(f"{m.key:<8} {m.name:<24} {m.description}")
-    click.echo("positions+intensities, e.g. gfn2+b3lyp: GFN2-xTB geometry and modes, B3LYP dipole derivatives")
+    click.echo("positions+intensities, e.g. gfn1+b3lyp: GFN1-xTB geometry and modes, B3LYP dipole derivatives")
 
 
 @main.command("solvents")

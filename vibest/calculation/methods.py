@@ -74,10 +74,10 @@ class Method:
 
 
 METHODS: dict[str, Method] = {m.key: m for m in (
-    Method("gfn2", "GFN2-xTB", TIGHT_BINDING,
-           "GFN2-xTB tight binding (tblite): seconds per molecule, its own fitted scale models"),
     Method("gfn1", "GFN1-xTB", TIGHT_BINDING,
            "GFN1-xTB tight binding (tblite): seconds per molecule, its own fitted scale models, the default"),
+    Method("gfn2", "GFN2-xTB", TIGHT_BINDING,
+           "GFN2-xTB tight binding (tblite): seconds per molecule, its own fitted scale models"),
     Method("b3lyp", "B3LYP-D3(BJ)/6-31G(d)", DFT,
            "B3LYP with D3(BJ) dispersion, 6-31G(d) basis (PySCF): minutes per molecule, closed shell only",
            DFTSettings(functional="b3lyp", basis="6-31g*", dispersion="d3bj", grid_level=2)),
