@@ -256,20 +256,25 @@ def cluster_smiles(record: HessianRecord, plan: ClusterPlan) -> str:
 
 # -- analysis stage -----------------------------------------------------------------------------
 
-def local_stretch(record: HessianRecord, i: int, j: int, masses_amu=None) -> tuple[float, float]:
-    """(local harmonic wavenumber in cm^-1, share-weighted IR intensity in km/mol) of the stretch
-    of bond i-j in ``record`` (unscaled; see the module docstring), with the record's masses
-    (isotopes named in its SMILES) unless ``masses_amu`` is given."""
-    from .analysis.harmonic import harmonic_analysis, stretch_shares
+def record_modes(record: HessianRecord):
+    """Unscaled harmonic analysis of ``record`` with its own masses (isotopes named in its SMILES)."""
+    from .analysis.harmonic import harmonic_analysis
 
-    modes = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
-                              record.dipole_derivatives_e,
-                              masses_amu=record.masses_amu if masses_amu is None else masses_amu, charge=record.charge)
-    share = stretch_shares(modes, record.positions_angstrom, i, j)
+    return harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
+                             record.dipole_derivatives_e, masses_amu=record.masses_amu, charge=record.charge)
+
+
+def local_stretch(modes, positions_angstrom, i: int, j: int) -> tuple[float, float]:
+    """(local harmonic wavenumber in cm^-1, share-weighted IR intensity in km/mol) of the stretch
+    of bond i-j, from ``modes`` (:func:`record_modes`) at ``positions_angstrom`` (see the module
+    docstring)."""
+    from .analysis.harmonic import stretch_shares
+
+    share = stretch_shares(modes, positions_angstrom, i, j)
     nu = modes.wavenumbers_cm1
-    wavenumber = float(np.sign(share @ (np.sign(nu) * nu ** 2)) * np.sqrt(abs(share @ (np.sign(nu) * nu ** 2))))
+    mean_square = float(share @ (np.sign(nu) * nu ** 2))
     intensity = float(share @ modes.intensities_km_mol) if modes.intensities_km_mol is not None else 0.0
-    return wavenumber, intensity
+    return float(np.sign(mean_square) * np.sqrt(abs(mean_square))), intensity
 
 
 def hydrogen_bond_changes(monomer: HessianRecord, cluster: HessianRecord, plan: ClusterPlan) -> HydrogenBonding:
@@ -284,12 +289,15 @@ def hydrogen_bond_changes(monomer: HessianRecord, cluster: HessianRecord, plan: 
     if carbonyl is not None:
         groups.append(("C=O", carbonyl, plan.acceptor, plan.acceptor))
     changes = []
+    free_modes, bonded_modes = record_modes(monomer), record_modes(cluster)
     for name, i, j, contact in groups:
         bonded = _bonded_copies(monomer, cluster, plan, contact, donor=name != "C=O")
         if not bonded:
             continue
-        nu_m, i_m = local_stretch(monomer, i, j)
-        per_copy = [(local_stretch(cluster, k * monomer.natoms + i, k * monomer.natoms + j), d) for k, d in bonded]
+        nu_m, i_m = local_stretch(free_modes, monomer.positions_angstrom, i, j)
+        n = monomer.natoms
+        per_copy = [(local_stretch(bonded_modes, cluster.positions_angstrom, k * n + i, k * n + j), d)
+                    for k, d in bonded]
         nu_c = float(np.mean([p[0][0] for p in per_copy]))
         i_c = float(np.mean([p[0][1] for p in per_copy]))
         distance = float(np.mean([d for _, d in per_copy])) if name != "C=O" else None
@@ -307,9 +315,9 @@ def _bonded_copies(monomer: HessianRecord, cluster: HessianRecord, plan: Cluster
     if donor:
         partners = [k * n + a for k in range(plan.copies) for a in range(n) if int(monomer.numbers[a]) in DONOR_ELEMENTS]
     else:
-        polar_h = {j if i in _heavy_donors(monomer) else i for i, j, _ in monomer.bonds
-                   if (i in _heavy_donors(monomer) and int(monomer.numbers[j]) == 1)
-                   or (j in _heavy_donors(monomer) and int(monomer.numbers[i]) == 1)}
+        heavy = _heavy_donors(monomer)
+        polar_h = {j if i in heavy else i for i, j, _ in monomer.bonds
+                   if (i in heavy and int(monomer.numbers[j]) == 1) or (j in heavy and int(monomer.numbers[i]) == 1)}
         partners = [k * n + a for k in range(plan.copies) for a in polar_h]
     out = []
     for k in range(plan.copies):
@@ -419,5 +427,6 @@ def with_hydrogen_bonding(pred, calc, store=None, progress=None):
     return dataclasses.replace(pred, hydrogen_bonding=hb)
 
 
-__all__ = ["needs_hydrogen_bonding", "with_hydrogen_bonding", "ClusterPlan", "HydrogenBonding", "StretchChange", "plan_cluster", "cluster_molecule", "cluster_positions",
-           "local_stretch", "hydrogen_bond_changes", "compute_hydrogen_bonding"]
+__all__ = ["ClusterPlan", "HydrogenBonding", "StretchChange", "NOT_COMPUTED", "plan_cluster", "cluster_skipped",
+           "cluster_positions", "cluster_molecule", "record_modes", "local_stretch", "hydrogen_bond_changes",
+           "compute_hydrogen_bonding", "needs_hydrogen_bonding", "with_hydrogen_bonding"]
