@@ -152,6 +152,8 @@ class Comparison:
         shift_cm1: shift applied to predicted wavenumbers (0 unless fitted).
         grid_cm1, measured_curve, predicted_curve: the two processed curves.
         matches: peak-match table, highest measured wavenumber first.
+        band_adjustments: the per-band condensed-phase shifts, intensity factors and widths that
+            were applied (:class:`vibest.condensed_phase.BandAdjustments`), or None (a gas).
     """
 
     smiles: str
@@ -166,6 +168,7 @@ class Comparison:
     matches: tuple[PeakMatch, ...]
     settings: dict = field(default_factory=dict)
     notes: tuple[str, ...] = ()
+    band_adjustments: object | None = None
 
     @property
     def coverage(self) -> float:
@@ -598,4 +601,4 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, options: ComparisonOpt
                 "coverage": prep.coverage, "excluded_points": int(prep.mask.sum())}
     return Comparison(pred.smiles, opts.score_name, scores[opts.score_name], scores, f_best, s_best, g,
                       prep.measured_curve, p_curve, peak_table(pred, prep, p_linear, f_best, s_best, opts),
-                      settings, prep.notes)
+                      settings, prep.notes, prep.adjustments)

@@ -221,12 +221,10 @@ def _condensed_shifts(prediction, comparison) -> tuple[np.ndarray, np.ndarray]:
     """Per band, the condensed-phase shift the comparison applied (hydrogen bonding, C=O) and the
     band's own width (NaN: the common one), so that evidence looks where the compared band was and
     as widely as it is broad; zeros and NaN for a gas-phase comparison."""
-    n = len(prediction.bands)
-    if not comparison.settings.get("condensed_shifts"):
+    adj = comparison.band_adjustments
+    if adj is None:
+        n = len(prediction.bands)
         return np.zeros(n), np.full(n, np.nan)
-    from .condensed_phase import condensed_bands
-
-    adj = condensed_bands(prediction, float(comparison.settings.get("fwhm_cm1", 16.0)))
     return adj.shift_cm1, adj.fwhm_cm1
 
 
