@@ -463,8 +463,9 @@ def _hydrogen_bonding_gap(pred) -> list[str]:
     failed = [n for n in getattr(pred, "notes", ()) if n.startswith(NOT_COMPUTED)]
     if failed:
         return [f"{failed[0]}: {free}"]
-    if cluster_skipped(first.record):
-        return [f"{NOT_COMPUTED} ({cluster_skipped(first.record)}): {free}"]
+    skipped = cluster_skipped(first.record)
+    if skipped:
+        return [f"{NOT_COMPUTED} ({skipped}): {free}"]
     if needs_hydrogen_bonding(pred):
         return [f"{NOT_COMPUTED} for this prediction: {free} (vibest.hydrogen_bonding.with_hydrogen_bonding "
                 "computes them)"]
