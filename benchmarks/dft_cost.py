@@ -8,7 +8,10 @@ seconds = a * (basis functions / 100) ** b per tier (least squares in logs), the
 vibest.calculation.dft_engine.COST_MODEL uses to refuse hopeless requests. Time it on a quiet
 machine: other work running beside it can change the figures by 2x.
 
-    python benchmarks/dft_cost.py [--quick] [--tiers intensities,full]
+    python benchmarks/dft_cost.py [--quick] [--tiers intensities,full] [--intensity-methods b3lyp,r2scan]
+
+``--intensity-methods`` times the intensities tier of other density-functional methods too
+(gfn2+KEY), side by side in the same run; the full tier is B3LYP's (the only one with scale models).
 """
 
 from __future__ import annotations
@@ -32,7 +35,6 @@ MOLECULES = [
     ("methyl benzoate (10 heavy atoms)", "COC(=O)c1ccccc1"),
     ("4-ethylanisole (10 heavy atoms, 24 atoms)", "CCc1ccc(OC)cc1"),
 ]
-TIERS = {"intensities": "gfn2+b3lyp", "full": "b3lyp"}
 
 
 def run(smiles: str, level: str) -> dict:
@@ -59,24 +61,26 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="the four smallest molecules only")
     ap.add_argument("--tiers", default="intensities,full")
+    ap.add_argument("--intensity-methods", default="b3lyp", help="density-functional methods of the intensities tier")
     args = ap.parse_args()
-    tiers = [t.strip() for t in args.tiers.split(",")]
+    levels = {"full": ["b3lyp"], "intensities": [f"gfn2+{m.strip()}" for m in args.intensity_methods.split(",")]}
+    tiers = [(t.strip(), level) for t in args.tiers.split(",") for level in levels[t.strip()]]
     molecules = MOLECULES[:4] if args.quick else MOLECULES
-    print(f"{default_workers()} cores; B3LYP-D3(BJ)/6-31G(d), PySCF grid level 2")
-    print(f"{'molecule':<42} {'tier':<12} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
+    print(f"{default_workers()} cores; full tier B3LYP-D3(BJ)/6-31G(d) (grid level 2); intensities tier gfn2+METHOD")
+    print(f"{'molecule':<42} {'level':<12} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
           f"{'intens. s':>9} {'total s':>8}")
-    points: dict[str, list] = {t: [] for t in tiers}
+    points: dict[str, list] = {level: [] for _, level in tiers}
     for name, smiles in molecules:
-        for tier in tiers:
-            r = run(smiles, TIERS[tier])
-            points[tier].append((r["basis"], r["seconds"]))
-            print(f"{name:<42} {tier:<12} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
+        for _, level in tiers:
+            r = run(smiles, level)
+            points[level].append((r["basis"], r["seconds"]))
+            print(f"{name:<42} {level:<12} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
                   f"{r['intensity_s']:9.1f} {r['seconds']:8.1f}" + ("" if r["converged"] else "  (not converged)"),
                   flush=True)
     print("\nfitted seconds = a * (basis functions / 100) ** b on this machine:")
-    for tier, pts in points.items():
+    for level, pts in points.items():
         a, b = fit([p for p in pts if p[0] >= 30])
-        print(f"  {tier:<12} a = {a:8.1f} s, b = {b:4.2f}")
+        print(f"  {level:<12} a = {a:8.1f} s, b = {b:4.2f}")
 
 
 if __name__ == "__main__":

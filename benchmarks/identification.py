@@ -162,13 +162,16 @@ def main() -> None:
     print("broadening and comparison (every file here is a gas-phase spectrum, so the default comparison "
           "gives predicted bands rotational P/Q/R contours, vibest.gas_phase):")
     default_variant = None
-    variants = [v for v in VARIANTS if not v[2] and v[1] == DEFAULT_SCORE] if args.set == "blind" else VARIANTS
+    # the blind set, and a refinement (whose cost grows with every variant's own best K): the
+    # default comparison only
+    only_default = args.set == "blind" or args.refine
+    variants = [v for v in VARIANTS if not v[2] and v[1] == DEFAULT_SCORE] if only_default else VARIANTS
     for label, score_name, kw in variants:
         rows = evaluate(entries, spectra, preds, score_name, args.fwhm[0], **refine_kw, **kw)
         print(f"  {label:<40} {summary(rows)}", flush=True)
         if not kw and score_name == DEFAULT_SCORE:
             default_variant = rows
-    quick = args.quick or args.set == "blind"  # the blind set: default settings only
+    quick = args.quick or only_default
     scores = [DEFAULT_SCORE] if quick else list(SCORES)
     widths = args.fwhm[:1] if quick else args.fwhm
     default_rows = None

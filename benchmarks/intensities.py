@@ -6,9 +6,11 @@ the calibration's assignment pairs with that fundamental (by symmetry class and 
 vibest.analysis.assignment; degenerate components summed) give the predicted intensity. Printed
 per level: the median |log10(I_pred / I_exp)| and the share of bands within a factor of 2, then
 every band. Levels: gfn2 (GFN2-xTB), gfn2+b3lyp (GFN2-xTB modes, B3LYP-D3(BJ)/6-31G(d) dipole
-derivatives at the GFN2-xTB geometry), b3lyp (everything at B3LYP-D3(BJ)/6-31G(d)).
+derivatives at the GFN2-xTB geometry), b3lyp (everything at B3LYP-D3(BJ)/6-31G(d)), and the
+modern alternatives as intensity methods: gfn2+wb97x (wB97X-D3(BJ)/def2-SVP), gfn2+r2scan
+(r2SCAN-D3(BJ)/def2-SVP).
 
-    python benchmarks/intensities.py [--levels gfn1,gfn2,gfn2+b3lyp,b3lyp] [--records DIR]
+    python benchmarks/intensities.py [--levels gfn1,gfn2,gfn2+b3lyp,b3lyp,gfn2+wb97x,gfn2+r2scan] [--records DIR]
 
 ``--records DIR`` keeps computed records in DIR/<level>-records.pkl (the same files
 benchmarks/fit_scale_factor.py --records writes, so a fit's DFT records are reused).
@@ -96,7 +98,7 @@ def summary(pairs: list[tuple[dict, float]]) -> dict:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--levels", default="gfn2,gfn2+b3lyp,b3lyp")
+    ap.add_argument("--levels", default="gfn1,gfn2,gfn2+b3lyp,b3lyp,gfn2+wb97x,gfn2+r2scan")
     ap.add_argument("--records", type=Path, default=None, help="directory for cached records")
     args = ap.parse_args()
     rows = measured_rows()
