@@ -135,7 +135,8 @@ def test_what_the_dft_tier_refuses_gives_one_line_and_exit_2():
     # iodine: 6-31G(d) has no functions for it; a radical: restricted KS only; a solvent: not here
     for args in (["CI", "--method", "b3lyp"], ["[CH3]", "--method", "b3lyp"],
                  ["CCO", "--method", "b3lyp", "--solvent", "water"], ["CCO", "--method", "nonsense"],
-                 ["O", "--method", "wb97x"]):  # no fitted scale model: said before any computing
+                 ["O", "--method", "wb97x"],  # no fitted scale model: said before any computing
+                 ["CI", "--method", "gfn2+r2scan"]):  # def2-SVP's iodine needs an effective core potential
         res = subprocess.run([sys.executable, "-m", "vibest.cli", "predict", *args, "-q"],
                              capture_output=True, text=True, timeout=120)
         lines = [line for line in res.stderr.splitlines() if line.strip()]

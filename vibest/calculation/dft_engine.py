@@ -53,6 +53,11 @@ HEAVY_ATOM_Z = 10
 FINITE_DIFFERENCE_STEP_BOHR = 0.005
 
 
+#: Heaviest element computed all-electron (krypton). Heavier ones (iodine: def2-SVP has functions for
+#: it, made for a 28-electron effective core potential) are refused (build_pyscf_molecule).
+MAX_ALL_ELECTRON_Z = 36
+
+
 def atoms_past_neon(numbers) -> list[int]:
     """Indices of the atoms whose rows are finite differences (atomic number > HEAVY_ATOM_Z)."""
     return [a for a, z in enumerate(numbers) if int(z) > HEAVY_ATOM_Z]
@@ -291,6 +296,13 @@ def build_pyscf_molecule(numbers, positions_bohr, charge: int, uhf: int, setting
                          f"{uhf} unpaired electron(s): use a tight-binding level (--method gfn1, the default, or gfn2)")
     dft = settings.dft
     atoms = [(chemical_symbols[int(z)], tuple(map(float, p))) for z, p in zip(numbers, np.reshape(positions_bohr, (-1, 3)))]
+    beyond = sorted({chemical_symbols[int(z)] for z in numbers if int(z) > MAX_ALL_ELECTRON_Z})
+    if beyond:
+        # def2 basis sets define these elements for use with an effective core potential; PySCF
+        # would run them all-electron without one unless told (a silently wrong calculation)
+        raise InputError(f"{settings.method}: {', '.join(beyond)} would need an effective core potential, which "
+                         "vibest's density-functional tier does not handle: use a tight-binding level "
+                         "(--method gfn1, the default, or gfn2) for this molecule")
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # PySCF suggests basis-set-exchange for a missing basis
