@@ -33,6 +33,18 @@ def small_options(**kw) -> CalculationOptions:
     return CalculationOptions(engine=EngineSettings.for_method(SMALL), workers=2, **kw)
 
 
+def scf_dipole_differences(engine, x_bohr: np.ndarray, step: float = 0.01) -> np.ndarray:
+    """Dipole derivatives (3N, 3), e, as central differences (``step`` Bohr) of the engine's SCF dipole."""
+    numeric = np.zeros((x_bohr.size, 3))
+    for k in range(x_bohr.size):
+        plus, minus = x_bohr.ravel().copy(), x_bohr.ravel().copy()
+        plus[k] += step
+        minus[k] -= step
+        numeric[k] = (engine.evaluate(plus.reshape(-1, 3)).dipole_e_bohr
+                      - engine.evaluate(minus.reshape(-1, 3)).dipole_e_bohr) / (2 * step)
+    return numeric
+
+
 @pytest.fixture(scope="module")
 def water_record():
     record, converged, _ = compute_record(build_molecule("O"), small_options())
@@ -74,14 +86,7 @@ def test_dipole_derivatives_match_finite_differences_of_the_scf_dipole():
     x = mol.positions_angstrom / Bohr
     engine = make_engine(mol.numbers, x, 0, 0, EngineSettings.for_method(SMALL))
     analytic = engine.dipole_derivatives(x)
-    step = 0.01
-    numeric = np.zeros_like(analytic)
-    for k in range(x.size):
-        plus, minus = x.ravel().copy(), x.ravel().copy()
-        plus[k] += step
-        minus[k] -= step
-        numeric[k] = (engine.evaluate(plus.reshape(-1, 3)).dipole_e_bohr
-                      - engine.evaluate(minus.reshape(-1, 3)).dipole_e_bohr) / (2 * step)
+    numeric = scf_dipole_differences(engine, x)
     assert np.abs(analytic - numeric).max() < 2e-3, np.abs(analytic - numeric).max()
     assert np.abs(analytic).max() > 0.3  # not trivially small
     # sum rule: moving the whole neutral molecule does not change its dipole
@@ -277,13 +282,6 @@ def test_dipole_derivatives_of_the_modern_functionals_match_finite_differences(k
     x = mol.positions_angstrom / Bohr
     engine = make_engine(mol.numbers, x, 0, 0, EngineSettings.for_method(method))
     analytic = engine.dipole_derivatives(x)
-    step = 0.01
-    numeric = np.zeros_like(analytic)
-    for k in range(x.size):
-        plus, minus = x.ravel().copy(), x.ravel().copy()
-        plus[k] += step
-        minus[k] -= step
-        numeric[k] = (engine.evaluate(plus.reshape(-1, 3)).dipole_e_bohr
-                      - engine.evaluate(minus.reshape(-1, 3)).dipole_e_bohr) / (2 * step)
+    numeric = scf_dipole_differences(engine, x)
     assert np.abs(analytic - numeric).max() < tolerance, np.abs(analytic - numeric).max()
     assert np.abs(analytic).max() > 0.3  # not trivially small
