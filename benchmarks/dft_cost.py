@@ -64,14 +64,14 @@ def main() -> None:
     ap.add_argument("--intensity-methods", default="b3lyp", help="density-functional methods of the intensities tier")
     args = ap.parse_args()
     levels = {"full": ["b3lyp"], "intensities": [f"gfn2+{m.strip()}" for m in args.intensity_methods.split(",")]}
-    tiers = [(t.strip(), level) for t in args.tiers.split(",") for level in levels[t.strip()]]
+    runs = [level for t in args.tiers.split(",") for level in levels[t.strip()]]
     molecules = MOLECULES[:4] if args.quick else MOLECULES
     print(f"{default_workers()} cores; full tier B3LYP-D3(BJ)/6-31G(d) (grid level 2); intensities tier gfn2+METHOD")
     print(f"{'molecule':<42} {'level':<12} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
           f"{'intens. s':>9} {'total s':>8}")
-    points: dict[str, list] = {level: [] for _, level in tiers}
+    points: dict[str, list] = {level: [] for level in runs}
     for name, smiles in molecules:
-        for _, level in tiers:
+        for level in runs:
             r = run(smiles, level)
             points[level].append((r["basis"], r["seconds"]))
             print(f"{name:<42} {level:<12} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "

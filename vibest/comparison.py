@@ -458,7 +458,7 @@ def _hydrogen_bonding_gap(pred) -> list[str]:
     hydrogen bonding (never compared free in silence)."""
     from .hydrogen_bonding import NOT_COMPUTED, cluster_skipped, needs_hydrogen_bonding
 
-    first = pred.members[0].prediction if hasattr(pred, "members") else pred
+    first = pred.first_prediction
     free = "its O-H/N-H bands are those of a free molecule"
     failed = [n for n in getattr(pred, "notes", ()) if n.startswith(NOT_COMPUTED)]
     if failed:

@@ -93,16 +93,21 @@ class EnsemblePrediction:
     notes: tuple[str, ...]
 
     @property
+    def first_prediction(self) -> Prediction:
+        """The first member's prediction (a single prediction's is itself)."""
+        return self.members[0].prediction
+
+    @property
     def scale(self):
-        return self.members[0].prediction.scale
+        return self.first_prediction.scale
 
     @property
     def method_name(self) -> str:
-        return f"{self.members[0].prediction.method_name}, {len(self.members)}-conformer ensemble"
+        return f"{self.first_prediction.method_name}, {len(self.members)}-conformer ensemble"
 
     @property
     def medium(self) -> str:
-        return self.members[0].prediction.medium
+        return self.first_prediction.medium
 
     def strongest(self, count: int = 5):
         """The strongest bands after weighting (band intensities times their conformer's weight)."""

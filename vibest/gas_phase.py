@@ -32,7 +32,7 @@ def band_contour_inputs(pred) -> tuple[float, np.ndarray]:
     """(effective B in cm^-1, Q fraction per band) of a prediction (or the first member of an ensemble)."""
     from .rigid_body import is_linear
 
-    member = pred.members[0].prediction if hasattr(pred, "members") else pred
+    member = pred.first_prediction
     rec = member.record
     masses = member.modes.masses_amu
     b = effective_b_cm1(rec.numbers, rec.positions_angstrom, masses)

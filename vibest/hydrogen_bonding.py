@@ -385,8 +385,8 @@ NOT_COMPUTED = "hydrogen bonding not computed"
 def cluster_skipped(record: HessianRecord) -> str | None:
     """Why a molecule with an O-H or N-H donor gets no cluster (an ion, a radical, too large), or
     None (it gets one, or has no donor)."""
-    donor = any({int(record.numbers[i]), int(record.numbers[j])} in ({1, 7}, {1, 8}) for i, j, _ in record.bonds)
-    if not donor:
+    polar = {frozenset((1, z)) for z in DONOR_ELEMENTS}
+    if not any(frozenset((int(record.numbers[i]), int(record.numbers[j]))) in polar for i, j, _ in record.bonds):
         return None
     if record.charge or record.uhf:
         return "an ion or radical gets no hydrogen-bonded cluster"
@@ -398,7 +398,7 @@ def cluster_skipped(record: HessianRecord) -> str | None:
 def needs_hydrogen_bonding(pred) -> bool:
     """Whether ``pred`` (a prediction or an ensemble) has a donor a cluster would be computed for
     and carries no hydrogen-bonding result yet."""
-    first = pred.members[0].prediction if hasattr(pred, "members") else pred
+    first = pred.first_prediction
     return first.hydrogen_bonding is None and plan_cluster(first.record) is not None
 
 
@@ -415,7 +415,7 @@ def with_hydrogen_bonding(pred, calc, store=None, progress=None):
 
     if not needs_hydrogen_bonding(pred):
         return pred
-    first = pred.members[0].prediction if hasattr(pred, "members") else pred
+    first = pred.first_prediction
     try:
         hb = compute_hydrogen_bonding(first.record, calc, store, progress)
     except VibestError as exc:

@@ -146,6 +146,11 @@ class Prediction:
         return self.record.smiles
 
     @property
+    def first_prediction(self) -> "Prediction":
+        """Itself (an ensemble's is its first member's: code that takes either reads this)."""
+        return self
+
+    @property
     def medium(self) -> str:
         """"gas phase", or the implicit solvent and its model (e.g. "in chcl3 (ALPB)")."""
         engine = self.record.settings.get("engine", {})
