@@ -44,8 +44,9 @@ def ranked(candidates, scores, refined_scores=None, refine: int = 0) -> list[str
     order = sorted(candidates, key=lambda s: -scores[s])
     if refine:
         top = order[:refine]
-        new = {s: refined_scores(s) for s in top}
-        order = sorted(top, key=lambda s: -new[s]) + order[refine:]
+        new = {s: refined_scores(s) for s in top}  # None: not refined, follows the refined ones
+        done = [s for s in top if new[s] is not None]
+        order = sorted(done, key=lambda s: -new[s]) + [s for s in top if new[s] is None] + order[refine:]
     return order
 
 
@@ -53,7 +54,8 @@ def evaluate(entries, spectra, preds, score_name: str, fwhm: float, refine_preds
     """Per measured entry: (rank among all candidates, rank among isomers or None, margin, score,
     comparison, best candidate); the candidates are all molecules of ``preds``. With ``refine`` K,
     the best K are ranked again with ``refine_preds`` (a function SMILES -> prediction, called
-    only for candidates that reach a top K)."""
+    only for candidates that reach a top K; None: the candidate could not be refined and follows
+    the refined ones, since scores of two levels are not compared)."""
     unique = sorted(preds)
     out = []
     for e in entries:
@@ -64,8 +66,10 @@ def evaluate(entries, spectra, preds, score_name: str, fwhm: float, refine_preds
 
         def refined_score(smi):
             if smi not in refined:
-                refined[smi] = compare(refine_preds(smi), spectra[e.file], score_name=score_name, fwhm_cm1=fwhm,
-                                       **compare_kw)
+                pred = refine_preds(smi)
+                if pred is None:
+                    return None
+                refined[smi] = compare(pred, spectra[e.file], score_name=score_name, fwhm_cm1=fwhm, **compare_kw)
             return refined[smi].score
 
         order = ranked(unique, scores, refined_score, refine)
@@ -145,9 +149,9 @@ def main() -> None:
         if smi not in refine_cache:
             try:
                 refine_cache[smi], hit = predict_stored(smi, refine_calc, SpectrumOptions(), store)
-            except VibestError as exc:  # as rank --refine: the candidate keeps its first-level prediction
+            except VibestError as exc:  # as rank --refine: not refined, it follows the refined ones
                 print(f"  {smi}: not refined ({exc})")
-                refine_cache[smi], hit = preds[smi], True
+                refine_cache[smi], hit = None, True
             print(f"  refined {smi:<16} at {refine_calc.method_name} {'(stored)' if hit else ''}", file=sys.stderr)
         return refine_cache[smi]
 

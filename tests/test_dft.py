@@ -164,9 +164,11 @@ def test_calculation_options_check_their_values():
 
 
 def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_path):
-    """Constructed measured spectrum (water's own default-level curve, for the mechanics only): the
-    best candidate is recomputed at the (small-basis) DFT level and marked; the others are not;
-    a candidate the refining level cannot compute (a radical) keeps its first result with a note."""
+    """Constructed measured spectrum (the methyl radical's own default-level curve, for the
+    mechanics only): the best two are recomputed at the (small-basis) DFT level, marked and ranked
+    by their new scores; the methyl radical, which the refining level cannot compute (open shell),
+    keeps its first result with a note and follows the refined ones although its first-level
+    score is the highest (scores of two levels are never compared); the rest are not refined."""
     from vibest.measured import MeasuredSpectrum
     from vibest.pipeline import SpectrumOptions, analyse
     from vibest.ranking import Candidate, rank_candidates
@@ -174,22 +176,26 @@ def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_pa
 
     from .conftest import record_of
 
-    water = analyse(record_of("O"), SpectrumOptions(scale_factor=0.97))  # as the candidates are scaled
+    methyl = analyse(record_of("[CH3]"), SpectrumOptions(scale_factor=0.97))  # as the candidates are scaled
     heard: list[str] = []
-    measured = MeasuredSpectrum(water.spectrum.wavenumbers_cm1, water.spectrum.absorbance_normalised, "absorbance")
+    measured = MeasuredSpectrum(methyl.spectrum.wavenumbers_cm1, methyl.spectrum.absorbance_normalised, "absorbance")
     store = RecordStore(tmp_path / "store.sqlite")
     ranking = rank_candidates(measured, [Candidate("water", "O"), Candidate("methyl", "[CH3]"),
-                                         Candidate("formaldehyde", "C=O")],
+                                         Candidate("formaldehyde", "C=O"), Candidate("methane", "C")],
                               calc=CalculationOptions(workers=1), spec=SpectrumOptions(scale_factor=0.97), store=store,
-                              refine=2, refine_calc=small_options(),  # no scale model is fitted for the test method
+                              refine=3, refine_calc=small_options(),  # no scale model is fitted for the test method
                               refine_progress=lambda stage, done, total, message: heard.append(stage))
-    first, second, third = ranking.entries
     assert heard  # the refining calculation's stages were reported (minutes each at a real DFT level)
-    assert first.candidate.name == "water" and first.refined and first.method == SMALL.name
-    assert third.refined is False and third.method == "GFN1-xTB"
-    refused = next(e for e in ranking.entries if e.candidate.name == "methyl")
-    if refused.rank <= 2:  # it reached the refined places: kept, with the reason
-        assert not refused.refined and "closed-shell" in refused.note
+    by_rank = [e.candidate.name for e in ranking.entries]
+    refused = ranking.entries[by_rank.index("methyl")]
+    refined = [e for e in ranking.entries if e.refined]
+    assert len(refined) == 2 and all(e.method == SMALL.name for e in refined)
+    assert [e.rank for e in refined] == [1, 2] and refined[0].score >= refined[1].score
+    assert refused.rank == 3 and not refused.refined and "closed-shell" in refused.note
+    assert refused.score > max(e.score for e in refined)  # the best first-level score, still after them
+    assert refined[1].margin_to_next is None  # no margin across the two levels
+    last = ranking.entries[3]
+    assert not last.refined and last.method == "GFN1-xTB" and not last.note
     path = tmp_path / "ranking.csv"
     ranking.write_csv(path)
     assert "refined" in path.read_text().splitlines()[0]

@@ -208,7 +208,8 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     With ``refine`` K > 0 the best K are then computed again at ``refine_calc`` (a
     density-functional level) and ranked among themselves by their new scores; they keep the
     first K places (scores of two levels are not comparable across the line), and their rows say
-    so. A candidate the refining level cannot compute keeps its first-level result, with a note.
+    so. A candidate the refining level cannot compute keeps its first-level result, with a note,
+    and follows the refined ones (its score is not compared with theirs).
     ``refine_progress(stage, done, total, message)`` hears the stages of each refining calculation
     (minutes each at a density-functional level).
     """
@@ -235,7 +236,8 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     scored.sort(key=lambda t: -t[2].score)
     if refine:
         top = _refined(scored[:refine], measured, refine_calc, spec, store, opts, progress, refine_progress)
-        scored = sorted(top, key=lambda t: -t[2].score) + scored[refine:]
+        done = sorted((t for t in top if t[4]), key=lambda t: -t[2].score)
+        scored = done + [t for t in top if not t[4]] + scored[refine:]
     if progress:
         progress(len(candidates), len(candidates), "")
     entries = []
