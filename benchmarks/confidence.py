@@ -76,6 +76,28 @@ def features(spectrum, candidates: list[str], right: str, preds: dict) -> dict:
     measured peaks its prediction matches, the group evidence against it; and the label."""
     comps = {s: compare(preds[s], spectrum) for s in candidates}
     order = sorted(candidates, key=lambda s: -comps[s].score)
+    return first_two_features(spectrum, order, comps, preds, right)
+
+
+def refined_features(spectrum, candidates: list[str], right: str, preds: dict, refined_preds: dict,
+                     refine: int) -> dict | None:
+    """Features of a refined ranking (as vibest.ranking.rank_candidates(refine=K)): the best
+    ``refine`` by their first-level score are ranked again by their score at the refining level
+    (``refined_preds``; a candidate missing there is not refined and follows the refined ones);
+    the features are those of the first two refined candidates (None when fewer than two are)."""
+    comps = {s: compare(preds[s], spectrum) for s in candidates}
+    top = sorted(candidates, key=lambda s: -comps[s].score)[:refine]
+    redone = [s for s in top if s in refined_preds]
+    if len(redone) < 2:
+        return None
+    new = {s: compare(refined_preds[s], spectrum) for s in redone}
+    order = sorted(redone, key=lambda s: -new[s].score)
+    return first_two_features(spectrum, order, new, refined_preds, right)
+
+
+def first_two_features(spectrum, order: list[str], comps: dict, preds: dict, right: str) -> dict:
+    """The features of :func:`features` for the first two of ``order`` (SMILES, best first),
+    their comparisons ``comps`` and predictions ``preds``."""
     first, second = order[0], order[1]
     s1, s2 = comps[first].score, comps[second].score
     spread, flips = margin_noise(spectrum, preds[first], preds[second])
@@ -103,10 +125,7 @@ def build_rows(store: RecordStore, method: str = "gfn2") -> list[dict]:
     rows = []
     for e in entries:
         spectrum = load_spectrum(folder / e.file)
-        sets = {"all": every, "without": [s for s in every if s != e.smiles]}
-        iso = [s for s in every if formula(s) == formula(e.smiles)]
-        if len(iso) > 1:
-            sets["isomers"] = iso
+        sets = set_rankings(e.smiles, every)
         decoys = []
         for d in make_decoys(e.smiles):
             if len(decoys) == DECOYS_PER_SPECTRUM:
@@ -122,6 +141,54 @@ def build_rows(store: RecordStore, method: str = "gfn2") -> list[dict]:
             rows.append({"spectrum": e.name, "ranking": kind, "candidates": len(cands),
                          **features(spectrum, cands, e.smiles, preds)})
         print(f"  {e.name}: {len(sets)} rankings", file=sys.stderr)
+    return rows
+
+
+def set_rankings(right: str, every: list[str]) -> dict[str, list[str]]:
+    """The rankings made of molecules of the set for the spectrum of ``right``: all of them, all
+    but the right one, and its isomers (where it has any)."""
+    sets = {"all": every, "without": [s for s in every if s != right]}
+    iso = [s for s in every if formula(s) == formula(right)]
+    if len(iso) > 1:
+        sets["isomers"] = iso
+    return sets
+
+
+def stored_predictions(smiles: list[str], calc, store: RecordStore, compute: bool = True) -> dict:
+    """SMILES -> prediction at ``calc`` from ``store`` (computed and stored when missing, unless
+    ``compute`` is False: then a molecule without a stored record is left out, and said)."""
+    preds = {}
+    for smi in smiles:
+        if not compute and store.get(smi, calc) is None:
+            print(f"  {smi}: no stored record at {calc.method_name}: not refined", file=sys.stderr)
+            continue
+        try:
+            preds[smi], _ = predict_stored(smi, calc, SpectrumOptions(), store)
+        except VibestError as exc:
+            print(f"  {smi}: {exc}", file=sys.stderr)
+    return preds
+
+
+def build_refined_rows(store: RecordStore, method: str, refine: int, refine_method: str) -> list[dict]:
+    """Rows of refined rankings (the first ``refine`` at ``method`` recomputed at ``refine_method``,
+    as ``rank --refine``): all, without and isomers of the set. The records at the refining level
+    are taken from the store only (benchmarks/identification.py --refine computes them: hours);
+    the decoy rankings are left out, since their decoys have no such records."""
+    folder = measured_set.fetch()
+    entries = measured_set.entries()
+    every = sorted({e.smiles for e in entries})
+    preds = stored_predictions(every, calculation_options(method), store)
+    refined = stored_predictions(every, calculation_options(refine_method), store, compute=False)
+    rows = []
+    for e in entries:
+        spectrum = load_spectrum(folder / e.file)
+        for kind, cands in set_rankings(e.smiles, every).items():
+            row = refined_features(spectrum, cands, e.smiles, preds, refined, refine)
+            if row is None:
+                print(f"  {e.name} {kind}: fewer than two refined candidates: left out", file=sys.stderr)
+                continue
+            rows.append({"spectrum": e.name, "ranking": kind, "candidates": len(cands), **row})
+        print(f"  {e.name}: refined rankings done", file=sys.stderr)
     return rows
 
 
@@ -235,14 +302,24 @@ def main() -> None:
     ap.add_argument("--dump", default=None, help="also write the features to this CSV file")
     ap.add_argument("--method", default=DEFAULT_METHOD, choices=["gfn2", "gfn1"],
                     help="level of theory of the predictions [the default level]")
+    ap.add_argument("--refine", type=int, default=0, metavar="K",
+                    help="calibrate refined rankings: the best K recomputed at --refine-method (stored records)")
+    ap.add_argument("--refine-method", default="b3lyp", help="level of theory of the refined candidates")
     args = ap.parse_args()
-    features_path, model_path = paths(args.method)
+    tag = f"{args.method}-refine{args.refine}-{args.refine_method}" if args.refine else args.method
+    features_path, model_path = paths(tag)
     settings = SETTINGS | {"method": calculation_options(args.method).method_name}
+    if args.refine:
+        settings = SETTINGS | {"method": calculation_options(args.refine_method).method_name,
+                               "screened_with": settings["method"], "refine": args.refine}
     if args.from_table:
         rows = read_rows(features_path)
     else:
         try:
-            rows = build_rows(RecordStore(args.store), args.method)
+            if args.refine:
+                rows = build_refined_rows(RecordStore(args.store), args.method, args.refine, args.refine_method)
+            else:
+                rows = build_rows(RecordStore(args.store), args.method)
         except measured_set.FetchError as exc:
             print(f"skipped: {exc}")
             return
