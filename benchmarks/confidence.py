@@ -17,6 +17,11 @@ the reliability table, expected calibration error (ECE), and the two targets (wr
 candidates flagged by low confidence or a poor fit; right ones with confidence >= 0.7).
 
     python benchmarks/confidence.py [--method gfn2|gfn1] [--store FILE] [--write]
+    python benchmarks/confidence.py --method gfn1 --refine 5 --refine-method b3lyp --store FILE [--write]
+
+With ``--refine`` the rankings are refined as ``rank --refine K`` does (the all, isomers and
+without rankings; the decoys have no records at the refining level) and the model is written to
+vibest/data/confidence-METHOD-refineK-REFINE_METHOD.json.
 
 ``--write`` stores the features (benchmarks/data/confidence_features[-METHOD].csv; the test
 refits from it) and the model fitted on all rows (vibest/data/confidence[-METHOD].json; GFN2-xTB
@@ -337,6 +342,9 @@ def main() -> None:
     if args.write:
         if not args.from_table:
             with open(features_path, "w", newline="") as fh:
+                if args.refine:
+                    fh.write(f"# Refined rankings: the best {args.refine} at {args.method} recomputed at "
+                             f"{args.refine_method} (decoy rankings left out).\n")
                 fh.write("# Features of rankings of real measured spectra (benchmarks/confidence.py; spectra from the\n"
                          "# jcamp 1.3.2 sdist, benchmarks/data/measured_set.csv). score: first candidate's score;\n"
                          "# margin: to the second; right: whether the first is the measured compound.\n")

@@ -17,7 +17,8 @@ import pytest
 
 from vibest.comparison import compare
 from vibest.confidence import (LOW, MARGIN_IN_NOISE, POOR_FIT, SHIFT_AT_BOUND, ConfidenceModel, assess,
-                               expected_calibration_error, fit_logistic, shift_flag, shipped_model)
+                               expected_calibration_error, fit_logistic, matched_share, shift_flag,
+                               shipped_model)
 from vibest.evidence import group_evidence
 from vibest.measured import MeasuredSpectrum, load_spectrum
 from vibest.ranking import Candidate, rank_candidates
@@ -95,7 +96,8 @@ def test_a_clear_case_has_no_flags():
     assert result.flags == () and result.confidence > 0.9 and result.sure
 
 
-@pytest.mark.parametrize("method,name", [("gfn2", "GFN2-xTB"), ("gfn1", "GFN1-xTB")])
+@pytest.mark.parametrize("method,name", [("gfn2", "GFN2-xTB"), ("gfn1", "GFN1-xTB"),
+                                         ("gfn1-refine5-b3lyp", "B3LYP-D3(BJ)/6-31G(d)")])
 def test_calibration_refit_reproduces_the_shipped_model(method, name):
     """benchmarks/confidence.py --write fitted vibest/data/confidence[-gfn1].json on the features
     table it wrote; refitting from that table gives the same coefficients, threshold and
@@ -166,3 +168,33 @@ def test_shipped_confidence_is_withheld_for_a_condensed_sample():
     assert result.confidence is None and "gas-phase spectra only" in result.note
     gas = dataclasses.replace(condensed, phase="gas")
     assert assess(rank_candidates(gas, cands), "GFN2-xTB", 16.0).confidence is not None
+
+
+def test_refined_rankings_get_the_refined_model_and_nothing_else_does():
+    """A ranking screened at GFN1-xTB whose best 5 were refined at B3LYP is judged by the model
+    calibrated on exactly such rankings (vibest/data/confidence-gfn1-refine5-b3lyp.json); the same
+    ranking refined with another K, screened at another level, or B3LYP without screening gets
+    no number and a note naming both kinds of ranking. (The entries are relabelled rather than
+    recomputed at B3LYP: this checks which model holds, not the chemistry.)"""
+    water = prediction_of("O")
+    gas = dataclasses.replace(_synthetic(water), phase="gas")
+    plain = rank_candidates(gas, [Candidate("water", "O"), Candidate("formaldehyde", "C=O")])
+    b3lyp = "B3LYP-D3(BJ)/6-31G(d)"
+    entries = tuple(dataclasses.replace(e, refined=True, method=b3lyp) for e in plain.entries)
+
+    def refined(k, screened="GFN1-xTB"):
+        return dataclasses.replace(plain, entries=entries, refine=k, screening_method=screened)
+
+    model = shipped_model(b3lyp)
+    result = assess(refined(5), b3lyp, 16.0)
+    first = plain.entries[0]
+    assert result.confidence == pytest.approx(model.probability(
+        first.score, first.score - plain.entries[1].score, matched_share(first.comparison)))
+    for other in (refined(3), refined(5, "GFN2-xTB")):
+        note = assess(other, b3lyp, 16.0).note
+        assert assess(other, b3lyp, 16.0).confidence is None and "best 5 refined at" in note and "this is" in note
+    unrefined = assess(plain, b3lyp, 16.0)
+    assert unrefined.confidence is None and "best 5 refined" in unrefined.note
+    # and the unrefined models do not hold for a refined ranking
+    gfn1 = assess(refined(5), b3lyp, 16.0, shipped_model("GFN1-xTB"))
+    assert gfn1.confidence is None and "default comparison at GFN1-xTB" in gfn1.note

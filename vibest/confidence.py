@@ -30,8 +30,11 @@ import numpy as np
 from .analysis.scaling import DEFAULT_METHOD_NAME
 
 CONFIDENCE_FILE = "confidence.json"
-#: Level of theory (method name) -> its shipped confidence model (benchmarks/confidence.py --method).
-CONFIDENCE_FILES = {"GFN2-xTB": CONFIDENCE_FILE, "GFN1-xTB": "confidence-gfn1.json"}
+#: Level of theory (method name) of the first candidates -> its shipped confidence model
+#: (benchmarks/confidence.py --method [--refine K --refine-method M]); the B3LYP one is for
+#: rankings screened at GFN1-xTB with the best 5 refined at B3LYP (its settings say so).
+CONFIDENCE_FILES = {"GFN2-xTB": CONFIDENCE_FILE, "GFN1-xTB": "confidence-gfn1.json",
+                    "B3LYP-D3(BJ)/6-31G(d)": "confidence-gfn1-refine5-b3lyp.json"}
 #: A confidence below this is called low.
 LOW_CONFIDENCE = 0.7
 #: A margin this small is a tie whatever the noise.
@@ -223,14 +226,27 @@ class Assessment:
                 "low_confidence_below": LOW_CONFIDENCE}
 
 
-def comparison_settings(method_name: str, options, fwhm_cm1: float, gas_phase: bool = True) -> dict:
+def comparison_settings(method_name: str, options, fwhm_cm1: float, gas_phase: bool = True,
+                        refine: int = 0, screening_method: str = "") -> dict:
     """The settings a confidence model is checked against (keys of ConfidenceModel.settings), from
-    the :class:`vibest.comparison.ComparisonOptions` used, the prediction's band width (cm^-1) and
-    whether the sample was compared as a gas."""
-    return {"score": options.score_name, "method": method_name, "fit_shift": bool(options.fit_shift),
-            "max_shift_cm1": options.max_shift_cm1, "intensity_power": float(options.intensity_power),
-            "fwhm_cm1": float(options.fwhm_cm1 or fwhm_cm1), "range_cm1": [float(v) for v in options.range_cm1],
-            "phase": "gas" if gas_phase else "condensed"}
+    the :class:`vibest.comparison.ComparisonOptions` used, the prediction's band width (cm^-1),
+    whether the sample was compared as a gas, and for a refined ranking the K refined and the
+    level they were screened at (a model without these keys holds for unrefined rankings only)."""
+    settings = {"score": options.score_name, "method": method_name, "fit_shift": bool(options.fit_shift),
+                "max_shift_cm1": options.max_shift_cm1, "intensity_power": float(options.intensity_power),
+                "fwhm_cm1": float(options.fwhm_cm1 or fwhm_cm1), "range_cm1": [float(v) for v in options.range_cm1],
+                "phase": "gas" if gas_phase else "condensed"}
+    if refine:
+        settings |= {"refine": refine, "screened_with": screening_method}
+    return settings
+
+
+def _ranking_kind(settings: dict) -> str:
+    """A ranking's levels in words, from its :func:`comparison_settings` (or a model's)."""
+    if "refine" not in settings:
+        return f"the default comparison at {settings.get('method')}"
+    return (f"rankings at {settings.get('screened_with')} with the best {settings['refine']} refined at "
+            f"{settings.get('method')} (default comparison)")
 
 
 def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | None = None) -> Assessment:
@@ -242,19 +258,24 @@ def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | 
     model = model or shipped_model(method_name) or shipped_model()
     first = scored[0]
     flags = []
+    refine = ranking.refine if first.refined else 0
     settings = comparison_settings(method_name, ranking.options, fwhm_cm1,
-                                   bool(first.comparison.settings.get("gas_phase", True)))
+                                   bool(first.comparison.settings.get("gas_phase", True)), refine,
+                                   ranking.screening_method)
     flag = shift_flag(first.comparison, settings["max_shift_cm1"])
     if flag:
         flags.append(flag)
     confidence, note = None, ""
     if model is None:
         note = "no confidence model is shipped"
-    elif not model.applies_to(settings):
+    elif not model.applies_to(settings) or ("refine" in settings and "refine" not in model.settings):
         differing = [k for k, v in model.settings.items() if not _same(settings.get(k), v)]
+        levels_differ = {"refine", "screened_with", "method"} & set(differing) or "refine" not in model.settings
         if "phase" in differing:
             note = (f"confidence is calibrated on gas-phase spectra only; this sample was compared as "
                     f"{settings['phase']}, where scores and margins run differently")
+        elif ("refine" in model.settings or "refine" in settings) and levels_differ:
+            note = f"confidence is calibrated for {_ranking_kind(model.settings)} only; this is {_ranking_kind(settings)}"
         else:
             note = ("confidence is calibrated for the default comparison at " + str(model.settings.get("method"))
                     + f" only; here the {', '.join(name.replace('_', ' ') for name in differing)} "

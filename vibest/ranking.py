@@ -57,11 +57,14 @@ class RankedCandidate:
 @dataclass(frozen=True)
 class Ranking:
     """Candidates ranked against ``measured``, best first (failed ones last), and the comparison
-    options they were scored with."""
+    options they were scored with. ``refine`` is the K of ``rank_candidates(refine=K)`` (0: not
+    refined) and ``screening_method`` the level every candidate was first ranked at."""
 
     measured: MeasuredSpectrum
     options: ComparisonOptions
     entries: tuple[RankedCandidate, ...]
+    refine: int = 0
+    screening_method: str = ""
 
     @property
     def score_name(self) -> str:
@@ -69,7 +72,8 @@ class Ranking:
 
     def to_dict(self) -> dict:
         return {"caution": CAUTION, "measured": self.measured.source, "measured_notes": list(self.measured.notes),
-                "score": self.score_name, "candidates": [e.to_dict() for e in self.entries]}
+                "score": self.score_name, "screening_method": self.screening_method, "refine": self.refine,
+                "candidates": [e.to_dict() for e in self.entries]}
 
     def write_csv(self, path: str | Path) -> None:
         """The ranked table (header row first); caution, measured file and score in
@@ -246,7 +250,7 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
         margin = comp.score - nxt[2].score if nxt is not None and nxt[4] == refined else None
         method = refine_calc.method_name if refined else calc.method_name
         entries.append(RankedCandidate(i + 1, cand, comp.score, margin, comp, pred, None, hit, method, refined, note))
-    return Ranking(measured, opts, tuple(entries + failed))
+    return Ranking(measured, opts, tuple(entries + failed), refine, calc.method_name)
 
 
 def _refined(top, measured, calc, spec, store, opts: ComparisonOptions, progress, stage_progress=None):
