@@ -192,9 +192,9 @@ def test_refined_rankings_get_the_refined_model_and_nothing_else_does():
         first.score, first.score - plain.entries[1].score, matched_share(first.comparison)))
     for other in (refined(3), refined(5, "GFN2-xTB")):
         note = assess(other, b3lyp, 16.0).note
-        assert assess(other, b3lyp, 16.0).confidence is None and "best 5 refined at" in note and "this is" in note
+        assert assess(other, b3lyp, 16.0).confidence is None and "best 5 refined at" in note and "not for" in note
     unrefined = assess(plain, b3lyp, 16.0)
     assert unrefined.confidence is None and "best 5 refined" in unrefined.note
     # and the unrefined models do not hold for a refined ranking
     gfn1 = assess(refined(5), b3lyp, 16.0, shipped_model("GFN1-xTB"))
-    assert gfn1.confidence is None and "default comparison at GFN1-xTB" in gfn1.note
+    assert gfn1.confidence is None and "calibrated for rankings at GFN1-xTB with" in gfn1.note

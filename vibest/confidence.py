@@ -244,9 +244,9 @@ def comparison_settings(method_name: str, options, fwhm_cm1: float, gas_phase: b
 def _ranking_kind(settings: dict) -> str:
     """A ranking's levels in words, from its :func:`comparison_settings` (or a model's)."""
     if "refine" not in settings:
-        return f"the default comparison at {settings.get('method')}"
+        return f"rankings at {settings.get('method')}"
     return (f"rankings at {settings.get('screened_with')} with the best {settings['refine']} refined at "
-            f"{settings.get('method')} (default comparison)")
+            f"{settings.get('method')}")
 
 
 def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | None = None) -> Assessment:
@@ -275,7 +275,8 @@ def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | 
             note = (f"confidence is calibrated on gas-phase spectra only; this sample was compared as "
                     f"{settings['phase']}, where scores and margins run differently")
         elif ("refine" in model.settings or "refine" in settings) and levels_differ:
-            note = f"confidence is calibrated for {_ranking_kind(model.settings)} only; this is {_ranking_kind(settings)}"
+            note = (f"confidence is calibrated for {_ranking_kind(model.settings)} with the default comparison only, "
+                    f"not for {_ranking_kind(settings)}")
         else:
             note = ("confidence is calibrated for the default comparison at " + str(model.settings.get("method"))
                     + f" only; here the {', '.join(name.replace('_', ' ') for name in differing)} "
