@@ -190,6 +190,8 @@ def test_refined_rankings_get_the_refined_model_and_nothing_else_does():
     first = plain.entries[0]
     assert result.confidence == pytest.approx(model.probability(
         first.score, first.score - plain.entries[1].score, matched_share(first.comparison)))
+    import vibest  # the public call reads the level and band width from the ranking itself
+    assert vibest.assess(refined(5)).confidence == pytest.approx(result.confidence)
     for other in (refined(3), refined(5, "GFN2-xTB")):
         note = assess(other, b3lyp, 16.0).note
         assert assess(other, b3lyp, 16.0).confidence is None and "best 5 refined at" in note and "not for" in note

@@ -19,8 +19,8 @@ _LAZY = {"predict": "pipeline", "analyse": "pipeline", "compute_record": "pipeli
          "CalculationOptions": "pipeline", "SpectrumOptions": "pipeline",
          "CAUTION": "pipeline", "isotopologue": "pipeline", "prediction_thermochemistry": "pipeline",
          "HessianRecord": "calculation.record", "calculation_options": "calculation.driver",
-         "check_structure": "verdict", "make_decoys": "decoys",
-         "compare": "comparison", "ComparisonOptions": "comparison", "rank_candidates": "ranking",
+         "check_structure": "verdict", "make_decoys": "decoys", "assess": "confidence",
+         "compare": "comparison", "ComparisonOptions": "comparison", "rank_candidates": "ranking", "Candidate": "ranking",
          "load_spectrum": "measured", "difference_spectrum": "difference", "fit_components": "components",
          "Component": "components", "conversion_series": "series", "load_series": "series",
          "predict_many": "batch", "RecordStore": "store"}

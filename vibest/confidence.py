@@ -249,14 +249,19 @@ def _ranking_kind(settings: dict) -> str:
             f"{settings.get('method')}")
 
 
-def assess(ranking, method_name: str, fwhm_cm1: float, model: ConfidenceModel | None = None) -> Assessment:
-    """Confidence and flags of a ranking (see the module docstring), for the comparison options
-    it was made with, the level of theory of its first entries and the band width (cm^-1)."""
+def assess(ranking, method_name: str | None = None, fwhm_cm1: float | None = None,
+           model: ConfidenceModel | None = None) -> Assessment:
+    """Confidence and flags of a :class:`vibest.ranking.Ranking` (see the module docstring), for
+    the comparison options it was made with, the level of theory of its first entries
+    (``method_name``; None: the first candidate's own) and the band width in cm^-1 (None: the
+    first candidate's prediction's). ``model``: a model of your own instead of the shipped one."""
     scored = [e for e in ranking.entries if e.comparison is not None]
     if not scored:
         return Assessment(None, (), "no candidate could be scored")
-    model = model or shipped_model(method_name) or shipped_model()
     first = scored[0]
+    method_name = method_name or first.method
+    fwhm_cm1 = fwhm_cm1 or first.prediction.spectrum.fwhm_cm1
+    model = model or shipped_model(method_name) or shipped_model()
     flags = []
     refine = ranking.refine if first.refined else 0
     settings = comparison_settings(method_name, ranking.options, fwhm_cm1,
