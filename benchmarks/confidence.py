@@ -97,7 +97,8 @@ def refined_features(spectrum, candidates: list[str], right: str, preds: dict, r
         return None
     new = {s: compare(refined_preds[s], spectrum) for s in redone}
     order = sorted(redone, key=lambda s: -new[s].score)
-    return first_two_features(spectrum, order, new, refined_preds, right)
+    # agree: the refined first was first at the screening level too (else the ranking is flagged)
+    return first_two_features(spectrum, order, new, refined_preds, right) | {"agree": int(order[0] == top[0])}
 
 
 def first_two_features(spectrum, order: list[str], comps: dict, preds: dict, right: str) -> dict:
@@ -209,7 +210,7 @@ def read_rows(path: Path = FEATURES) -> list[dict]:
         out = []
         for r in csv.DictReader(line for line in fh if not line.startswith("#")):
             out.append({**r, **{k: float(r[k]) for k in ("score", "margin", "noise", "matched")},
-                        **{k: int(r[k]) for k in ("right", "candidates", "flips", "against")}})
+                        **{k: int(r[k]) for k in ("right", "candidates", "flips", "against", "agree") if k in r}})
         return out
 
 
@@ -290,9 +291,17 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES) -> dict:
         if sel.any():
             print(f"  {lo:.1f}-{hi:.1f}      {sel.sum():>8} {y[sel].mean():7.0%} {p[sel].mean():7.2f}")
     flagged = (p < LOW_CONFIDENCE) | poor
+    if "agree" in rows[0]:  # refined rankings: the levels-disagree flag
+        disagree = np.array([not r["agree"] for r in rows])
+        for kind in ("all", "isomers", "without"):
+            sel = np.array([r["ranking"] == kind for r in rows])
+            print(f"  {kind:<8} levels agree: right first {y[sel & ~disagree].sum()} of {(sel & ~disagree).sum()}; "
+                  f"disagree: {y[sel & disagree].sum()} of {(sel & disagree).sum()}")
+        flagged = flagged | disagree
     wrong, right = y == 0, y == 1
     print(f"\nexpected calibration error (10 bins, held out): {ece:.3f}   (target <= 0.10)")
-    print(f"wrong first candidates flagged (confidence < {LOW_CONFIDENCE} or no good fit): "
+    print(f"wrong first candidates flagged (confidence < {LOW_CONFIDENCE}, no good fit"
+          + (", levels disagree" if "agree" in rows[0] else "") + "): "
           f"{flagged[wrong].mean():.0%} of {wrong.sum()}   (target >= 80 %)")
     print(f"right first candidates with confidence >= {LOW_CONFIDENCE} (and no poor-fit flag): "
           f"{(~flagged[right]).mean():.0%} of {right.sum()}   (target >= 80 %)")
@@ -349,7 +358,7 @@ def main() -> None:
                          "# jcamp 1.3.2 sdist, benchmarks/data/measured_set.csv). score: first candidate's score;\n"
                          "# margin: to the second; right: whether the first is the measured compound.\n")
                 w = csv.DictWriter(fh, fieldnames=["spectrum", "ranking", "candidates", "score", "margin", "noise", "flips",
-                                                   "matched", "against", "right"])
+                                                   "matched", "against", "right"] + (["agree"] if args.refine else []))
                 w.writeheader()
                 w.writerows(rows)
         model_path.write_text(json.dumps({

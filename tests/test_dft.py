@@ -168,7 +168,10 @@ def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_pa
     mechanics only): the best two are recomputed at the (small-basis) DFT level, marked and ranked
     by their new scores; the methyl radical, which the refining level cannot compute (open shell),
     keeps its first result with a note and follows the refined ones although its first-level
-    score is the highest (scores of two levels are never compared); the rest are not refined."""
+    score is the highest (scores of two levels are never compared); the rest are not refined.
+    Each refined entry keeps its screening rank, and the assessment flags that the levels
+    disagree on the first candidate."""
+    from vibest.confidence import LEVELS_DISAGREE, assess
     from vibest.measured import MeasuredSpectrum
     from vibest.pipeline import SpectrumOptions, analyse
     from vibest.ranking import Candidate, rank_candidates
@@ -194,6 +197,9 @@ def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_pa
     assert refused.rank == 3 and not refused.refined and "closed-shell" in refused.note
     assert refused.score > max(e.score for e in refined)  # the best first-level score, still after them
     assert refined[1].margin_to_next is None  # no margin across the two levels
+    assert refused.screening_rank == 1 and sorted(e.screening_rank for e in refined) == [2, 3]
+    flags = {f.kind: f.message for f in assess(ranking).flags}  # the refined first was not first before
+    assert "GFN1-xTB put methyl first" in flags[LEVELS_DISAGREE]
     last = ranking.entries[3]
     assert not last.refined and last.method == "GFN1-xTB" and not last.note
     path = tmp_path / "ranking.csv"

@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 from vibest.comparison import compare
-from vibest.confidence import (LOW, MARGIN_IN_NOISE, POOR_FIT, SHIFT_AT_BOUND, ConfidenceModel, assess,
+from vibest.confidence import (LEVELS_DISAGREE, LOW, MARGIN_IN_NOISE, POOR_FIT, SHIFT_AT_BOUND, ConfidenceModel, assess,
                                expected_calibration_error, fit_logistic, matched_share, shift_flag,
                                shipped_model)
 from vibest.evidence import group_evidence
@@ -197,6 +197,12 @@ def test_refined_rankings_get_the_refined_model_and_nothing_else_does():
         assert assess(other, b3lyp, 16.0).confidence is None and "best 5 refined at" in note and "not for" in note
     unrefined = assess(plain, b3lyp, 16.0)
     assert unrefined.confidence is None and "best 5 refined" in unrefined.note
+    # the refined first was second at the screening level: flagged, naming the one first there
+    swapped = dataclasses.replace(refined(5), entries=(dataclasses.replace(entries[0], screening_rank=2),
+                                                       dataclasses.replace(entries[1], screening_rank=1)))
+    flags = {f.kind: f.message for f in assess(swapped).flags}
+    assert f"GFN1-xTB put {entries[1].candidate.name} first" in flags[LEVELS_DISAGREE] and "2nd" in flags[LEVELS_DISAGREE]
+    assert LEVELS_DISAGREE not in {f.kind for f in assess(refined(5)).flags}  # no screening ranks: no flag
     # and the unrefined models do not hold for a refined ranking
     gfn1 = assess(refined(5), b3lyp, 16.0, shipped_model("GFN1-xTB"))
     assert gfn1.confidence is None and "calibrated for rankings at GFN1-xTB with" in gfn1.note

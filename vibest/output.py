@@ -254,7 +254,7 @@ def ranking_table(ranking, assessment=None) -> str:
     refined = [e for e in ranking.entries if e.refined]
     if refined:
         lines.append(f"# * recomputed at {refined[0].method} and ranked among themselves (the first {len(refined)}); "
-                     f"the others at {next((e.method for e in ranking.entries if not e.refined), '')}: scores of two "
+                     f"the others at {ranking.screening_method}: scores of two "
                      "levels are not compared with each other, so no margin is given across the line")
     lines += assessment_lines(assessment)
     lines.append(f"# caution: {CAUTION}")

@@ -44,11 +44,13 @@ class RankedCandidate:
     method: str = ""
     refined: bool = False
     note: str = ""
+    #: In a refined ranking, the candidate's rank at the first (screening) level.
+    screening_rank: int | None = None
 
     def to_dict(self) -> dict:
         d = {"rank": self.rank, "name": self.candidate.name, "smiles": self.candidate.smiles, "score": self.score,
              "margin_to_next": self.margin_to_next, "error": self.error, "from_store": self.from_store,
-             "method": self.method, "refined": self.refined, "note": self.note}
+             "method": self.method, "refined": self.refined, "screening_rank": self.screening_rank, "note": self.note}
         if self.comparison is not None:
             d["comparison"] = self.comparison.to_dict()
         return d
@@ -91,9 +93,9 @@ class Ranking:
                          "" if e.margin_to_next is None else f"{e.margin_to_next:.4f}",
                          *(f"{s[k]:.4f}" if k in s else "" for k in SCORES),
                          "" if c is None else f"{c.shift_cm1:.2f}", n_match, n_meas, e.method,
-                         "yes" if e.refined else "", e.error or e.note or ""])
+                         "yes" if e.refined else "", e.screening_rank or "", e.error or e.note or ""])
         write_table(path, ["rank", "name", "smiles", "score", "margin_to_next", *SCORES, "shift_cm1",
-                           "matched_peaks", "measured_peaks", "method", "refined", "error"], rows,
+                           "matched_peaks", "measured_peaks", "method", "refined", "screening_rank", "error"], rows,
                     {"what": "vibest ranking", "measured": self.measured.source, "title": self.measured.title,
                      "score": self.score_name, "measured_notes": list(self.measured.notes), "caution": CAUTION})
 
@@ -238,10 +240,10 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
         except VibestError as exc:
             failed.append(RankedCandidate(None, cand, None, None, None, None, str(exc), method=calc.method_name))
     scored.sort(key=lambda t: -t[2].score)
+    screening_ranks = [None] * len(scored)
     if refine:
         top = _refined(scored[:refine], measured, refine_calc, spec, store, opts, progress, refine_progress)
-        done = sorted((t for t in top if t[4]), key=lambda t: -t[2].score)
-        scored = done + [t for t in top if not t[4]] + scored[refine:]
+        scored, screening_ranks = _refined_order(top, scored[refine:])
     if progress:
         progress(len(candidates), len(candidates), "")
     entries = []
@@ -249,8 +251,20 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
         nxt = scored[i + 1] if i + 1 < len(scored) else None
         margin = comp.score - nxt[2].score if nxt is not None and nxt[4] == refined else None
         method = refine_calc.method_name if refined else calc.method_name
-        entries.append(RankedCandidate(i + 1, cand, comp.score, margin, comp, pred, None, hit, method, refined, note))
+        entries.append(RankedCandidate(i + 1, cand, comp.score, margin, comp, pred, None, hit, method, refined, note,
+                                       screening_ranks[i]))
     return Ranking(measured, opts, tuple(entries + failed), refine, calc.method_name)
+
+
+def _refined_order(top: list, rest: list) -> tuple[list, list[int]]:
+    """The refined entries of ``top`` by their new score, then those the refining level could not
+    compute, then ``rest``; with each entry's rank at the screening level (``top`` and ``rest``
+    come in that order)."""
+    ranked = list(enumerate(top + rest, start=1))
+    head = ranked[:len(top)]
+    done = sorted((kt for kt in head if kt[1][4]), key=lambda kt: -kt[1][2].score)
+    ordered = done + [kt for kt in head if not kt[1][4]] + ranked[len(top):]
+    return [t for _, t in ordered], [k for k, _ in ordered]
 
 
 def _refined(top, measured, calc, spec, store, opts: ComparisonOptions, progress, stage_progress=None):
