@@ -268,6 +268,23 @@ def _ranking_kind(settings: dict) -> str:
             f"{settings.get('method')}")
 
 
+def _why_not_calibrated(model: ConfidenceModel, settings: dict) -> str:
+    """Why ``model`` does not hold for a ranking of ``settings`` (:func:`comparison_settings`),
+    in one sentence; "" when it holds."""
+    if model.applies_to(settings) and ("refine" in model.settings or "refine" not in settings):
+        return ""
+    differing = [k for k, v in model.settings.items() if not _same(settings.get(k), v)]
+    if "phase" in differing:
+        return (f"confidence is calibrated on gas-phase spectra only; this sample was compared as "
+                f"{settings['phase']}, where scores and margins run differently")
+    refined = "refine" in model.settings or "refine" in settings
+    if refined and ({"refine", "screened_with", "method"} & set(differing) or "refine" not in model.settings):
+        return (f"confidence is calibrated for {_ranking_kind(model.settings)} with the default comparison only, "
+                f"not for {_ranking_kind(settings)}")
+    return (f"confidence is calibrated for the default comparison at {model.settings.get('method')} only; here the "
+            f"{', '.join(name.replace('_', ' ') for name in differing)} {'differs' if len(differing) == 1 else 'differ'}")
+
+
 def assess(ranking, method_name: str | None = None, fwhm_cm1: float | None = None,
            model: ConfidenceModel | None = None) -> Assessment:
     """Confidence and flags of a :class:`vibest.ranking.Ranking` (see the module docstring), for
@@ -290,19 +307,8 @@ def assess(ranking, method_name: str | None = None, fwhm_cm1: float | None = Non
     confidence, note = None, ""
     if model is None:
         note = "no confidence model is shipped"
-    elif not model.applies_to(settings) or ("refine" in settings and "refine" not in model.settings):
-        differing = [k for k, v in model.settings.items() if not _same(settings.get(k), v)]
-        levels_differ = {"refine", "screened_with", "method"} & set(differing) or "refine" not in model.settings
-        if "phase" in differing:
-            note = (f"confidence is calibrated on gas-phase spectra only; this sample was compared as "
-                    f"{settings['phase']}, where scores and margins run differently")
-        elif ("refine" in model.settings or "refine" in settings) and levels_differ:
-            note = (f"confidence is calibrated for {_ranking_kind(model.settings)} with the default comparison only, "
-                    f"not for {_ranking_kind(settings)}")
-        else:
-            note = ("confidence is calibrated for the default comparison at " + str(model.settings.get("method"))
-                    + f" only; here the {', '.join(name.replace('_', ' ') for name in differing)} "
-                    + ("differs" if len(differing) == 1 else "differ"))
+    elif withheld := _why_not_calibrated(model, settings):
+        note = withheld
     else:
         if first.score < model.poor_fit_score:
             flags.append(Flag(POOR_FIT, f"the best score ({first.score:.3f}) is below what right answers scored in "
