@@ -197,6 +197,8 @@ def test_refined_rankings_get_the_refined_model_and_nothing_else_does():
         assert assess(other, b3lyp, 16.0).confidence is None and "best 5 refined at" in note and "not for" in note
     unrefined = assess(plain, b3lyp, 16.0)
     assert unrefined.confidence is None and "best 5 refined" in unrefined.note
+    alone = dataclasses.replace(refined(5), entries=(entries[0], plain.entries[1]))  # only the first refined
+    assert assess(alone).confidence is None and "only the first candidate was refined" in assess(alone).note
     # the refined first was second at the screening level: flagged, naming the one first there
     swapped = dataclasses.replace(refined(5), entries=(dataclasses.replace(entries[0], screening_rank=2),
                                                        dataclasses.replace(entries[1], screening_rank=1)))

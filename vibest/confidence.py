@@ -318,6 +318,8 @@ def assess(ranking, method_name: str | None = None, fwhm_cm1: float | None = Non
             confidence = model.probability(first.score, first.score - scored[1].score, matched_share(first.comparison))
         elif len(scored) == 1:
             note = "one candidate only: nothing to be sure against"
+        else:
+            note = "only the first candidate was refined: nothing at its level to be sure against"
     if len(scored) > 1 and first.refined == scored[1].refined:
         spread, flips = margin_noise(ranking.measured, first.prediction, scored[1].prediction, ranking.options)
         margin = first.score - scored[1].score
