@@ -54,7 +54,7 @@ from vibest.decoys import make_decoys  # noqa: E402
 from vibest.errors import VibestError  # noqa: E402
 from vibest.measured import load_spectrum  # noqa: E402
 from vibest.pipeline import SpectrumOptions  # noqa: E402
-from vibest.ranking import predict_stored  # noqa: E402
+from vibest.ranking import predict_stored, refined_order  # noqa: E402
 from vibest.store import RecordStore  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -92,11 +92,10 @@ def refined_features(spectrum, candidates: list[str], right: str, preds: dict, r
     the features are those of the first two refined candidates (None when fewer than two are)."""
     comps = {s: compare(preds[s], spectrum) for s in candidates}
     top = sorted(candidates, key=lambda s: -comps[s].score)[:refine]
-    redone = [s for s in top if s in refined_preds]
-    if len(redone) < 2:
+    new = {s: compare(refined_preds[s], spectrum) for s in top if s in refined_preds}
+    if len(new) < 2:
         return None
-    new = {s: compare(refined_preds[s], spectrum) for s in redone}
-    order = sorted(redone, key=lambda s: -new[s].score)
+    order = [top[k] for k in refined_order(top, refine, lambda s: new[s].score if s in new else None)]
     # agree: the refined first was first at the screening level too (else the ranking is flagged)
     return first_two_features(spectrum, order, new, refined_preds, right) | {"agree": int(order[0] == top[0])}
 

@@ -29,7 +29,7 @@ from vibest.measured import load_spectrum  # noqa: E402
 from vibest.calculation.driver import calculation_options  # noqa: E402
 from vibest.calculation.methods import DEFAULT_METHOD, parse_level  # noqa: E402
 from vibest.pipeline import SpectrumOptions  # noqa: E402
-from vibest.ranking import predict_stored  # noqa: E402
+from vibest.ranking import predict_stored, refined_order  # noqa: E402
 from vibest.spectrum import DEFAULT_FWHM_CM1  # noqa: E402
 from vibest.store import RecordStore  # noqa: E402
 
@@ -42,11 +42,8 @@ def ranked(candidates, scores, refined_scores=None, refine: int = 0) -> list[str
     """Candidates best first, as vibest.ranking.rank_candidates orders them: by ``scores``; with
     ``refine`` K the first K again by ``refined_scores`` (a function of the SMILES)."""
     order = sorted(candidates, key=lambda s: -scores[s])
-    if refine:
-        top = order[:refine]
-        new = {s: refined_scores(s) for s in top}  # None: not refined, follows the refined ones
-        done = [s for s in top if new[s] is not None]
-        order = sorted(done, key=lambda s: -new[s]) + [s for s in top if new[s] is None] + order[refine:]
+    if refine:  # refined_scores None: not refined, follows the refined ones
+        order = [order[k] for k in refined_order(order, refine, refined_scores)]
     return order
 
 

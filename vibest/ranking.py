@@ -242,8 +242,10 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     scored.sort(key=lambda t: -t[2].score)
     screening_ranks = [None] * len(scored)
     if refine:
-        top = _refined(scored[:refine], measured, refine_calc, spec, store, opts, progress, refine_progress)
-        scored, screening_ranks = _refined_order(top, scored[refine:])
+        scored = _refined(scored[:refine], measured, refine_calc, spec, store, opts, progress,
+                          refine_progress) + scored[refine:]
+        positions = refined_order(scored, refine, lambda t: t[2].score if t[4] else None)
+        scored, screening_ranks = [scored[k] for k in positions], [k + 1 for k in positions]
     if progress:
         progress(len(candidates), len(candidates), "")
     entries = []
@@ -256,15 +258,16 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     return Ranking(measured, opts, tuple(entries + failed), refine, calc.method_name)
 
 
-def _refined_order(top: list, rest: list) -> tuple[list, list[int]]:
-    """The refined entries of ``top`` by their new score, then those the refining level could not
-    compute, then ``rest``; with each entry's rank at the screening level (``top`` and ``rest``
-    come in that order)."""
-    ranked = list(enumerate(top + rest, start=1))
-    head = ranked[:len(top)]
-    done = sorted((kt for kt in head if kt[1][4]), key=lambda kt: -kt[1][2].score)
-    ordered = done + [kt for kt in head if not kt[1][4]] + ranked[len(top):]
-    return [t for _, t in ordered], [k for k, _ in ordered]
+def refined_order(items: list, refine: int, new_score: Callable) -> list[int]:
+    """How a refined ranking is ordered, as positions in ``items`` (best first at the screening
+    level): the first ``refine`` by ``new_score(item)`` (their score at the refining level),
+    then those of them it gives None (not refined: their score is not compared with the
+    others'), in screening order, then the rest. One rule for ``rank_candidates`` and the
+    benchmarks that mirror it."""
+    head = items[:refine]
+    new = [new_score(item) for item in head]
+    done = sorted((k for k in range(len(head)) if new[k] is not None), key=lambda k: -new[k])
+    return done + [k for k in range(len(head)) if new[k] is None] + list(range(len(head), len(items)))
 
 
 def _refined(top, measured, calc, spec, store, opts: ComparisonOptions, progress, stage_progress=None):
