@@ -397,9 +397,10 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         steps = _CartesianSteps(numbers, x, g, hessian)
     used = [steps.name]
     trust = settings.trust_radius_bohr
-    converged = _max_atom_force(g, x) < settings.max_force_hartree_bohr
+    force = _max_atom_force(g, x)
+    converged = force < settings.max_force_hartree_bohr
     if progress:
-        progress(0, e, _max_atom_force(g, x))
+        progress(0, e, force)
     while not converged and calls < settings.max_steps:
         proposal = steps.propose(trust)
         if proposal is None:  # the internal set no longer describes the geometry
@@ -421,17 +422,18 @@ def optimize(engine: Engine, numbers, positions_bohr, settings: OptimizerSetting
         if not accept:
             last_is_final = False
             if progress:
-                progress(calls, e, _max_atom_force(g, x))
+                progress(calls, e, force)
             continue
         x, e, g = x_new, e_new, g_new
         last = ev
         last_is_final = True
         energies.append(e)
-        converged = _max_atom_force(g, x) < settings.max_force_hartree_bohr
+        force = _max_atom_force(g, x)
+        converged = force < settings.max_force_hartree_bohr
         if progress:
-            progress(calls, e, _max_atom_force(g, x))
+            progress(calls, e, force)
     return OptimizationResult(
-        positions_bohr=x, energy_hartree=e, max_force_hartree_bohr=_max_atom_force(g, x),
+        positions_bohr=x, energy_hartree=e, max_force_hartree_bohr=force,
         converged=bool(converged), gradient_calls=calls, seconds=time.perf_counter() - t0,
         gradient_seconds=tg, energies_hartree=energies,
         final_evaluation=last if last_is_final else None, coordinates=", then ".join(used),
