@@ -128,7 +128,7 @@ def main() -> None:
     store = RecordStore(args.store)
     calc = calculation_options(args.method)
     preds = {}
-    # a molecule the level cannot compute (iodine with a basis set that lacks it) is computed with
+    # a molecule the level cannot compute (an open shell at a density-functional level) is computed with
     # the level's own tight-binding positions method, else the default level, and said here
     positions = parse_level(args.method).positions
     fallback = calculation_options(DEFAULT_METHOD if positions.is_dft else positions.key)

@@ -11,6 +11,7 @@ At a density-functional level the molecule is computed from that GFN2-xTB record
 from __future__ import annotations
 
 from .calculation.driver import DFT_START_ENGINE
+from .calculation.methods import without_unused_dft_settings
 from .calculation.record import HessianRecord
 from .pipeline import CalculationOptions, SpectrumOptions, compute_record
 
@@ -42,6 +43,9 @@ def reference_record(smiles: str, options: CalculationOptions = REFERENCE_OPTION
 def computed_with(record: HessianRecord, options: CalculationOptions) -> bool:
     """Whether ``record`` was computed with ``options``' methods (engine and intensity engine):
     a benchmark's cache of records from an older version of a method is stale, never reused."""
-    current = options.to_dict()
-    return all(record.settings.get(name) == current.get(name) for name in ("engine", "intensity_engine"))
+    import copy
+
+    current = without_unused_dft_settings(options.to_dict(), record.numbers)
+    stored = without_unused_dft_settings(copy.deepcopy(dict(record.settings)), record.numbers)
+    return all(stored.get(name) == current.get(name) for name in ("engine", "intensity_engine"))
 

@@ -27,6 +27,7 @@ import zlib
 from pathlib import Path
 from typing import Callable, Iterator
 
+from .calculation.methods import without_unused_dft_settings
 from .calculation.record import RECORD_VERSION, HessianRecord
 from .errors import InputError
 from .pipeline import CalculationOptions
@@ -134,6 +135,14 @@ def _rigid(canonical: str) -> bool:
 
     mol = Chem.MolFromSmiles(canonical)
     return mol is None or rotor_count(mol) == 0
+
+
+def _atomic_numbers(canonical: str) -> list[int]:
+    """Atomic numbers of a canonical SMILES's heavy atoms (none if it does not parse)."""
+    from rdkit import Chem
+
+    mol = Chem.MolFromSmiles(canonical)
+    return [] if mol is None else [a.GetAtomicNum() for a in mol.GetAtoms()]
 
 
 def _checksum(blob: bytes) -> str:
@@ -244,12 +253,16 @@ class RecordStore:
         stored before the option existed (all Cartesian) keep serving default requests, and a
         store is not recomputed on upgrade. An explicit "cartesian" request has a key of its own.
         Likewise the search of start conformers is in the key only for flexible molecules
-        (``canonical`` SMILES with a rotor): a rigid one has one start either way."""
+        (``canonical`` SMILES with a rotor): a rigid one has one start either way. The basis set
+        of density-functional methods for elements past krypton is in the key only for molecules
+        that have one, so adding that setting changed no other record's key."""
         opts = options.to_dict()
         if opts.get("hessian_displacements") == "vibrational":
             del opts["hessian_displacements"]
         if not opts.get("start_conformers") or (canonical is not None and _rigid(canonical)):
             opts.pop("start_conformers", None)
+        if canonical is not None:
+            without_unused_dft_settings(opts, _atomic_numbers(canonical))
         return {"options": opts, "record_version": RECORD_VERSION, "calculation_version": CALCULATION_VERSION}
 
     def key(self, smiles: str, options: CalculationOptions) -> str:

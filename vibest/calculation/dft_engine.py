@@ -29,7 +29,11 @@ what the tight-binding engines need finite differences for:
 
 PySCF computes with its own OpenMP threads (and numpy's BLAS): each call runs with
 ``threads`` of them (default all cores) and at most ``memory_mb`` of memory. Closed-shell
-molecules only (restricted Kohn-Sham); no implicit solvent.
+molecules only (restricted Kohn-Sham); no implicit solvent. Elements past krypton (iodine) get
+the settings' ``beyond_krypton_basis`` with the effective core potential of that name (PySCF's
+analytic Hessian includes the core potential's integrals; their rows are finite differences
+anyway, being past neon); the atom's charge in the dipole derivatives is then its effective
+one (PySCF's ``atom_charges``).
 """
 
 from __future__ import annotations
@@ -43,7 +47,7 @@ import numpy as np
 
 from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
-from .methods import DFTSettings
+from .methods import MAX_ALL_ELECTRON_Z, DFTSettings
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -53,9 +57,22 @@ HEAVY_ATOM_Z = 10
 FINITE_DIFFERENCE_STEP_BOHR = 0.005
 
 
-#: Heaviest element computed all-electron (krypton). Heavier ones (iodine: def2-SVP has functions for
-#: it, made for a 28-electron effective core potential) are refused (build_pyscf_molecule).
-MAX_ALL_ELECTRON_Z = 36
+
+
+def elements_beyond_krypton(numbers) -> list[str]:
+    """Symbols (sorted, once each) of the elements computed with an effective core potential."""
+    from ase.data import chemical_symbols
+
+    return sorted({chemical_symbols[int(z)] for z in numbers if int(z) > MAX_ALL_ELECTRON_Z})
+
+
+def core_potential_note(numbers, dft: DFTSettings) -> str | None:
+    """One line saying which elements were computed with an effective core potential, or None."""
+    beyond = elements_beyond_krypton(numbers)
+    if not beyond or dft.beyond_krypton_basis is None:
+        return None
+    return (f"{', '.join(beyond)}: {dft.beyond_krypton_basis} basis set with its effective core potential "
+            f"(elements past krypton; the other atoms {dft.basis})")
 
 
 def atoms_past_neon(numbers) -> list[int]:
@@ -296,20 +313,14 @@ def build_pyscf_molecule(numbers, positions_bohr, charge: int, uhf: int, setting
                          f"{uhf} unpaired electron(s): use a tight-binding level (--method gfn1, the default, or gfn2)")
     dft = settings.dft
     atoms = [(chemical_symbols[int(z)], tuple(map(float, p))) for z, p in zip(numbers, np.reshape(positions_bohr, (-1, 3)))]
-    beyond = sorted({chemical_symbols[int(z)] for z in numbers if int(z) > MAX_ALL_ELECTRON_Z})
-    if beyond:
-        # def2 basis sets define these elements for use with an effective core potential; PySCF
-        # would run them all-electron without one unless told (a silently wrong calculation)
-        raise InputError(f"{settings.method}: {', '.join(beyond)} would need an effective core potential, which "
-                         "vibest's density-functional tier does not handle: use a tight-binding level "
-                         "(--method gfn1, the default, or gfn2) for this molecule")
+    basis, ecp = _basis_and_core_potentials(numbers, settings)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # PySCF suggests basis-set-exchange for a missing basis
-            mol = gto.M(atom=atoms, unit="Bohr", basis=dft.basis, charge=int(charge), spin=0, verbose=0,
+            mol = gto.M(atom=atoms, unit="Bohr", basis=basis, ecp=ecp, charge=int(charge), spin=0, verbose=0,
                         max_memory=int(memory_mb))
     except (KeyError, RuntimeError, ValueError) as exc:
-        missing = sorted({a for a, _ in atoms if not _basis_has(a, dft.basis)})
+        missing = sorted({a for a, _ in atoms if not _basis_has(a, basis if isinstance(basis, str) else basis[a])})
         if missing:
             raise InputError(f"basis set {dft.basis} has no functions for {', '.join(missing)}: "
                              "use a tight-binding level (--method gfn1, the default, or gfn2) for this molecule") from None
@@ -319,6 +330,26 @@ def build_pyscf_molecule(numbers, positions_bohr, charge: int, uhf: int, setting
         raise InputError(f"basis set {dft.basis} has no functions for {', '.join(missing)}: "
                          "use a tight-binding level (--method gfn1, the default, or gfn2) for this molecule")
     return mol
+
+
+def _basis_and_core_potentials(numbers, settings: EngineSettings) -> tuple[str | dict, dict]:
+    """PySCF's ``basis`` and ``ecp`` arguments: the method's basis for every element up to
+    krypton; past it (elements_beyond_krypton) the ``beyond_krypton_basis`` and the effective
+    core potential of that name (def2 basis sets define these elements for use with one, and
+    PySCF would run them all-electron unless told: a silently wrong calculation). InputError
+    when the method has no such basis."""
+    from ase.data import chemical_symbols
+
+    dft = settings.dft
+    beyond = elements_beyond_krypton(numbers)
+    if not beyond:
+        return dft.basis, {}
+    if dft.beyond_krypton_basis is None:
+        raise InputError(f"{settings.method}: {', '.join(beyond)} would need an effective core potential, which "
+                         "this method's settings do not name: use a tight-binding level "
+                         "(--method gfn1, the default, or gfn2) for this molecule")
+    basis = {chemical_symbols[int(z)]: dft.basis for z in numbers} | {el: dft.beyond_krypton_basis for el in beyond}
+    return basis, {el: dft.beyond_krypton_basis for el in beyond}
 
 
 def _basis_has(symbol: str, basis: str) -> bool:

@@ -441,6 +441,7 @@ def _dft_record(molecule, options: CalculationOptions, progress: Progress | None
     x, start_hessian = _tight_binding_minimum(molecule, options, progress, timings, notes)
     engine = make_engine(molecule.numbers, x, molecule.charge, molecule.uhf, options.engine, _dft_resources(options))
     timings.basis_functions = engine.basis_functions
+    notes.extend(_core_potential_notes(molecule.numbers, options.engine))
     x, ev, hessian, dmu, converged = _minimum_and_hessian(engine, molecule.numbers, x, options,
                                                           _analytic_step(engine, progress), progress, timings, notes,
                                                           start_hessian=start_hessian)
@@ -462,4 +463,13 @@ def with_dft_intensities(record: HessianRecord, options: CalculationOptions,
     timings = dict(record.timings) | {"intensity_seconds": time.perf_counter() - t,
                                       "basis_functions": engine.basis_functions}
     settings_dict = dict(record.settings) | {"intensity_engine": settings.to_dict()}
-    return dataclasses.replace(record, dipole_derivatives_e=dmu, settings=settings_dict, timings=timings)
+    notes = tuple(record.notes) + tuple(f"intensities: {n}" for n in _core_potential_notes(record.numbers, settings))
+    return dataclasses.replace(record, dipole_derivatives_e=dmu, settings=settings_dict, timings=timings, notes=notes)
+
+
+def _core_potential_notes(numbers, settings: EngineSettings) -> list[str]:
+    """The one-line note of vibest.calculation.dft_engine.core_potential_note, if any."""
+    from .dft_engine import core_potential_note
+
+    note = core_potential_note(numbers, settings.dft)
+    return [note] if note else []

@@ -36,6 +36,12 @@ class DFTSettings:
             the grid's motion that PySCF's analytic Hessian leaves out (vibest.calculation.
             dft_engine). Part of the store key, so records from before (analytic rows, wrong by up
             to 200 cm^-1 for Cl and Br) are never reused.
+        beyond_krypton_basis: basis set, and effective core potential of the same name, for the
+            elements past krypton (iodine: 6-31G(d) has no functions for it, and def2-SVP's are
+            made for a 28-electron core potential); ``"def2-svp"`` (Weigend & Ahlrichs 2005; core
+            potentials of the Stuttgart-Cologne family, e.g. Peterson et al. 2003 for iodine;
+            both from memory) or None to refuse such elements. In the store key only for
+            molecules that have such an element (vibest.store), so no other record changes key.
     """
 
     functional: str = "b3lyp"
@@ -45,9 +51,25 @@ class DFTSettings:
     density_fitting: bool = False
     scf_tolerance_hartree: float = 1e-10
     heavy_atom_rows: str = "finite-difference"
+    beyond_krypton_basis: str | None = "def2-svp"
 
     def to_dict(self) -> dict:
         return asdict(self)
+
+
+#: Heaviest element computed all-electron (krypton); heavier ones need DFTSettings.beyond_krypton_basis.
+MAX_ALL_ELECTRON_Z = 36
+
+
+def without_unused_dft_settings(options: dict, atomic_numbers) -> dict:
+    """``options`` (a CalculationOptions.to_dict(), changed in place and returned) without the
+    density-functional settings that cannot change this molecule's numbers: the basis for
+    elements past krypton when it has none (so adding that setting changed no other record's
+    store key, and cached records stay current)."""
+    if not any(int(z) > MAX_ALL_ELECTRON_Z for z in atomic_numbers):
+        for engine in ("engine", "intensity_engine"):
+            ((options.get(engine) or {}).get("dft") or {}).pop("beyond_krypton_basis", None)
+    return options
 
 
 @dataclass(frozen=True)
