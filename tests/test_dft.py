@@ -45,6 +45,20 @@ def scf_dipole_differences(engine, x_bohr: np.ndarray, step: float = 0.01) -> np
     return numeric
 
 
+def gradient_differences(engine, x_bohr: np.ndarray, step: float = 0.005) -> np.ndarray:
+    """Hessian (3N, 3N), Eh/Bohr^2, as central differences (``step`` Bohr) of the engine's
+    analytic gradients, symmetrised."""
+    n = x_bohr.size
+    numeric = np.zeros((n, n))
+    for k in range(n):
+        plus, minus = x_bohr.ravel().copy(), x_bohr.ravel().copy()
+        plus[k] += step
+        minus[k] -= step
+        numeric[k] = (engine.evaluate(plus.reshape(-1, 3)).gradient_hartree_bohr.ravel()
+                      - engine.evaluate(minus.reshape(-1, 3)).gradient_hartree_bohr.ravel()) / (2 * step)
+    return 0.5 * (numeric + numeric.T)
+
+
 @pytest.fixture(scope="module")
 def water_record():
     record, converged, _ = compute_record(build_molecule("O"), small_options())
@@ -225,15 +239,7 @@ def test_chlorine_rows_include_the_grid_response():
     assert converged
     x = record.positions_angstrom / Bohr
     engine = make_engine(record.numbers, x, 0, 0, EngineSettings.for_method(method))
-    step, n = 0.005, x.size
-    numeric = np.zeros((n, n))
-    for k in range(n):
-        plus, minus = x.ravel().copy(), x.ravel().copy()
-        plus[k] += step
-        minus[k] -= step
-        numeric[k] = (engine.evaluate(plus.reshape(-1, 3)).gradient_hartree_bohr.ravel()
-                      - engine.evaluate(minus.reshape(-1, 3)).gradient_hartree_bohr.ravel()) / (2 * step)
-    numeric = 0.5 * (numeric + numeric.T)
+    numeric = gradient_differences(engine, x)
     assert np.abs(record.hessian_hartree_bohr2 - numeric).max() < 2e-4
     ours = harmonic_analysis(record.numbers, record.positions_angstrom, record.hessian_hartree_bohr2,
                              record.dipole_derivatives_e).wavenumbers_cm1
@@ -335,15 +341,7 @@ def test_iodine_with_an_effective_core_potential():
     x = record.positions_angstrom / Bohr
     engine = make_engine(record.numbers, x, 0, 0, EngineSettings.for_method(SMALL))
     assert engine.mol.nelectron == 26 and engine.mol.has_ecp()
-    step, n = 0.005, x.size
-    numeric = np.zeros((n, n))
-    for k in range(n):
-        plus, minus = x.ravel().copy(), x.ravel().copy()
-        plus[k] += step
-        minus[k] -= step
-        numeric[k] = (engine.evaluate(plus.reshape(-1, 3)).gradient_hartree_bohr.ravel()
-                      - engine.evaluate(minus.reshape(-1, 3)).gradient_hartree_bohr.ravel()) / (2 * step)
-    numeric = 0.5 * (numeric + numeric.T)
+    numeric = gradient_differences(engine, x)
     assert np.abs(record.hessian_hartree_bohr2 - numeric).max() < 2e-4
     assert np.abs(record.hessian_hartree_bohr2).max() > 0.1  # the H-I stretch: not trivially small
     apt = record.dipole_derivatives_e
