@@ -101,7 +101,8 @@ METHODS: dict[str, Method] = {m.key: m for m in (
     Method("gfn2", "GFN2-xTB", TIGHT_BINDING,
            "GFN2-xTB tight binding (tblite): seconds per molecule, its own fitted scale models"),
     Method("b3lyp", "B3LYP-D3(BJ)/6-31G(d)", DFT,
-           "B3LYP with D3(BJ) dispersion, 6-31G(d) basis (PySCF): minutes per molecule, closed shell only",
+           "B3LYP with D3(BJ) dispersion, 6-31G(d) basis (def2-SVP with its core potential past krypton; "
+           "PySCF): minutes per molecule, closed shell only",
            DFTSettings(functional="b3lyp", basis="6-31g*", dispersion="d3bj", grid_level=2)),
     # Two modern alternatives measured beside B3LYP (README "Levels of theory"). No scale models are
     # fitted for them (a fit needs their Hessians of the 82 reference molecules: hours on 2 cores),
