@@ -57,8 +57,6 @@ HEAVY_ATOM_Z = 10
 FINITE_DIFFERENCE_STEP_BOHR = 0.005
 
 
-
-
 def elements_beyond_krypton(numbers) -> list[str]:
     """Symbols (sorted, once each) of the elements computed with an effective core potential."""
     from ase.data import chemical_symbols
