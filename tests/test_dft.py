@@ -347,3 +347,22 @@ def test_iodine_with_an_effective_core_potential():
     apt = record.dipole_derivatives_e
     assert np.abs(apt - scf_dipole_differences(engine, x)).max() < 2e-3
     assert np.abs(apt.reshape(-1, 3, 3).sum(axis=0)).max() < 2e-3
+
+
+def test_reference_records_from_before_the_core_potential_setting_stay_current():
+    """The scale-model fit reuses cached records whose engine settings equal the current ones
+    (vibest.reference_records.computed_with): a B3LYP record stored before the setting for
+    elements past krypton existed stays current for ethanol, but an iodide's does not (its numbers
+    depend on the setting), and a record with the setting is current too."""
+    from types import SimpleNamespace
+
+    from vibest.reference_records import computed_with
+
+    options = CalculationOptions(engine=EngineSettings.for_method(METHODS["b3lyp"]))
+    old = options.to_dict()
+    del old["engine"]["dft"]["beyond_krypton_basis"]
+    ethanol, iodomethane = [6, 6, 8, 1, 1, 1, 1, 1, 1], [6, 53, 1, 1, 1]
+    assert computed_with(SimpleNamespace(settings=old, numbers=ethanol), options)
+    assert not computed_with(SimpleNamespace(settings=old, numbers=iodomethane), options)
+    assert computed_with(SimpleNamespace(settings=options.to_dict(), numbers=iodomethane), options)
+    assert computed_with(SimpleNamespace(settings=options.to_dict(), numbers=ethanol), options)
