@@ -127,22 +127,12 @@ def _claim_alive(host: str, pid: int, created: float, my_host: str, now: float) 
     return True
 
 
-def _rigid(canonical: str) -> bool:
-    """Whether a molecule has no rotor (one start conformer whatever the setting)."""
-    from rdkit import Chem
-
+def _rigid(mol) -> bool:
+    """Whether an RDKit molecule (None: unparsable) has no rotor (one start conformer whatever
+    the setting)."""
     from .structure import rotor_count
 
-    mol = Chem.MolFromSmiles(canonical)
     return mol is None or rotor_count(mol) == 0
-
-
-def _atomic_numbers(canonical: str) -> list[int]:
-    """Atomic numbers of a canonical SMILES's heavy atoms (none if it does not parse)."""
-    from rdkit import Chem
-
-    mol = Chem.MolFromSmiles(canonical)
-    return [] if mol is None else [a.GetAtomicNum() for a in mol.GetAtoms()]
 
 
 def _checksum(blob: bytes) -> str:
@@ -256,13 +246,16 @@ class RecordStore:
         (``canonical`` SMILES with a rotor): a rigid one has one start either way. The basis set
         of density-functional methods for elements past krypton is in the key only for molecules
         that have one, so adding that setting changed no other record's key."""
+        from rdkit import Chem
+
         opts = options.to_dict()
+        mol = None if canonical is None else Chem.MolFromSmiles(canonical)
         if opts.get("hessian_displacements") == "vibrational":
             del opts["hessian_displacements"]
-        if not opts.get("start_conformers") or (canonical is not None and _rigid(canonical)):
+        if not opts.get("start_conformers") or (canonical is not None and _rigid(mol)):
             opts.pop("start_conformers", None)
         if canonical is not None:
-            without_unused_dft_settings(opts, _atomic_numbers(canonical))
+            opts = without_unused_dft_settings(opts, [] if mol is None else [a.GetAtomicNum() for a in mol.GetAtoms()])
         return {"options": opts, "record_version": RECORD_VERSION, "calculation_version": CALCULATION_VERSION}
 
     def key(self, smiles: str, options: CalculationOptions) -> str:

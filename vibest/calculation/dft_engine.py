@@ -47,7 +47,7 @@ import numpy as np
 
 from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
-from .methods import MAX_ALL_ELECTRON_Z, DFTSettings
+from .methods import DFTSettings, elements_beyond_krypton
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -55,13 +55,6 @@ from .methods import MAX_ALL_ELECTRON_Z, DFTSettings
 HEAVY_ATOM_Z = 10
 #: Central-difference step (Bohr) of those rows, the tight-binding Hessian's step.
 FINITE_DIFFERENCE_STEP_BOHR = 0.005
-
-
-def elements_beyond_krypton(numbers) -> list[str]:
-    """Symbols (sorted, once each) of the elements computed with an effective core potential."""
-    from ase.data import chemical_symbols
-
-    return sorted({chemical_symbols[int(z)] for z in numbers if int(z) > MAX_ALL_ELECTRON_Z})
 
 
 def core_potential_note(numbers, dft: DFTSettings) -> str | None:

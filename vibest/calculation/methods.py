@@ -11,6 +11,7 @@ at that geometry: the intensities of the density functional at a fraction of its
 
 from __future__ import annotations
 
+import copy
 from dataclasses import asdict, dataclass
 
 from ..errors import InputError
@@ -61,12 +62,21 @@ class DFTSettings:
 MAX_ALL_ELECTRON_Z = 36
 
 
+def elements_beyond_krypton(atomic_numbers) -> list[str]:
+    """Symbols (sorted, once each) of the elements past krypton: those a density-functional
+    method computes with an effective core potential."""
+    from ase.data import chemical_symbols
+
+    return sorted({chemical_symbols[int(z)] for z in atomic_numbers if int(z) > MAX_ALL_ELECTRON_Z})
+
+
 def without_unused_dft_settings(options: dict, atomic_numbers) -> dict:
-    """``options`` (a CalculationOptions.to_dict(), changed in place and returned) without the
-    density-functional settings that cannot change this molecule's numbers: the basis for
-    elements past krypton when it has none (so adding that setting changed no other record's
-    store key, and cached records stay current)."""
-    if not any(int(z) > MAX_ALL_ELECTRON_Z for z in atomic_numbers):
+    """A copy of ``options`` (a CalculationOptions.to_dict()) without the density-functional
+    settings that cannot change this molecule's numbers: the basis for elements past krypton
+    when it has none (so adding that setting changed no other record's store key, and cached
+    records stay current)."""
+    options = copy.deepcopy(options)
+    if not elements_beyond_krypton(atomic_numbers):
         for engine in ("engine", "intensity_engine"):
             ((options.get(engine) or {}).get("dft") or {}).pop("beyond_krypton_basis", None)
     return options
