@@ -100,22 +100,45 @@ def test_a_clear_case_has_no_flags():
                                          ("gfn1-refine5-b3lyp", "B3LYP-D3(BJ)/6-31G(d)")])
 def test_calibration_refit_reproduces_the_shipped_model(method, name):
     """benchmarks/confidence.py --write fitted vibest/data/confidence[-gfn1].json on the features
-    table it wrote; refitting from that table gives the same coefficients, threshold and
-    held-out ECE, and the model holds for its own level of theory."""
+    table it wrote; refitting from that table chooses the same features and L2 penalty (lowest
+    held-out log loss) and gives the same coefficients, threshold and held-out ECE, and the model
+    holds for its own level of theory."""
     sys.path.insert(0, str(ROOT / "benchmarks"))
     import confidence as bench
 
     rows = bench.read_rows(bench.paths(method)[0])
     model = shipped_model(name)
     assert model.settings["method"] == name
-    features = bench.chosen_features(rows)  # the subset with the lowest held-out log loss
-    assert features == tuple(json.loads((ROOT / "vibest" / "data" / bench.paths(method)[1].name).read_text())["features"])
-    coef = bench.fit_rows(rows, features)
+    shipped = json.loads((ROOT / "vibest" / "data" / bench.paths(method)[1].name).read_text())
+    features, l2 = bench.chosen_settings(rows)
+    assert features == tuple(shipped["features"]) and l2 == pytest.approx(shipped["l2_penalty"])
+    coef = bench.fit_rows(rows, features, l2)
     assert coef == pytest.approx([model.intercept, model.score_weight, model.margin_weight, model.matched_weight],
                                  abs=1e-4)
     assert bench.poor_fit_threshold(rows) == pytest.approx(model.poor_fit_score, abs=1e-5)
-    p, y, _ = bench.cross_validated(rows, features)
+    p, y, _ = bench.cross_validated(rows, features, l2)
     assert expected_calibration_error(p, y) == pytest.approx(model.cross_validated_ece, abs=1e-3)
+
+
+def test_penalty_choice_prefers_the_lower_held_out_log_loss():
+    """On rows whose label follows the score exactly, with the scores far apart (separable), no
+    penalty is needed and the weakest one wins; on rows whose label is a coin toss independent of
+    the features, the strongest penalty wins (a weak one overfits the noise). Common practice, no
+    source."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import confidence as bench
+
+    rng = np.random.default_rng(3)
+
+    def rows(labels, scores):
+        return [{"spectrum": f"s{i}", "score": float(s), "margin": float(rng.uniform(0, 0.3)),
+                 "matched": float(rng.uniform()), "right": int(y)} for i, (y, s) in enumerate(zip(labels, scores))]
+
+    labels = rng.uniform(size=60) < 0.5
+    separable = rows(labels, np.where(labels, 0.9, 0.2) + rng.normal(0, 0.02, 60))
+    noise = rows(rng.uniform(size=60) < 0.5, rng.uniform(size=60))
+    assert bench.chosen_settings(separable)[1] == min(bench.PENALTIES)
+    assert bench.chosen_settings(noise)[1] == max(bench.PENALTIES)
 
 
 def test_logistic_fit_and_calibration_error_on_known_data():
