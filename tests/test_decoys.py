@@ -51,7 +51,27 @@ def test_count_limits_and_order_is_deterministic():
     assert make_decoys("CCCC(C)=O", count=3) == a[:3]
 
 
+def test_homologues_and_methyl_changes():
+    """Homologues one CH2 apart and methyl groups removed or put on a ring (common practice, no
+    source): methanol is ethanol's lower homologue; toluene has benzene without its methyl and
+    the three xylenes with one more; N-methylamphetamine loses its N-methyl to amphetamine."""
+    assert canon("CO") in {d.smiles for d in make_decoys("CCO")}
+    toluene = {d.smiles: d.reason for d in make_decoys("Cc1ccccc1")}
+    assert toluene[canon("c1ccccc1")] == "methyl removed"
+    assert {canon(x) for x in ("Cc1ccccc1C", "Cc1cccc(C)c1", "Cc1ccc(C)cc1")} <= set(toluene)
+    assert canon("CC(N)Cc1ccccc1") in {d.smiles for d in make_decoys("CC(Cc1ccccc1)NC")}
+    assert [d.smiles for d in make_decoys("c1ccccc1")] == [canon("Cc1ccccc1")]
+
+
+def test_no_decoy_is_a_peroxide_or_a_single_heavy_atom():
+    # removing the CH2 of dimethoxymethane would join two O atoms; methylamine without its methyl
+    # is ammonia: neither is a plausible alternative structure (common practice, no source)
+    assert all("OO" not in d.smiles for d in make_decoys("COCOC"))
+    for smiles in ("CN", "CO", "CC", "CCl"):
+        assert all(Chem.MolFromSmiles(d.smiles).GetNumHeavyAtoms() >= 2 for d in make_decoys(smiles))
+
+
 def test_a_molecule_without_substituents_has_no_decoys_and_bad_smiles_is_refused():
-    assert make_decoys("c1ccccc1") == []
+    assert make_decoys("C1CCCCC1") == [] and make_decoys("O=C=O") == []
     with pytest.raises(InputError):
         make_decoys("C1CC")

@@ -8,7 +8,8 @@ a synthesis could have given instead match it worse. This module makes such stru
   of the molecule (along a chain, around a ring: ortho/meta/para), e.g. 2-butanone -> butanal;
 * **functional-group changes**: keto/enol and allylic-alcohol tautomers (2-butanone ->
   3-buten-2-ol, but-2-en-2-ol), ketone -> enol ether (2-butanone -> ethyl vinyl ether),
-  alcohol <-> ether, acid <-> methyl ester, double bond moved along a chain, one CH2 more or less.
+  alcohol <-> ether, acid <-> methyl ester, double bond moved along a chain, one CH2 more or less,
+  a C- or N-methyl group removed, a methyl group added to an aromatic ring.
 
 Each decoy is a valid, sanitizable molecule, distinct from the intended structure and from every
 other decoy by canonical SMILES, and carries the reason it was made. The order is deterministic:
@@ -38,8 +39,16 @@ TRANSFORMS: tuple[tuple[str, str], ...] = (
     ("acid from methyl ester", "[C:1](=[O:2])[O;X2:3][CH3]>>[C:1](=[O:2])[O:3]"),
     ("double bond moved", "[C:1]=[C:2][C;!R;!H0:3]>>[C:1][C:2]=[C:3]"),
     ("one CH2 more", "[CH3;X4:1][!#1:2]>>[CH3]-[CH2:1][*:2]"),
-    ("one CH2 less", "[#6:1][CH2;X4;!R:2][#6:3]>>[#6:1][#6:3]"),
+    # a chain CH2 between a carbon and any heavy atom (ethanol -> methanol; never O-CH2-O -> O-O)
+    ("one CH2 less", "[#6:1][CH2;X4;!R:2][!#1:3]>>[*:1][*:3]"),
+    # a C- or N-methyl group removed (toluene -> benzene, acetone -> acetaldehyde, an N-methyl amine
+    # -> the amine); O-methyl is "acid from methyl ester"
+    ("methyl removed", "[CH3;X4][#6,#7;!$([CH3]):1]>>[*:1]"),
+    # a methyl group on an aromatic C-H (benzene -> toluene, toluene -> the xylenes)
+    ("methyl added to ring", "[cH:1]>>[c:1]C"),
 )
+#: A decoy has at least this many heavy atoms (methylamine's "methyl removed" is not ammonia).
+MIN_HEAVY_ATOMS = 2
 
 
 @dataclass(frozen=True)
@@ -156,6 +165,6 @@ def _transformed(mol: Chem.Mol) -> dict[str, str]:
         rxn = AllChem.ReactionFromSmarts(smarts)
         for products in rxn.RunReactants((mol,)):
             smi = _canonical(products[0])
-            if smi is not None:
+            if smi is not None and Chem.MolFromSmiles(smi).GetNumHeavyAtoms() >= MIN_HEAVY_ATOMS:
                 out.setdefault(smi, reason)
     return out
