@@ -55,12 +55,78 @@ def test_group_evidence_missing_alkyne_on_real_propylene_spectrum(measured_folde
     assert not any(e.against for e in own)
 
 
+def test_branch_maximum_offset_is_half_the_gerhard_dennison_separation():
+    # P-R maximum separation 2.3583 sqrt(B T) cm^-1 (Gerhard & Dennison 1933; Herzberg, Infrared
+    # and Raman Spectra, from memory); water's rotational constants 27.88, 14.51, 9.28 cm^-1
+    # (Herzberg, from memory), mean 17.2: maxima about 84 cm^-1 either side at 298 K
+    from vibest.gas_phase import branch_maximum_offset_cm1
+
+    assert 2 * branch_maximum_offset_cm1(1.0, 300.0) == pytest.approx(2.3583 * np.sqrt(300.0), rel=1e-3)
+    assert branch_maximum_offset_cm1(np.mean([27.88, 14.51, 9.28]), 298.15) == pytest.approx(84.5, abs=1.0)
+
+
+@pytest.mark.slow
+def test_rotational_lines_of_a_light_molecule_are_not_bands_of_groups_it_lacks(measured_folder):
+    """Gas-phase water resolves its bend's rotational lines from about 1400 to 1800 cm^-1 (common
+    practice, no source); the strongest of them, in the C=O and NO2 windows, are the bend's, not
+    a carbonyl or nitro group. Toluene's lines reach less than the tolerance, so nothing changes
+    for it."""
+    from vibest.evidence import DEFAULT_TOLERANCE_CM1, UNEXPLAINED, rotational_reach_cm1
+
+    water = load_spectrum(measured_folder / "water.jdx")
+    comparison = compare(prediction_of("O"), water)
+    assert rotational_reach_cm1(prediction_of("O"), comparison) > 150
+    evidence = group_evidence(prediction_of("O"), comparison)
+    assert all(e.status != UNEXPLAINED for e in evidence)
+    carbonyl = next(e for e in evidence if e.name == "C=O stretch")
+    assert "rotational line" in carbonyl.message
+    toluene = load_spectrum(measured_folder / "toluene.jdx")
+    assert rotational_reach_cm1(prediction_of("Cc1ccccc1"), compare(prediction_of("Cc1ccccc1"), toluene)) \
+        < DEFAULT_TOLERANCE_CM1
+    # a condensed-phase comparison has no rotational lines
+    assert rotational_reach_cm1(prediction_of("O"), compare(prediction_of("O"), water, gas_phase=False)) == 0.0
+
+
 def _synthetic(pred, shift_cm1=0.0, lo=400.0, hi=4000.0) -> MeasuredSpectrum:
     """A constructed 'measured' spectrum: the prediction's own curve, shifted (for flag tests only)."""
     x = np.arange(lo, hi, 1.0)
     comp_grid = pred.spectrum.wavenumbers_cm1
     y = np.interp(x - shift_cm1, comp_grid, pred.spectrum.absorbance_normalised)
     return MeasuredSpectrum(x, y, "absorbance", source="constructed")
+
+
+@pytest.mark.slow
+def test_overtones_and_methyl_stretches_are_not_read_as_groups_a_structure_lacks(measured_folder):
+    """Real gas-phase spectra: 1,3-butadiene's band near 1830 cm^-1 is the overtone of its =CH2
+    wag near 908 cm^-1, not a C=O; the xylenes' band near 2870 cm^-1 is a CH3 stretch, not an
+    aldehyde C-H, whose diagnostic band is near 2720 cm^-1 (common practice, no source)."""
+    from vibest.evidence import UNEXPLAINED
+
+    butadiene = load_spectrum(measured_folder / "butadiene.jdx")
+    evidence = group_evidence(prediction_of("C=CC=C"), compare(prediction_of("C=CC=C"), butadiene))
+    carbonyl = next(e for e in evidence if e.name == "C=O stretch")
+    assert carbonyl.status != UNEXPLAINED and "overtone" in carbonyl.message
+    xylene = load_spectrum(measured_folder / "p-xylene.jdx")
+    evidence = group_evidence(prediction_of("Cc1ccc(C)cc1"), compare(prediction_of("Cc1ccc(C)cc1"), xylene))
+    assert status(evidence, "aldehyde C-H stretch") != UNEXPLAINED
+
+
+def test_a_band_stronger_than_its_would_be_fundamental_is_not_an_overtone():
+    """Constructed: butadiene's own predicted spectrum plus a band at twice its strongest band's
+    position, twice as strong as that band. An overtone is weaker than its fundamental (common
+    practice, no source), so this band stays unexplained: a C=O the structure lacks."""
+    from vibest.evidence import UNEXPLAINED
+
+    pred = prediction_of("C=CC=C")
+    strongest = pred.bands[int(np.argmax(pred.intensities_km_mol))].wavenumber_cm1
+    base = _synthetic(pred)
+    x, y = base.wavenumbers_cm1, base.values
+    target = 2.0 * strongest
+    assert 1690 < target < 1870  # inside the C=O window, so the test means something
+    y = y + 2.0 * y.max() * (8.0 ** 2 / ((x - target) ** 2 + 8.0 ** 2))
+    measured = MeasuredSpectrum(x, y, "absorbance", source="constructed")
+    evidence = group_evidence(pred, compare(pred, measured, gas_phase=False))
+    assert status(evidence, "C=O stretch") == UNEXPLAINED
 
 
 def test_shift_at_bound_flag_on_a_constructed_case():

@@ -14,7 +14,9 @@ potential energy in that kind of bond, the strongest three of those above 2 % of
 band) are looked for in the measured spectrum within the tolerance of their positions (after
 the fitted shift); the vibration is seen when one of them is. For a vibration the structure
 lacks, the strongest measured peak inside its window is reported when it is strong (at least
-:data:`UNEXPLAINED_RELATIVE` of the spectrum's strongest peak) and no predicted band lies near it.
+:data:`UNEXPLAINED_RELATIVE` of the spectrum's strongest peak) and no predicted band lies near it
+(in a gas, for a light molecule, "near" includes the reach of the band's rotational lines: water's
+bend at 1595 cm^-1 has lines from 1400 to 1800 cm^-1).
 Everything reads the comparison's curves; nothing is computed again.
 """
 
@@ -37,6 +39,17 @@ UNEXPLAINED_RELATIVE = 0.15
 ABSENT_RELATIVE = 0.03
 #: Half-width (cm^-1) around a predicted position where the measured band is looked for.
 DEFAULT_TOLERANCE_CM1 = 30.0
+#: In a gas, a band's rotational lines reach this many branch-maximum offsets s (vibest.gas_phase)
+#: from its centre with at least 18 % of the branch maximum (envelope |x| exp(-x^2/2s^2) at 2.5 s).
+ROTATIONAL_REACH = 2.5
+#: A predicted band at least this strong (of the strongest predicted) can explain a measured one
+#: through its rotational lines.
+EXPLAINING_RELATIVE = 0.1
+#: A predicted band at least this strong can explain a measured band near twice its wavenumber
+#: as its overtone, when the measured band there is weaker than the one at the fundamental
+#: (overtones of strong bands, e.g. the =CH2 wag of vinyl groups near 910 cm^-1 at 1820-1830
+#: cm^-1, inside the C=O window; common practice).
+OVERTONE_RELATIVE = 0.3
 
 SEEN, WEAK, MISSING, NOT_EXPECTED, UNEXPLAINED, ABSENT, OUT_OF_RANGE = (
     "seen", "weaker than predicted", "missing", "predicted weak", "unexplained band", "absent", "not covered")
@@ -115,7 +128,10 @@ DIAGNOSTICS: tuple[Diagnostic, ...] = (
                "an alkene or aromatic C-H"),
     Diagnostic("aliphatic C-H stretch", (2840.0, 3000.0), _xh(6, lambda c: c.GetHybridization().name == "SP3"),
                "an aliphatic C-H"),
-    Diagnostic("aldehyde C-H stretch", (2680.0, 2880.0), _xh(6, _carbonyl_carbon), "an aldehyde C-H"),
+    # against a structure without it only the doublet's lower band near 2720 cm^-1 is read: the
+    # upper one near 2820 sits among CH3 symmetric stretches (2870 in the xylenes; common practice)
+    Diagnostic("aldehyde C-H stretch", (2680.0, 2880.0), _xh(6, _carbonyl_carbon), "an aldehyde C-H",
+               lacks_window_cm1=(2680.0, 2780.0)),
     Diagnostic("S-H stretch", (2540.0, 2620.0), _xh(16), "an S-H (thiol)"),
     Diagnostic("C\u2261N stretch", (2200.0, 2270.0), _heavy(6, 7, 3.0), "a nitrile"),
     Diagnostic("C\u2261C stretch", (2100.0, 2270.0), _heavy(6, 6, 3.0), "an alkyne"),
@@ -206,6 +222,10 @@ def group_evidence(prediction, comparison, tolerance_cm1: float = DEFAULT_TOLERA
     carried = {diag.name: [k for k, p in enumerate(comp.primitives) if p.kind == STRETCH and diag.bond(mol, *p.atoms)]
                for diag in DIAGNOSTICS}
     moved = _condensed_shifts(prediction, comparison)
+    reach = rotational_reach_cm1(prediction, comparison)
+    rel = prediction.intensities_km_mol / strongest
+    bands = [(b.wavenumber_cm1 * scale + shift, float(r)) for b, r in zip(prediction.bands, rel)
+             if r >= EXPLAINING_RELATIVE]
     out = []
     for diag in DIAGNOSTICS:
         if carried[diag.name]:
@@ -213,8 +233,33 @@ def group_evidence(prediction, comparison, tolerance_cm1: float = DEFAULT_TOLERA
                                 tolerance_cm1, moved))
         else:
             others = [name for name in diag.explained_by if carried.get(name)]
-            out.append(_absent(diag, g, measured, predicted, lo, hi, tolerance_cm1, others))
+            out.append(_absent(diag, g, measured, predicted, lo, hi, tolerance_cm1, others, bands, reach))
     return out
+
+
+def _overtone_of(peak, bands, g, measured, tol) -> float | None:
+    """The measured fundamental (cm^-1) whose overtone may be the measured ``peak``: the band
+    measured within the tolerance of a predicted band at least :data:`OVERTONE_RELATIVE` strong,
+    stronger than ``peak``, and at half its position within half the tolerance (overtones sit
+    within a few per cent of twice their fundamental); else None."""
+    for position, rel in sorted(bands, key=lambda b: -b[1]):
+        if rel < OVERTONE_RELATIVE or abs(2.0 * position - peak[0]) > 4.0 * tol:
+            continue
+        fundamental = _peak_near(g, measured, position - tol, position + tol)
+        if fundamental is not None and fundamental[1] > peak[1] and abs(2.0 * fundamental[0] - peak[0]) <= tol:
+            return fundamental[0]
+    return None
+
+
+def rotational_reach_cm1(prediction, comparison) -> float:
+    """How far (cm^-1) the rotational lines of a predicted band reach in the compared sample:
+    :data:`ROTATIONAL_REACH` times the branch-maximum offset for a gas, 0 for a condensed phase.
+    About 20 cm^-1 for toluene, 200 for water, whose lines a measured gas spectrum resolves."""
+    if not comparison.settings.get("gas_phase"):
+        return 0.0
+    from .gas_phase import band_contour_inputs, branch_maximum_offset_cm1
+
+    return ROTATIONAL_REACH * branch_maximum_offset_cm1(band_contour_inputs(prediction)[0])
 
 
 def _condensed_shifts(prediction, comparison) -> tuple[np.ndarray, np.ndarray]:
@@ -272,7 +317,7 @@ def _present(diag, prediction, stretches, g, measured, lo, hi, shift, scale, str
                          measured_cm1=peak[0], measured_relative=peak[1], **common)
 
 
-def _absent(diag, g, measured, predicted, lo, hi, tol, explained_by=()) -> GroupEvidence:
+def _absent(diag, g, measured, predicted, lo, hi, tol, explained_by=(), bands=(), reach=0.0) -> GroupEvidence:
     wlo, whi = diag.lacks_window_cm1 or diag.window_cm1
     if whi < lo or wlo > hi:
         return GroupEvidence(diag.name, False, OUT_OF_RANGE, f"{diag.name}: window {wlo:.0f}-{whi:.0f} cm^-1 "
@@ -291,6 +336,18 @@ def _absent(diag, g, measured, predicted, lo, hi, tol, explained_by=()) -> Group
     if predicted[near].max(initial=0.0) >= 0.5 * peak[1]:
         return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 is explained "
                              "by a predicted band of the structure", measured_cm1=peak[0], measured_relative=peak[1])
+    overtone = _overtone_of(peak, bands, g, measured, tol)
+    if overtone is not None:
+        return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 may be the "
+                             f"overtone of the stronger measured band at {overtone:.0f} cm^-1, a predicted fundamental", measured_cm1=peak[0], measured_relative=peak[1])
+    if reach > tol:  # a light molecule in a gas: resolved rotational lines far from the band centre
+        near_bands = [p for p, _ in bands if abs(p - peak[0]) <= reach]
+        if near_bands:
+            centre = min(near_bands, key=lambda p: abs(p - peak[0]))
+            return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 may be a "
+                                 f"rotational line of the predicted band at {centre:.0f} cm^-1 (in a gas this "
+                                 f"molecule's lines reach +-{reach:.0f} cm^-1)",
+                                 measured_cm1=peak[0], measured_relative=peak[1])
     return GroupEvidence(diag.name, False, UNEXPLAINED, f"strong band at {peak[0]:.0f} cm^-1 ({peak[1]:.0%} of the "
                          f"strongest) that the structure does not explain: {diag.lacks_hint} it lacks?",
                          measured_cm1=peak[0], measured_relative=peak[1])

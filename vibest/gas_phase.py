@@ -68,10 +68,16 @@ def effective_b_cm1(numbers, positions_angstrom, masses_amu=None) -> float:
     return float(finite.mean()) if len(finite) else 0.0
 
 
+def branch_maximum_offset_cm1(b_cm1: float, temperature_K: float = DEFAULT_TEMPERATURE_K) -> float:
+    """s = sqrt(2 B kT / hc) (cm^-1): where the P and R envelopes peak, either side of the centre
+    (half the Gerhard-Dennison P-R separation)."""
+    return float(np.sqrt(2.0 * max(b_cm1, 0.0) * _KT_HC_PER_K * temperature_K))
+
+
 def branch_profile(offsets_cm1, b_cm1: float, temperature_K: float = DEFAULT_TEMPERATURE_K) -> np.ndarray:
     """P+R envelope |x| exp(-x^2/2s^2), unit area over ``offsets_cm1`` (uniform grid)."""
     x = np.asarray(offsets_cm1, dtype=float)
-    s2 = 2.0 * b_cm1 * _KT_HC_PER_K * temperature_K
+    s2 = branch_maximum_offset_cm1(b_cm1, temperature_K) ** 2
     e = np.abs(x) * np.exp(-x ** 2 / (2.0 * s2))
     area = e.sum() * (x[1] - x[0]) if len(x) > 1 else 0.0
     return e / area if area > 0 else e

@@ -376,7 +376,9 @@ def verdict_report(verdict) -> str:
     if verdict.assessment.confidence is None and verdict.assessment.note:
         lines.append(f"  (no calibrated confidence: {verdict.assessment.note})")
     lines.append("")
-    lines.append(f"ranking ({len(verdict.decoys)} decoys: isomers and functional-group changes of the intended structure):")
+    n = len(verdict.decoys)
+    lines.append(f"ranking ({n} decoy{'' if n == 1 else 's'}: isomers and functional-group changes of the intended "
+                 "structure):")
     table = ranking_table(verdict.ranking).splitlines()
     lines += [line for line in table if not line.startswith("# caution")]
     lines.append("")

@@ -139,8 +139,8 @@ def _conclude(intended: Candidate, ranking: Ranking, assessment: Assessment,
     conf_text = f"confidence {conf:.2f}" if conf is not None else "no calibrated confidence"
     flags = [f.message for f in assessment.flags]
     if first.candidate == intended:
-        head = (f"{intended.name} ranks first of {len(scored)} candidates (score {mine.score:.3f}, "
-                f"{conf_text})")
+        plural = "" if len(scored) == 1 else "s"
+        head = f"{intended.name} ranks first of {len(scored)} candidate{plural} (score {mine.score:.3f}, {conf_text})"
         if conf is not None and conf >= LOW_CONFIDENCE and not flags and not against:
             seen = [e.name for e in evidence if e.in_structure and e.status == "seen"]
             support = f"; bands seen: {', '.join(seen)}" if seen else ""
