@@ -59,7 +59,8 @@ def test_homologues_and_methyl_changes():
     toluene = {d.smiles: d.reason for d in make_decoys("Cc1ccccc1")}
     assert toluene[canon("c1ccccc1")] == "methyl removed"
     assert {canon(x) for x in ("Cc1ccccc1C", "Cc1cccc(C)c1", "Cc1ccc(C)cc1")} <= set(toluene)
-    assert canon("CC(N)Cc1ccccc1") in {d.smiles for d in make_decoys("CC(Cc1ccccc1)NC")}
+    # among the default 8, though it has 13 positional isomers (the two kinds alternate)
+    assert canon("CC(N)Cc1ccccc1") in {d.smiles for d in make_decoys("CC(Cc1ccccc1)NC", count=8)}
     assert [d.smiles for d in make_decoys("c1ccccc1")] == [canon("Cc1ccccc1")]
 
 

@@ -13,7 +13,9 @@ a synthesis could have given instead match it worse. This module makes such stru
 
 Each decoy is a valid, sanitizable molecule, distinct from the intended structure and from every
 other decoy by canonical SMILES, and carries the reason it was made. The order is deterministic:
-positional isomers first, then functional-group changes, each sorted by canonical SMILES.
+positional isomers and functional-group changes alternate, each kind sorted by canonical SMILES,
+so that the first few decoys (the default count) hold both kinds even for a molecule with many
+positional isomers (N-methylamphetamine: amphetamine is the 2nd).
 """
 
 from __future__ import annotations
@@ -73,14 +75,22 @@ def make_decoys(smiles: str, count: int | None = None) -> list[Decoy]:
     out: list[Decoy] = []
     RDLogger.DisableLog("rdApp.*")
     try:
-        for group in (_positional_isomers(mol), _transformed(mol)):
-            for smi, reason in sorted(group.items()):
-                if smi not in seen:
-                    seen.add(smi)
-                    out.append(Decoy(smi, reason))
+        groups = [sorted(g.items()) for g in (_positional_isomers(mol), _transformed(mol))]
+        for smi, reason in _alternating(*groups):
+            if smi not in seen:
+                seen.add(smi)
+                out.append(Decoy(smi, reason))
     finally:
         RDLogger.EnableLog("rdApp.*")
     return out if count is None else out[: max(0, int(count))]
+
+
+def _alternating(first: list, second: list) -> list:
+    """first[0], second[0], first[1], second[1], ... then the rest of the longer list."""
+    out = []
+    for k in range(max(len(first), len(second))):
+        out += first[k:k + 1] + second[k:k + 1]
+    return out
 
 
 def _canonical(mol: Chem.Mol) -> str | None:
