@@ -76,3 +76,23 @@ def test_a_molecule_without_substituents_has_no_decoys_and_bad_smiles_is_refused
     assert make_decoys("C1CCCCC1") == [] and make_decoys("O=C=O") == []
     with pytest.raises(InputError):
         make_decoys("C1CC")
+
+
+def test_every_decoy_of_the_measured_set_is_valid_distinct_and_not_the_input():
+    """For each molecule of the real-spectrum set (benchmarks/data/measured_set.csv) and a few
+    with many sites: every decoy parses, is sanitizable, differs from the intended structure and
+    from the others, has at least two heavy atoms, and a count gives a prefix of the full list."""
+    import csv
+    from pathlib import Path
+
+    table = Path(__file__).resolve().parents[1] / "benchmarks" / "data" / "measured_set.csv"
+    rows = csv.DictReader(line for line in table.read_text().splitlines() if line and not line.startswith("#"))
+    smiles = [r["smiles"] for r in rows] + ["CC(Cc1ccccc1)NC", "OC(=O)c1ccccc1O", "CCOC(=O)C=C", "C1CCC(O)CC1"]
+    for smi in smiles:
+        decoys = make_decoys(smi)
+        found = [d.smiles for d in decoys]
+        assert canon(smi) not in found and len(set(found)) == len(found), smi
+        for d in found:
+            mol = Chem.MolFromSmiles(d)
+            assert mol is not None and mol.GetNumHeavyAtoms() >= 2 and canon(d) == d, (smi, d)
+        assert make_decoys(smi, count=3) == decoys[:3]
