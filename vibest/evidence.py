@@ -251,6 +251,24 @@ def _overtone_of(peak, bands, g, measured, tol) -> float | None:
     return None
 
 
+def _something_it_has(peak, bands, g, measured, tol, reach) -> str | None:
+    """What of the structure's own a strong measured ``peak`` may be (words), or None: the
+    overtone of a stronger measured fundamental, or in a gas a rotational line of a band within
+    ``reach`` that is relatively at least half as strong as the peak."""
+    overtone = _overtone_of(peak, bands, g, measured, tol)
+    if overtone is not None:
+        return f"the overtone of the stronger measured band at {overtone:.0f} cm^-1, a predicted fundamental"
+    if reach > tol:  # a light molecule in a gas: resolved rotational lines far from the band centre
+        # a band at least half as strong (of the strongest predicted) as the peak (of the strongest
+        # measured), as the curve test above asks of the predicted curve
+        near = [p for p, rel in bands if abs(p - peak[0]) <= reach and rel >= 0.5 * peak[1]]
+        if near:
+            centre = min(near, key=lambda p: abs(p - peak[0]))
+            return (f"a rotational line of the predicted band at {centre:.0f} cm^-1 (in a gas this molecule's "
+                    f"lines reach +-{reach:.0f} cm^-1)")
+    return None
+
+
 def rotational_reach_cm1(prediction, comparison) -> float:
     """How far (cm^-1) the rotational lines of a predicted band reach in the compared sample:
     :data:`ROTATIONAL_REACH` times the branch-maximum offset for a gas, 0 for a condensed phase.
@@ -336,18 +354,10 @@ def _absent(diag, g, measured, predicted, lo, hi, tol, explained_by=(), bands=()
     if predicted[near].max(initial=0.0) >= 0.5 * peak[1]:
         return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 is explained "
                              "by a predicted band of the structure", measured_cm1=peak[0], measured_relative=peak[1])
-    overtone = _overtone_of(peak, bands, g, measured, tol)
-    if overtone is not None:
-        return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 may be the "
-                             f"overtone of the stronger measured band at {overtone:.0f} cm^-1, a predicted fundamental", measured_cm1=peak[0], measured_relative=peak[1])
-    if reach > tol:  # a light molecule in a gas: resolved rotational lines far from the band centre
-        near_bands = [p for p, _ in bands if abs(p - peak[0]) <= reach]
-        if near_bands:
-            centre = min(near_bands, key=lambda p: abs(p - peak[0]))
-            return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 may be a "
-                                 f"rotational line of the predicted band at {centre:.0f} cm^-1 (in a gas this "
-                                 f"molecule's lines reach +-{reach:.0f} cm^-1)",
-                                 measured_cm1=peak[0], measured_relative=peak[1])
+    other = _something_it_has(peak, bands, g, measured, tol, reach)
+    if other is not None:
+        return GroupEvidence(diag.name, False, ABSENT, f"{diag.name}: the band at {peak[0]:.0f} cm^-1 may be {other}",
+                             measured_cm1=peak[0], measured_relative=peak[1])
     return GroupEvidence(diag.name, False, UNEXPLAINED, f"strong band at {peak[0]:.0f} cm^-1 ({peak[1]:.0%} of the "
                          f"strongest) that the structure does not explain: {diag.lacks_hint} it lacks?",
                          measured_cm1=peak[0], measured_relative=peak[1])
