@@ -249,15 +249,12 @@ def chosen_settings(rows: list[dict]) -> tuple[tuple[str, ...], float]:
 def nested_cross_validated(rows: list[dict]) -> tuple[np.ndarray, np.ndarray]:
     """Held-out probabilities with the settings chosen without the held-out spectrum too: for each
     spectrum, :func:`chosen_settings` on the others, a fit on the others, its rows predicted."""
-    p = np.zeros(len(rows))
-    for name in sorted({r["spectrum"] for r in rows}):
-        train = [r for r in rows if r["spectrum"] != name]
+    def fit(train):
         features, l2 = chosen_settings(train)
-        coef = fit_rows(train, features, l2)
-        for k, r in enumerate(rows):
-            if r["spectrum"] == name:
-                p[k] = probability(coef, r)
-    return p, np.array([r["right"] for r in rows])
+        return fit_rows(train, features, l2), poor_fit_threshold(train)
+
+    p, y, _ = _leave_one_spectrum_out(rows, fit)
+    return p, y
 
 
 def fit_rows(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: float = PENALTIES[0]) -> np.ndarray:
@@ -285,13 +282,16 @@ def cross_validated(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES,
                     l2: float = PENALTIES[0]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Held-out probabilities by leave-one-spectrum-out (every ranking of a spectrum held out
     together), with the poor-fit threshold also fitted without it; returns (p, labels, poor)."""
-    spectra = sorted({r["spectrum"] for r in rows})
+    return _leave_one_spectrum_out(rows, lambda train: (fit_rows(train, features, l2), poor_fit_threshold(train)))
+
+
+def _leave_one_spectrum_out(rows: list[dict], fit) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """For each spectrum, ``fit(rows of the others)`` -> (coefficients, poor-fit threshold), and
+    its own rows predicted with them; returns (p, labels, poor)."""
     p = np.zeros(len(rows))
     poor = np.zeros(len(rows), dtype=bool)
-    for name in spectra:
-        train = [r for r in rows if r["spectrum"] != name]
-        coef = fit_rows(train, features, l2)
-        threshold = poor_fit_threshold(train)
+    for name in sorted({r["spectrum"] for r in rows}):
+        coef, threshold = fit([r for r in rows if r["spectrum"] != name])
         for k, r in enumerate(rows):
             if r["spectrum"] == name:
                 p[k] = probability(coef, r)
@@ -335,7 +335,8 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: floa
           f"{flagged[wrong].mean():.0%} of {wrong.sum()}   (target >= 80 %)")
     print(f"right first candidates with confidence >= {LOW_CONFIDENCE} (and no poor-fit flag): "
           f"{(~flagged[right]).mean():.0%} of {right.sum()}   (target >= 80 %)")
-    return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y), "wrong_flagged": float(flagged[wrong].mean()), "right_confident": float((~flagged[right]).mean())}
+    return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y),
+            "wrong_flagged": float(flagged[wrong].mean()), "right_confident": float((~flagged[right]).mean())}
 
 
 def main() -> None:

@@ -174,7 +174,9 @@ def _transformed(mol: Chem.Mol) -> dict[str, str]:
     for reason, smarts in TRANSFORMS:
         rxn = AllChem.ReactionFromSmarts(smarts)
         for products in rxn.RunReactants((mol,)):
+            if products[0].GetNumHeavyAtoms() < MIN_HEAVY_ATOMS:
+                continue
             smi = _canonical(products[0])
-            if smi is not None and Chem.MolFromSmiles(smi).GetNumHeavyAtoms() >= MIN_HEAVY_ATOMS:
+            if smi is not None:
                 out.setdefault(smi, reason)
     return out
