@@ -9,9 +9,13 @@ vibest.calculation.dft_engine.COST_MODEL uses to refuse hopeless requests. Time 
 machine: other work running beside it can change the figures by 2x.
 
     python benchmarks/dft_cost.py [--quick] [--tiers intensities,full] [--intensity-methods b3lyp,r2scan]
+                                  [--only methyl] [--both-responses]
 
 ``--intensity-methods`` times the intensities tier of other density-functional methods too
 (gfn2+KEY), side by side in the same run; the full tier is B3LYP's (the only one with scale models).
+``--only TEXT`` keeps the molecules whose name contains TEXT. ``--both-responses`` runs every
+calculation twice, side by side: with vibest's orbital-basis response in the coupled-perturbed
+equations (vibest.calculation.orbital_response, the default) and with PySCF's own.
 """
 
 from __future__ import annotations
@@ -21,8 +25,10 @@ import time
 
 import numpy as np
 
+import vibest.calculation.dft_engine as dft_engine
 from vibest.calculation.driver import calculation_options, compute_record
 from vibest.calculation.hessian import default_workers
+from vibest.calculation.orbital_response import orbital_response
 from vibest.structure import build_molecule
 
 MOLECULES = [
@@ -37,7 +43,9 @@ MOLECULES = [
 ]
 
 
-def run(smiles: str, level: str) -> dict:
+def run(smiles: str, level: str, response: str = "orbital") -> dict:
+    """Time one record; ``response``: "orbital" (vibest's, the default) or "pyscf"."""
+    dft_engine.orbital_response = orbital_response if response == "orbital" else (lambda mf: None)
     mol = build_molecule(smiles)
     options = calculation_options(level, allow_long=True)
     t0 = time.perf_counter()
@@ -62,25 +70,32 @@ def main() -> None:
     ap.add_argument("--quick", action="store_true", help="the four smallest molecules only")
     ap.add_argument("--tiers", default="intensities,full")
     ap.add_argument("--intensity-methods", default="b3lyp", help="density-functional methods of the intensities tier")
+    ap.add_argument("--only", default="", help="the molecules whose name contains this text")
+    ap.add_argument("--both-responses", action="store_true",
+                    help="time each calculation with vibest's orbital-basis response and with PySCF's, side by side")
     args = ap.parse_args()
     levels = {"full": ["b3lyp"], "intensities": [f"gfn2+{m.strip()}" for m in args.intensity_methods.split(",")]}
-    runs = [level for t in args.tiers.split(",") for level in levels[t.strip()]]
-    molecules = MOLECULES[:4] if args.quick else MOLECULES
+    responses = ["orbital", "pyscf"] if args.both_responses else ["orbital"]
+    runs = [(level, how) for t in args.tiers.split(",") for level in levels[t.strip()] for how in responses]
+    molecules = [m for m in (MOLECULES[:4] if args.quick else MOLECULES) if args.only in m[0]]
     print(f"{default_workers()} cores; full tier B3LYP-D3(BJ)/6-31G(d) (grid level 2); intensities tier gfn2+METHOD")
-    print(f"{'molecule':<42} {'level':<12} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
+    print(f"{'molecule':<42} {'level':<20} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
           f"{'intens. s':>9} {'total s':>8}")
-    points: dict[str, list] = {level: [] for level in runs}
+    points: dict[tuple[str, str], list] = {run_: [] for run_ in runs}
     for name, smiles in molecules:
-        for level in runs:
-            r = run(smiles, level)
-            points[level].append((r["basis"], r["seconds"]))
-            print(f"{name:<42} {level:<12} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
+        for level, how in runs:
+            r = run(smiles, level, how)
+            points[(level, how)].append((r["basis"], r["seconds"]))
+            label = level + ("" if len(responses) == 1 else f" ({how})")
+            print(f"{name:<42} {label:<20} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
                   f"{r['intensity_s']:9.1f} {r['seconds']:8.1f}" + ("" if r["converged"] else "  (not converged)"),
                   flush=True)
     print("\nfitted seconds = a * (basis functions / 100) ** b on this machine:")
-    for level, pts in points.items():
-        a, b = fit([p for p in pts if p[0] >= 30])
-        print(f"  {level:<12} a = {a:8.1f} s, b = {b:4.2f}")
+    for (level, how), pts in points.items():
+        pts = [p for p in pts if p[0] >= 30]
+        if len(pts) >= 2:
+            a, b = fit(pts)
+            print(f"  {level + ('' if len(responses) == 1 else f' ({how})'):<20} a = {a:8.1f} s, b = {b:4.2f}")
 
 
 if __name__ == "__main__":

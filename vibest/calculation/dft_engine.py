@@ -48,6 +48,7 @@ import numpy as np
 from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
 from .methods import DFTSettings, elements_beyond_krypton
+from .orbital_response import orbital_response
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -178,7 +179,8 @@ class PySCFEngine(Engine):
                 say("Fock derivatives")
                 h1ao = hobj.make_h1(mo_c, mo_o, None, atoms)
                 say("coupled-perturbed equations (nuclear displacements)")
-                mo1, mo_e1 = hobj.solve_mo1(mo_e, mo_c, mo_o, h1ao, None, atoms, self.resources.memory_mb)
+                fx = orbital_response(mf)  # None: PySCF's own response
+                mo1, mo_e1 = hobj.solve_mo1(mo_e, mo_c, mo_o, h1ao, fx, atoms, self.resources.memory_mb)
                 say("Hessian assembly")
                 de2 = hobj.hess_elec(mo_e, mo_c, mo_o, mo1=mo1, mo_e1=mo_e1, h1ao=h1ao, atmlst=atoms,
                                      max_memory=self.resources.memory_mb)
@@ -186,7 +188,7 @@ class PySCFEngine(Engine):
                 if mf.do_disp():
                     de2 = de2 + hobj.get_dispersion()
                 say("coupled-perturbed equations (electric field)")
-                apt = field_dipole_derivatives(mf, h1ao)
+                apt = field_dipole_derivatives(mf, h1ao, fx)
             except Exception as exc:
                 raise CalculationError(f"{self.settings.method} Hessian failed: {exc}") from None
             n = self.mol.natm
@@ -252,7 +254,7 @@ class PySCFEngine(Engine):
                 h1ao = mf.Hessian().make_h1(mf.mo_coeff, mf.mo_occ, None, range(self.mol.natm))
                 if progress:
                     progress("coupled-perturbed equations (electric field)", "")
-                apt = field_dipole_derivatives(mf, h1ao)
+                apt = field_dipole_derivatives(mf, h1ao, orbital_response(mf))
             except Exception as exc:
                 raise CalculationError(f"{self.settings.method} dipole derivatives failed: {exc}") from None
         rows = self.heavy_atom_rows(positions_bohr, progress, gradients=False)
@@ -384,10 +386,18 @@ def _dipole_integrals(mol) -> np.ndarray:
         return mol.intor_symmetric("int1e_r", comp=3)
 
 
-def field_dipole_derivatives(mf, h1ao) -> np.ndarray:
+def pyscf_response(mf):
+    """PySCF's own response in the orbital basis (the reference of :mod:`.orbital_response`)."""
+    from pyscf.hessian import rhf as rhf_hessian
+
+    return rhf_hessian.gen_vind(mf, mf.mo_coeff, mf.mo_occ)
+
+
+def field_dipole_derivatives(mf, h1ao, fx=None) -> np.ndarray:
     """Atomic polar tensors (3N, 3), e, of a converged closed-shell SCF ``mf`` from the response
     to an electric field (module docstring). ``h1ao``: per atom, the skeleton Fock derivatives
-    (3, nao, nao) as PySCF's ``make_h1`` gives them."""
+    (3, nao, nao) as PySCF's ``make_h1`` gives them. ``fx``: the response in the orbital basis
+    (:func:`vibest.calculation.orbital_response.orbital_response`; None: PySCF's)."""
     from pyscf.scf import cphf
 
     mol = mf.mol
@@ -397,22 +407,23 @@ def field_dipole_derivatives(mf, h1ao) -> np.ndarray:
     c_occ, c_vir = mo_c[:, occ], mo_c[:, vir]
     e_occ = mo_e[occ]
     r = _dipole_integrals(mol)  # (3, nao, nao)
-    vresp = mf.gen_response(mo_c, mo_o, hermi=1)
+    fx = fx or pyscf_response(mf)
 
     def response_density(u):  # u: (k, nvir, nocc) -> (k, nao, nao), factor 2 for double occupancy
         d = np.einsum("pa,kai,qi->kpq", c_vir, u, c_occ) * 2.0
         return d + d.transpose(0, 2, 1)
 
-    def fvind(u):
+    def response(u):  # u: (k, nvir, nocc) -> the response's (k, nmo, nocc) in the orbital basis
         u = u.reshape(-1, c_vir.shape[1], c_occ.shape[1])
-        return np.einsum("pa,kpq,qi->kai", c_vir, vresp(response_density(u)), c_occ)
+        x = np.zeros((len(u), mo_c.shape[1], c_occ.shape[1]))
+        x[:, vir] = u
+        return fx(x)
 
     h1vo = np.einsum("pa,kpq,qi->kai", c_vir, r, c_occ)
-    u, _ = cphf.solve(fvind, mo_e, mo_o, h1vo, None, max_cycle=100, tol=1e-10)
+    u, _ = cphf.solve(lambda u: response(u)[:, vir], mo_e, mo_o, h1vo, None, max_cycle=100, tol=1e-10)
     u = u.reshape(3, c_vir.shape[1], c_occ.shape[1])
     d1 = response_density(u)  # dD/dF_a
-    v1 = vresp(d1)
-    e1 = np.einsum("pi,kpq,qj->kij", c_occ, r + v1, c_occ)  # occupied block of dF/dF_a
+    e1 = np.einsum("pi,kpq,qj->kij", c_occ, r, c_occ) + response(u)[:, occ]  # occupied block of dF/dF_a
     cu = np.einsum("pa,kai->kpi", c_vir, u)
     w1 = 2.0 * (np.einsum("pi,kij,qj->kpq", c_occ, e1, c_occ) + np.einsum("kpi,i,qi->kpq", cu, e_occ, c_occ))
     w1 = w1 + 2.0 * np.einsum("pi,i,kqi->kpq", c_occ, e_occ, cu)
