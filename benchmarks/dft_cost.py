@@ -82,12 +82,15 @@ def main() -> None:
     print(f"{'molecule':<42} {'level':<20} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
           f"{'intens. s':>9} {'total s':>8}")
     points: dict[tuple[str, str], list] = {run_: [] for run_ in runs}
+
+    def label(level: str, how: str) -> str:
+        return level + ("" if len(responses) == 1 else f" ({how})")
+
     for name, smiles in molecules:
         for level, how in runs:
             r = run(smiles, level, how)
             points[(level, how)].append((r["basis"], r["seconds"]))
-            label = level + ("" if len(responses) == 1 else f" ({how})")
-            print(f"{name:<42} {label:<20} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
+            print(f"{name:<42} {label(level, how):<20} {r['atoms']:>5} {r['basis']:>5} {r['gradients']:>5} {r['hessian_s']:9.1f} "
                   f"{r['intensity_s']:9.1f} {r['seconds']:8.1f}" + ("" if r["converged"] else "  (not converged)"),
                   flush=True)
     print("\nfitted seconds = a * (basis functions / 100) ** b on this machine:")
@@ -95,7 +98,7 @@ def main() -> None:
         pts = [p for p in pts if p[0] >= 30]
         if len(pts) >= 2:
             a, b = fit(pts)
-            print(f"  {level + ('' if len(responses) == 1 else f' ({how})'):<20} a = {a:8.1f} s, b = {b:4.2f}")
+            print(f"  {label(level, how):<20} a = {a:8.1f} s, b = {b:4.2f}")
 
 
 if __name__ == "__main__":

@@ -9,8 +9,7 @@ pyscf = pytest.importorskip("pyscf")
 
 from pyscf import dft, gto  # noqa: E402
 
-from vibest.calculation.dft_engine import pyscf_response  # noqa: E402
-from vibest.calculation.orbital_response import MIN_PERTURBATIONS, orbital_response  # noqa: E402
+from vibest.calculation.orbital_response import MIN_PERTURBATIONS, orbital_response, pyscf_response  # noqa: E402
 
 
 def _scf(xc: str, atom: str = "O 0 0 0.12; H 0 0.76 -0.47; H 0 -0.76 -0.47", basis: str = "6-31g*"):

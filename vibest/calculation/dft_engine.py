@@ -48,7 +48,7 @@ import numpy as np
 from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
 from .methods import DFTSettings, elements_beyond_krypton
-from .orbital_response import orbital_response
+from .orbital_response import orbital_response, pyscf_response
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -384,13 +384,6 @@ def _dipole(mf) -> np.ndarray:
 def _dipole_integrals(mol) -> np.ndarray:
     with mol.with_common_orig((0.0, 0.0, 0.0)):
         return mol.intor_symmetric("int1e_r", comp=3)
-
-
-def pyscf_response(mf):
-    """PySCF's own response in the orbital basis (the reference of :mod:`.orbital_response`)."""
-    from pyscf.hessian import rhf as rhf_hessian
-
-    return rhf_hessian.gen_vind(mf, mf.mo_coeff, mf.mo_occ)
 
 
 def field_dipole_derivatives(mf, h1ao, fx=None) -> np.ndarray:

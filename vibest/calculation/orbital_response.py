@@ -66,10 +66,12 @@ def orbital_response(mf) -> Callable[[np.ndarray], np.ndarray] | None:
         d = mo_c @ (2.0 * x) @ c_occ.T
         d = d + d.transpose(0, 2, 1)
         v = coulomb_exchange(d)
-        if len(x) < MIN_PERTURBATIONS:  # PySCF's own order of contractions is quicker for few
+        few = len(x) < MIN_PERTURBATIONS  # PySCF's own order of contractions is quicker for few
+        if few:
             v += ni.nr_rks_fxc(mol, mf.grids, mf.xc, None, d, 0, 1, rho0, vxc, fxc, max_memory=max_memory)
-            return mo_c.T @ v @ c_occ
         out = mo_c.T @ v @ c_occ
+        if few:
+            return out
         kernel = fxc if gga else fxc.reshape(1, 1, -1)
         p1 = 0
         for ao, _, weight, _ in ni.block_loop(mol, mf.grids, mol.nao, 1 if gga else 0, max_memory=max_memory):
@@ -79,6 +81,14 @@ def orbital_response(mf) -> Callable[[np.ndarray], np.ndarray] | None:
         return out
 
     return fx
+
+
+def pyscf_response(mf) -> Callable[[np.ndarray], np.ndarray]:
+    """PySCF's own response in the orbital basis (``pyscf.hessian.rhf.gen_vind``): the fallback
+    for what :func:`orbital_response` does not cover, and its reference in the tests."""
+    from pyscf.hessian import rhf as rhf_hessian
+
+    return rhf_hessian.gen_vind(mf, mf.mo_coeff, mf.mo_occ)
 
 
 def _kernel_block(phi: np.ndarray, phi_occ: np.ndarray, x: np.ndarray, fxc_w: np.ndarray) -> np.ndarray:
