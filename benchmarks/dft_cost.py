@@ -9,13 +9,15 @@ vibest.calculation.dft_engine.COST_MODEL uses to refuse hopeless requests. Time 
 machine: other work running beside it can change the figures by 2x.
 
     python benchmarks/dft_cost.py [--quick] [--tiers intensities,full] [--intensity-methods b3lyp,r2scan]
-                                  [--only methyl] [--both-responses]
+                                  [--only methyl] [--against-pyscf]
 
 ``--intensity-methods`` times the intensities tier of other density-functional methods too
 (gfn2+KEY), side by side in the same run; the full tier is B3LYP's (the only one with scale models).
-``--only TEXT`` keeps the molecules whose name contains TEXT. ``--both-responses`` runs every
-calculation twice, side by side: with vibest's orbital-basis response in the coupled-perturbed
-equations (vibest.calculation.orbital_response, the default) and with PySCF's own.
+``--only TEXT`` keeps the molecules whose name contains TEXT. ``--against-pyscf`` runs every
+calculation twice, side by side: with vibest's own contractions (the orbital-basis response of
+the coupled-perturbed equations, vibest.calculation.orbital_response, and the functional's
+terms of the Hessian assembly per atom pair, vibest.calculation.xc_hessian; the default) and
+with PySCF's own for both.
 """
 
 from __future__ import annotations
@@ -29,6 +31,7 @@ import vibest.calculation.dft_engine as dft_engine
 from vibest.calculation.driver import calculation_options, compute_record
 from vibest.calculation.hessian import default_workers
 from vibest.calculation.orbital_response import orbital_response
+from vibest.calculation.xc_hessian import contracted_partial_hessian
 from vibest.structure import build_molecule
 
 MOLECULES = [
@@ -43,9 +46,11 @@ MOLECULES = [
 ]
 
 
-def run(smiles: str, level: str, response: str = "orbital") -> dict:
-    """Time one record; ``response``: "orbital" (vibest's, the default) or "pyscf"."""
-    dft_engine.orbital_response = orbital_response if response == "orbital" else (lambda mf: None)
+def run(smiles: str, level: str, contractions: str = "vibest") -> dict:
+    """Time one record; ``contractions``: "vibest" (the default) or "pyscf" (PySCF's own)."""
+    ours = contractions == "vibest"
+    dft_engine.orbital_response = orbital_response if ours else (lambda mf: None)
+    dft_engine.contracted_partial_hessian = contracted_partial_hessian if ours else (lambda hobj: None)
     mol = build_molecule(smiles)
     options = calculation_options(level, allow_long=True)
     t0 = time.perf_counter()
@@ -71,12 +76,12 @@ def main() -> None:
     ap.add_argument("--tiers", default="intensities,full")
     ap.add_argument("--intensity-methods", default="b3lyp", help="density-functional methods of the intensities tier")
     ap.add_argument("--only", default="", help="the molecules whose name contains this text")
-    ap.add_argument("--both-responses", action="store_true",
-                    help="time each calculation with vibest's orbital-basis response and with PySCF's, side by side")
+    ap.add_argument("--against-pyscf", action="store_true",
+                    help="time each calculation with vibest's contractions and with PySCF's own, side by side")
     args = ap.parse_args()
     levels = {"full": ["b3lyp"], "intensities": [f"gfn2+{m.strip()}" for m in args.intensity_methods.split(",")]}
-    responses = ["orbital", "pyscf"] if args.both_responses else ["orbital"]
-    runs = [(level, how) for t in args.tiers.split(",") for level in levels[t.strip()] for how in responses]
+    contractions = ["vibest", "pyscf"] if args.against_pyscf else ["vibest"]
+    runs = [(level, how) for t in args.tiers.split(",") for level in levels[t.strip()] for how in contractions]
     molecules = [m for m in (MOLECULES[:4] if args.quick else MOLECULES) if args.only in m[0]]
     print(f"{default_workers()} cores; full tier B3LYP-D3(BJ)/6-31G(d) (grid level 2); intensities tier gfn2+METHOD")
     print(f"{'molecule':<42} {'level':<20} {'atoms':>5} {'basis':>5} {'grads':>5} {'Hessian s':>9} "
@@ -84,7 +89,7 @@ def main() -> None:
     points: dict[tuple[str, str], list] = {run_: [] for run_ in runs}
 
     def label(level: str, how: str) -> str:
-        return level + ("" if len(responses) == 1 else f" ({how})")
+        return level + ("" if len(contractions) == 1 else f" ({how})")
 
     for name, smiles in molecules:
         for level, how in runs:

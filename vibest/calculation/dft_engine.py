@@ -5,7 +5,8 @@ at a geometry (Bohr), restarting every SCF from the last density. It also does a
 what the tight-binding engines need finite differences for:
 
 * the Hessian (PySCF's analytic RKS Hessian: skeleton Fock derivatives, coupled-perturbed
-  Kohn-Sham equations for the nuclear displacements, their contraction; dispersion by PySCF);
+  Kohn-Sham equations for the nuclear displacements, their contraction; dispersion by PySCF;
+  the functional's terms of the assembly contracted per atom pair, :mod:`.xc_hessian`);
   PySCF's analytic RKS Hessian leaves out the response of the integration grid to the nuclear
   displacements (pyscf/pyscf issues #3339, #3437). For hydrogen to neon that costs little
   (formaldehyde at grid level 2: at most 0.002 Eh/Bohr^2, frequencies within 0.5 cm^-1 of
@@ -49,6 +50,7 @@ from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
 from .methods import DFTSettings, elements_beyond_krypton
 from .orbital_response import orbital_response, pyscf_response
+from .xc_hessian import contracted_partial_hessian
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -173,6 +175,9 @@ class PySCFEngine(Engine):
             grad = mf.nuc_grad_method().kernel()
             hobj = mf.Hessian()
             hobj.max_memory = self.resources.memory_mb
+            contracted = contracted_partial_hessian(hobj)  # None: PySCF's own assembly
+            if contracted is not None:
+                hobj.partial_hess_elec = contracted
             mo_e, mo_c, mo_o = mf.mo_energy, mf.mo_coeff, mf.mo_occ
             atoms = range(self.mol.natm)
             try:
