@@ -14,10 +14,11 @@ machine: other work running beside it can change the figures by 2x.
 ``--intensity-methods`` times the intensities tier of other density-functional methods too
 (gfn2+KEY), side by side in the same run; the full tier is B3LYP's (the only one with scale models).
 ``--only TEXT`` keeps the molecules whose name contains TEXT. ``--against-pyscf`` runs every
-calculation twice, side by side: with vibest's own contractions (the orbital-basis response of
-the coupled-perturbed equations, vibest.calculation.orbital_response, and the functional's
-terms of the Hessian assembly per atom pair, vibest.calculation.xc_hessian; the default) and
-with PySCF's own for both.
+calculation twice, side by side: the shipped way (the orbital-basis response of the
+coupled-perturbed equations, vibest.calculation.orbital_response; the Hessian's assembly of
+vibest.calculation.hessian_assembly: the functional's terms per atom pair, density-fitted
+two-electron terms) and PySCF's own response and assembly (exact two-electron terms, the way
+before 2026-12-04).
 """
 
 from __future__ import annotations
@@ -31,9 +32,9 @@ import vibest.calculation.dft_engine as dft_engine
 from vibest.calculation.driver import calculation_options, compute_record
 from vibest.calculation.hessian import default_workers
 from vibest.calculation.orbital_response import orbital_response
-from vibest.calculation.xc_hessian import contracted_partial_hessian
 from vibest.structure import build_molecule
 
+VIBEST_ASSEMBLY = dft_engine.PySCFEngine._assembly
 MOLECULES = [
     ("water", "O"),
     ("formaldehyde", "C=O"),
@@ -50,7 +51,7 @@ def run(smiles: str, level: str, contractions: str = "vibest") -> dict:
     """Time one record; ``contractions``: "vibest" (the default) or "pyscf" (PySCF's own)."""
     ours = contractions == "vibest"
     dft_engine.orbital_response = orbital_response if ours else (lambda mf: None)
-    dft_engine.contracted_partial_hessian = contracted_partial_hessian if ours else (lambda hobj: None)
+    dft_engine.PySCFEngine._assembly = VIBEST_ASSEMBLY if ours else (lambda self, hobj: hobj.partial_hess_elec)
     mol = build_molecule(smiles)
     options = calculation_options(level, allow_long=True)
     t0 = time.perf_counter()

@@ -7,20 +7,8 @@ import pytest
 
 pyscf = pytest.importorskip("pyscf")
 
-from pyscf import dft, gto  # noqa: E402
-
+from tests.pyscf_scf import FORMALDEHYDE, converged_rks as _scf  # noqa: E402
 from vibest.calculation.orbital_response import MIN_PERTURBATIONS, orbital_response, pyscf_response  # noqa: E402
-
-
-def _scf(xc: str, atom: str = "O 0 0 0.12; H 0 0.76 -0.47; H 0 -0.76 -0.47", basis: str = "6-31g*"):
-    # a small molecule and basis so that the test is quick; the formulas do not depend on size
-    mol = gto.M(atom=atom, basis=basis, verbose=0)
-    mf = dft.RKS(mol)
-    mf.xc = xc
-    mf.grids.level = 2
-    mf.conv_tol = 1e-10
-    mf.kernel()
-    return mf
 
 
 @pytest.mark.parametrize("xc", ["b3lyp", "pbe", "lda,vwn", "pbe0"])
@@ -39,7 +27,7 @@ def test_small_grid_slices_give_the_same_response(monkeypatch):
     # the grid is cut into slices by memory: a tiny allowance gives many slices, same result
     import vibest.calculation.orbital_response as module
 
-    mf = _scf("b3lyp", "C 0 0 0; O 0 0 1.21; H 0 0.94 -0.59; H 0 -0.94 -0.59")
+    mf = _scf("b3lyp", FORMALDEHYDE)
     nmo, nocc = mf.mo_coeff.shape[1], int((mf.mo_occ > 0).sum())
     x = np.random.default_rng(3).standard_normal((MIN_PERTURBATIONS + 2, nmo, nocc)) * 0.01
     whole = orbital_response(mf)(x)

@@ -6,7 +6,7 @@ what the tight-binding engines need finite differences for:
 
 * the Hessian (PySCF's analytic RKS Hessian: skeleton Fock derivatives, coupled-perturbed
   Kohn-Sham equations for the nuclear displacements, their contraction; dispersion by PySCF;
-  the functional's terms of the assembly contracted per atom pair, :mod:`.xc_hessian`);
+  the functional's terms of the assembly contracted per atom pair, :mod:`.hessian_assembly`);
   PySCF's analytic RKS Hessian leaves out the response of the integration grid to the nuclear
   displacements (pyscf/pyscf issues #3339, #3437). For hydrogen to neon that costs little
   (formaldehyde at grid level 2: at most 0.002 Eh/Bohr^2, frequencies within 0.5 cm^-1 of
@@ -50,7 +50,7 @@ from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
 from .methods import DFTSettings, elements_beyond_krypton
 from .orbital_response import orbital_response, pyscf_response
-from .xc_hessian import contracted_partial_hessian
+from .hessian_assembly import contracted_partial_hessian
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -134,6 +134,7 @@ class PySCFEngine(Engine):
         self.mol = build_pyscf_molecule(self.numbers, self._start, self.charge, self.uhf, settings, resources.memory_mb)
         self._mf = None
         self._dm = None
+        self._positions = None  # where the last SCF ran (Bohr)
 
     # -- the Engine interface --------------------------------------------------------------
     def evaluate(self, positions_bohr: np.ndarray) -> Evaluation:
@@ -161,23 +162,27 @@ class PySCFEngine(Engine):
         return int(self.mol.nao)
 
     # -- analytic second derivatives -------------------------------------------------------
-    def hessian_and_dipole_derivatives(self, positions_bohr: np.ndarray,
-                                       progress: StepProgress | None = None) -> tuple[np.ndarray, np.ndarray, Evaluation]:
+    def hessian_and_dipole_derivatives(self, positions_bohr: np.ndarray, progress: StepProgress | None = None,
+                                       reference: Evaluation | None = None) -> tuple[np.ndarray, np.ndarray, Evaluation]:
         """Analytic Hessian (3N, 3N) in Eh/Bohr^2, dipole derivatives (3N, 3) in e, and the
-        evaluation (energy, gradient, dipole) at ``positions_bohr``."""
+        evaluation (energy, gradient, dipole) at ``positions_bohr``. ``reference``: this engine's
+        evaluation at ``positions_bohr`` (the optimiser's last); when the last SCF was at those
+        positions, that SCF and its gradient are reused instead of computed again."""
         def say(step, message=""):
             if progress:
                 progress(step, message)
 
         with _threads(self.threads):
-            say("SCF", f"{self.basis_functions} basis functions")
-            mf = self._scf(positions_bohr)
-            grad = mf.nuc_grad_method().kernel()
+            x = np.asarray(positions_bohr, dtype=float).reshape(-1, 3)
+            if reference is not None and self._mf is not None and np.array_equal(self._positions, x):
+                mf, grad = self._mf, reference.gradient_hartree_bohr
+            else:
+                say("SCF", f"{self.basis_functions} basis functions")
+                mf = self._scf(x)
+                grad = mf.nuc_grad_method().kernel()
             hobj = mf.Hessian()
             hobj.max_memory = self.resources.memory_mb
-            contracted = contracted_partial_hessian(hobj)  # None: PySCF's own assembly
-            if contracted is not None:
-                hobj.partial_hess_elec = contracted
+            hobj.partial_hess_elec = self._assembly(hobj)
             mo_e, mo_c, mo_o = mf.mo_energy, mf.mo_coeff, mf.mo_occ
             atoms = range(self.mol.natm)
             try:
@@ -207,6 +212,18 @@ class PySCFEngine(Engine):
             hessian, apt = _with_rows(hessian, idx, fd_hessian), apt.copy()
             apt[idx] = fd_apt
         return hessian, apt, evaluation
+
+    def _assembly(self, hobj) -> Callable:
+        """The Hessian assembly: vibest's (vibest.calculation.hessian_assembly) where it covers the
+        functional, else PySCF's own, which has exact two-electron terms only."""
+        two_electron = self.settings.dft.hessian_two_electron
+        contracted = contracted_partial_hessian(hobj, two_electron)
+        if contracted is not None:
+            return contracted
+        if two_electron != "exact":
+            raise CalculationError(f"{self.settings.method}: {two_electron} two-electron Hessian terms are "
+                                   f"available for LDA and GGA functionals without range separation only")
+        return hobj.partial_hess_elec
 
     def heavy_atom_rows(self, positions_bohr: np.ndarray, say: Callable[[str, str], None] | None = None,
                         gradients: bool = True):
@@ -282,7 +299,7 @@ class PySCFEngine(Engine):
             mf.kernel(mf.make_rdm1())
             if not mf.converged:
                 raise CalculationError(f"{self.settings.method} SCF did not converge")
-        self._mf, self._dm = mf, mf.make_rdm1()
+        self._mf, self._dm, self._positions = mf, mf.make_rdm1(), x.copy()
         return mf
 
 
@@ -447,9 +464,10 @@ def field_dipole_derivatives(mf, h1ao, fx=None) -> np.ndarray:
 
 #: Cost model of :func:`estimated_seconds`: seconds = a * (basis functions / 100) ** b on 2
 #: cores, per tier, fitted by ``benchmarks/dft_cost.py --quick`` on this project's 2-core machine
-#: (quiet, 2026-12-03: formaldehyde, acetone, benzene, 32-96 basis functions; larger molecules
-#: are an extrapolation, and molecules needing many optimisation steps take longer).
-COST_MODEL = {"full": (191.4, 2.94), "intensities": (26.9, 2.51)}
+#: (quiet; formaldehyde, acetone, benzene, 32-96 basis functions; intensities 2026-12-03, full
+#: 2026-12-04 with vibest's Hessian assembly; larger molecules are an extrapolation, and
+#: molecules needing many optimisation steps take longer).
+COST_MODEL = {"full": (135.0, 2.58), "intensities": (26.9, 2.51)}
 #: Seconds of one SCF with gradient at 100 basis functions on 2 cores, for the finite-difference
 #: rows of atoms past neon (6 per atom; scaled like the cube of the basis): measured while
 #: patching the benchmark's records, 2026-12-03 (CCl4, C2Cl4, 1,2-dibromoethane: 9-14 s at

@@ -324,7 +324,8 @@ def _analytic_step(engine: Engine, progress: Progress | None) -> HessianStep:
     def step(x, ev, timings):
         t = time.perf_counter()
         hessian, dipole_derivatives, ev = engine.hessian_and_dipole_derivatives(
-            x, progress=lambda name, message: _notify(progress, "DFT Hessian", 0, 0, f"{name} {message}".strip()))
+            x, progress=lambda name, message: _notify(progress, "DFT Hessian", 0, 0, f"{name} {message}".strip()),
+            reference=ev)
         timings.hessian_seconds += time.perf_counter() - t
         timings.hessian_analytic = True
         return hessian, dipole_derivatives, ev

@@ -30,7 +30,13 @@ class DFTSettings:
         dispersion: PySCF's dispersion keyword (``"d3bj"``: Grimme's D3 with Becke-Johnson
             damping, through the pyscf-dispersion package), or None.
         grid_level: PySCF's integration grid level (0-9; 3 is PySCF's default).
-        density_fitting: resolve the two-electron integrals with an auxiliary basis.
+        density_fitting: resolve the two-electron integrals with an auxiliary basis (everywhere:
+            SCF, gradients, responses, Hessian).
+        hessian_two_electron: how the analytic Hessian's assembly takes its second-derivative
+            two-electron terms: ``"exact"`` or ``"density-fitted"`` (only those terms; the SCF,
+            responses and dipole derivatives stay exact; vibest.calculation.hessian_assembly).
+            It acts on full-level Hessians only, so it is in the store key only there and only
+            when not exact (methods.without_unused_dft_settings): other records keep their keys.
         scf_tolerance_hartree: SCF energy convergence (Eh); gradients and responses need it tight.
         heavy_atom_rows: how the Hessian rows and dipole derivatives of atoms past neon are
             computed: ``"finite-difference"`` of analytic gradients and SCF dipoles, which include
@@ -50,6 +56,7 @@ class DFTSettings:
     dispersion: str | None = "d3bj"
     grid_level: int = 3
     density_fitting: bool = False
+    hessian_two_electron: str = "exact"
     scf_tolerance_hartree: float = 1e-10
     heavy_atom_rows: str = "finite-difference"
     beyond_krypton_basis: str | None = "def2-svp"
@@ -73,12 +80,16 @@ def elements_beyond_krypton(atomic_numbers) -> list[str]:
 def without_unused_dft_settings(options: dict, atomic_numbers) -> dict:
     """A copy of ``options`` (a CalculationOptions.to_dict()) without the density-functional
     settings that cannot change this molecule's numbers: the basis for elements past krypton
-    when it has none (so adding that setting changed no other record's store key, and cached
-    records stay current)."""
+    when it has none; the Hessian's two-electron terms for the intensities engine (it computes
+    no Hessian) and where they are exact (the way before the setting existed). So adding those
+    settings changed no other record's store key, and cached records stay current."""
     options = copy.deepcopy(options)
-    if not elements_beyond_krypton(atomic_numbers):
-        for engine in ("engine", "intensity_engine"):
-            ((options.get(engine) or {}).get("dft") or {}).pop("beyond_krypton_basis", None)
+    for engine in ("engine", "intensity_engine"):
+        dft = (options.get(engine) or {}).get("dft") or {}
+        if not elements_beyond_krypton(atomic_numbers):
+            dft.pop("beyond_krypton_basis", None)
+        if engine == "intensity_engine" or dft.get("hessian_two_electron") == "exact":
+            dft.pop("hessian_two_electron", None)
     return options
 
 
@@ -113,7 +124,8 @@ METHODS: dict[str, Method] = {m.key: m for m in (
     Method("b3lyp", "B3LYP-D3(BJ)/6-31G(d)", DFT,
            "B3LYP with D3(BJ) dispersion, 6-31G(d) basis (def2-SVP with its core potential past krypton; "
            "PySCF): minutes per molecule, closed shell only",
-           DFTSettings(functional="b3lyp", basis="6-31g*", dispersion="d3bj", grid_level=2)),
+           DFTSettings(functional="b3lyp", basis="6-31g*", dispersion="d3bj", grid_level=2,
+                       hessian_two_electron="density-fitted")),
     # Two modern alternatives measured beside B3LYP (README "Levels of theory"). No scale models are
     # fitted for them (a fit needs their Hessians of the 82 reference molecules: hours on 2 cores),
     # so they serve as intensity methods (gfn1+wb97x) or, at the full level, with --scale-factor.
