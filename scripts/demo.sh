@@ -3,7 +3,7 @@
 # to out/demo/. Scenario (invented): the Halvorsen Lab checks that solvent recovered from batch
 # HX-07 is 2-butanone before it goes back into use.
 # bash scripts/demo.sh --with-dft also recomputes the best three candidates at B3LYP (about
-# 8 minutes on 2 cores).
+# 6 minutes on 2 cores).
 set -euo pipefail
 with_dft=0
 for arg in "$@"; do

@@ -1,4 +1,5 @@
-"""The density-functional engine: the only place that talks to PySCF.
+"""The density-functional engine: with orbital_response and hessian_assembly (which take PySCF
+objects from it), the only place that talks to PySCF.
 
 Like the tight-binding engines it answers energy (Eh), gradient (Eh/Bohr) and dipole (e*Bohr)
 at a geometry (Bohr), restarting every SCF from the last density. It also does analytically
