@@ -397,7 +397,7 @@ def test_the_hessians_two_electron_terms_are_in_the_store_key_only_where_they_ac
     assert not computed_with(SimpleNamespace(settings=before, numbers=ethanol), full)
 
 
-def test_the_hessian_reuses_the_optimisers_last_scf():
+def test_the_hessian_reuses_the_optimisers_last_scf(monkeypatch):
     """The full level computes its Hessian where the optimiser stopped: the SCF (and gradient)
     already done there is reused, not repeated (one SCF per optimisation gradient, none more),
     and the Hessian is the one a fresh engine computes at that geometry (to SCF noise)."""
@@ -410,11 +410,9 @@ def test_the_hessian_reuses_the_optimisers_last_scf():
         calls.append(1)
         return scf(self, x)
 
-    dft_engine.PySCFEngine._scf = counted
-    try:
-        record, converged, _ = compute_record(build_molecule("O"), small_options())
-    finally:
-        dft_engine.PySCFEngine._scf = scf
+    monkeypatch.setattr(dft_engine.PySCFEngine, "_scf", counted)
+    record, converged, _ = compute_record(build_molecule("O"), small_options())
+    monkeypatch.undo()  # the fresh engine below runs its SCF uncounted
     assert converged and len(calls) == record.timings["optimization_gradients"]
     x = record.positions_angstrom / Bohr
     fresh, apt, ev = make_engine(record.numbers, x, 0, 0, EngineSettings.for_method(SMALL)).hessian_and_dipole_derivatives(x)

@@ -23,7 +23,7 @@ frequencies within 0.6 cm^-1, intensities within 0.5 %; the terms in 107 s again
 measured while other work ran; tests/test_hessian_assembly.py).
 
 It covers closed-shell LDA and GGA functionals without range separation or non-local
-correlation (the same as :mod:`vibest.calculation.orbital_response`); for anything else
+correlation (:func:`vibest.calculation.orbital_response.covers`, shared with the response); for anything else
 :func:`contracted_partial_hessian` returns None and the caller keeps PySCF's assembly.
 """
 
@@ -32,6 +32,8 @@ from __future__ import annotations
 from typing import Callable
 
 import numpy as np
+
+from .orbital_response import covers
 
 #: Second-derivative components of the atomic orbitals in PySCF's order (XX=4, XY=5, ...).
 _SECOND = np.array([[4, 5, 6], [5, 7, 8], [6, 8, 9]])
@@ -49,13 +51,10 @@ def contracted_partial_hessian(hobj, two_electron: str = "exact") -> Callable | 
     if two_electron not in TWO_ELECTRON_WAYS:
         raise ValueError(f"two_electron is one of {TWO_ELECTRON_WAYS}, not {two_electron!r}")
     mf = hobj.base
-    ni = getattr(mf, "_numint", None)
-    if ni is None or getattr(mf, "do_nlc", lambda: False)() or hobj.mol.spin != 0:
+    if not covers(mf):
         return None
-    xctype = ni._xc_type(mf.xc)
-    omega, _, hyb = ni.rsh_and_hybrid_coeff(mf.xc, spin=0)
-    if xctype not in ("LDA", "GGA") or omega != 0:
-        return None
+    ni = mf._numint
+    hyb = ni.rsh_and_hybrid_coeff(mf.xc, spin=0)[2]
 
     def partial_hess_elec(mo_energy=None, mo_coeff=None, mo_occ=None, atmlst=None, max_memory=4000, verbose=None):
         from pyscf import lib
@@ -72,8 +71,8 @@ def contracted_partial_hessian(hobj, two_electron: str = "exact") -> Callable | 
         de2 += ej - hyb * ek
         max_memory = max(2000, mf.max_memory * 0.9 - lib.current_memory()[0])
         diag = rks_hessian._get_vxc_diag(hobj, mo_coeff, mo_occ, max_memory)
-        pairs = xc_pair_terms(hobj, mo_coeff, mo_occ, max_memory)
         dm0 = mf.make_rdm1(mo_coeff, mo_occ)
+        pairs = xc_pair_terms(hobj, mo_coeff, mo_occ, dm0, max_memory)
         aoslices = mol.aoslice_by_atom()
         for i0, ia in enumerate(atmlst):
             p0, p1 = aoslices[ia][2:]
@@ -104,9 +103,10 @@ def _two_electron_terms(hobj, two_electron: str) -> tuple[Callable, object]:
     return rhf_hessian._partial_hess_ejk, hobj
 
 
-def xc_pair_terms(hobj, mo_coeff, mo_occ, max_memory) -> np.ndarray:
+def xc_pair_terms(hobj, mo_coeff, mo_occ, dm0, max_memory) -> np.ndarray:
     """(natm, natm, 3, 3) in Eh/Bohr^2: [A, B, x, y] = 2 sum_{p in B} sum_q V^A_xy,pq D_pq with
-    V^A PySCF's ``_get_vxc_deriv2(...)[A]`` (LDA or GGA), contracted without forming V^A."""
+    V^A PySCF's ``_get_vxc_deriv2(...)[A]`` (LDA or GGA) and D = ``dm0`` the density of
+    ``mo_coeff``/``mo_occ``, contracted without forming V^A."""
     from pyscf.dft import numint
 
     mol, mf = hobj.mol, hobj.base
@@ -120,7 +120,6 @@ def xc_pair_terms(hobj, mo_coeff, mo_occ, max_memory) -> np.ndarray:
     owner = np.zeros((nao, natm))  # owner[p, B] = 1 when orbital p sits on atom B
     for b in range(natm):
         owner[aoslices[b][2]:aoslices[b][3], b] = 1.0
-    dm0 = mf.make_rdm1(mo_coeff, mo_occ)
     shls_slice, ao_loc = (0, mol.nbas), mol.ao_loc_nr()
     ipip = np.zeros((3, 3, nao, nao))
     pairs = np.zeros((natm, 3, natm, 3))
@@ -130,7 +129,7 @@ def xc_pair_terms(hobj, mo_coeff, mo_occ, max_memory) -> np.ndarray:
         else:
             rho = ni.eval_rho2(mol, ao[0], mo_coeff, mo_occ, mask, "LDA")
         vxc, fxc = ni.eval_xc_eff(mf.xc, rho, 2, xctype="GGA" if gga else "LDA")[1:3]
-        ipip += _ipip_block(mol, ao, weight * vxc, gga, mask, ao_loc)
+        _add_ipip_block(ipip, mol, ao, weight * vxc, gga, mask, ao_loc)
         ncomp = 4 if gga else 1
         ao_dm0 = np.array([numint._dot_ao_dm(mol, ao[i], dm0, mask, shls_slice, ao_loc) for i in range(ncomp)])
         wv = _atom_weights(ao, ao_dm0, weight * fxc, aoslices, gga)  # (natm, 3, c, g)
@@ -144,9 +143,9 @@ def xc_pair_terms(hobj, mo_coeff, mo_occ, max_memory) -> np.ndarray:
     return terms
 
 
-def _ipip_block(mol, ao, wv, gga, mask, ao_loc) -> np.ndarray:
-    """One grid block's share of PySCF's ``ipip`` matrices (3, 3, nao, nao) (``wv``: weights
-    times the functional's first derivatives)."""
+def _add_ipip_block(ipip, mol, ao, wv, gga, mask, ao_loc) -> None:
+    """Adds one grid block's share to PySCF's ``ipip`` matrices (3, 3, nao, nao) (``wv``:
+    weights times the functional's first derivatives)."""
     from pyscf.dft import numint
     from pyscf.grad import rks as rks_gradient
 
@@ -156,11 +155,9 @@ def _ipip_block(mol, ao, wv, gga, mask, ao_loc) -> np.ndarray:
         aow = rks_gradient._make_dR_dao_w(ao, wv)
     else:
         aow = [numint._scale_ao(ao[i], wv[0]) for i in range(1, 4)]
-    out = np.empty((3, 3, mol.nao, mol.nao))
     for d1 in range(3):
         for d2 in range(3):
-            out[d1, d2] = numint._dot_ao_ao(mol, aow[d2], ao[d1 + 1], mask, (0, mol.nbas), ao_loc)
-    return out
+            ipip[d1, d2] += numint._dot_ao_ao(mol, aow[d2], ao[d1 + 1], mask, (0, mol.nbas), ao_loc)
 
 
 def _atom_weights(ao, ao_dm0, wf, aoslices, gga) -> np.ndarray:

@@ -34,19 +34,27 @@ CHUNK_MEMORY_MB = 200.0
 MIN_PERTURBATIONS = 12
 
 
+def covers(mf) -> bool:
+    """Whether vibest's own contractions (this module's response and the Hessian assembly of
+    vibest.calculation.hessian_assembly) cover the Kohn-Sham object ``mf``: closed shell, an LDA
+    or GGA functional without range separation or non-local correlation."""
+    ni = getattr(mf, "_numint", None)
+    if ni is None or getattr(mf, "do_nlc", lambda: False)() or mf.mol.spin != 0:
+        return False
+    omega = ni.rsh_and_hybrid_coeff(mf.xc, spin=0)[0]
+    return ni._xc_type(mf.xc) in ("LDA", "GGA") and omega == 0
+
+
 def orbital_response(mf) -> Callable[[np.ndarray], np.ndarray] | None:
     """``fx(x) -> f1`` for a converged closed-shell Kohn-Sham object ``mf``: x (k, nmo, nocc)
     orbital rotations, f1 (k, nmo, nocc) the first-order Fock matrices in the orbital basis (see
     the module docstring; the same as ``pyscf.hessian.rhf.gen_vind``). None when the functional
     or the SCF object is not covered."""
-    ni = getattr(mf, "_numint", None)
-    if ni is None or getattr(mf, "do_nlc", lambda: False)():
+    if not covers(mf):
         return None
-    mol = mf.mol
+    mol, ni = mf.mol, mf._numint
     xctype = ni._xc_type(mf.xc)
-    omega, _, hyb = ni.rsh_and_hybrid_coeff(mf.xc, spin=mol.spin)
-    if xctype not in ("LDA", "GGA") or omega != 0 or mol.spin != 0:
-        return None
+    hyb = ni.rsh_and_hybrid_coeff(mf.xc, spin=0)[2]
     hybrid = ni.libxc.is_hybrid_xc(mf.xc)
     mo_c, mo_o = mf.mo_coeff, mf.mo_occ
     occ = mo_o > 0
