@@ -168,6 +168,24 @@ def test_open_shell_refused_by_the_engine():
                     EngineSettings.for_method(METHODS["b3lyp"]))
 
 
+def test_density_fitted_hessian_terms_for_an_uncovered_functional_are_refused_before_any_scf(monkeypatch):
+    """vibest's assembly, which alone takes density-fitted Hessian terms, covers LDA and GGA
+    functionals without range separation: asking them for the range-separated wB97X fails when
+    the engine is built (no SCF has run), not after a whole optimisation; B3LYP's shipped row
+    builds."""
+    import vibest.calculation.dft_engine as dft_engine
+
+    monkeypatch.setattr(dft_engine.PySCFEngine, "_scf", lambda self, x: pytest.fail("an SCF ran"))
+    water = build_molecule("O")
+    wb97x = METHODS["wb97x"]
+    fitted = dataclasses.replace(wb97x, dft=dataclasses.replace(wb97x.dft, hessian_two_electron="density-fitted"))
+    for method, message in ((fitted, "range separation"), (dataclasses.replace(
+            fitted, dft=dataclasses.replace(wb97x.dft, hessian_two_electron="fitted")), "one of exact")):
+        with pytest.raises(InputError, match=message):
+            make_engine(water.numbers, water.positions_angstrom / Bohr, 0, 0, EngineSettings.for_method(method))
+    make_engine(water.numbers, water.positions_angstrom / Bohr, 0, 0, EngineSettings.for_method(METHODS["b3lyp"]))
+
+
 def test_calculation_options_check_their_values():
     with pytest.raises(InputError, match="memory"):
         calculation_options("b3lyp", memory_mb=10)
