@@ -335,6 +335,13 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: floa
           f"{flagged[wrong].mean():.0%} of {wrong.sum()}   (target >= 80 %)")
     print(f"right first candidates with confidence >= {LOW_CONFIDENCE} (and no poor-fit flag): "
           f"{(~flagged[right]).mean():.0%} of {right.sum()}   (target >= 80 %)")
+    print("  the same per kind of ranking (wrong flagged; right sure):")
+    for kind in ("all", "isomers", "decoys", "without"):
+        sel = np.array([r["ranking"] == kind for r in rows])
+        if sel.any():
+            w, g = sel & wrong, sel & right
+            print(f"  {kind:<8} {flagged[w].sum():>3} of {w.sum():>3} wrong flagged; "
+                  f"{(~flagged[g]).sum():>3} of {g.sum():>3} right with confidence >= {LOW_CONFIDENCE}")
     return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y),
             "wrong_flagged": float(flagged[wrong].mean()), "right_confident": float((~flagged[right]).mean())}
 

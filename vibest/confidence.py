@@ -173,8 +173,8 @@ def levels_flag(ranking) -> Flag | None:
     if not first.refined or first.screening_rank in (None, 1):
         return None
     before = next(e for e in ranking.entries if e.screening_rank == 1)
-    return Flag(LEVELS_DISAGREE, f"{ranking.screening_method} put {before.candidate.name} first, {first.method} "
-                                 f"puts {first.candidate.name} first ({first.screening_rank}"
+    return Flag(LEVELS_DISAGREE, f"{ranking.screening_method} put {before.candidate.name} first; the refining level "
+                                 f"({first.method}) puts {first.candidate.name} first ({first.screening_rank}"
                                  f"{_ordinal(first.screening_rank)} at {ranking.screening_method})")
 
 
