@@ -52,8 +52,12 @@ def test_a_full_hessian_with_the_contraction_equals_pyscfs():
 
 @pytest.mark.parametrize("xc", ["r2scan", "wb97x"])
 def test_functionals_it_does_not_cover_are_left_to_pyscf(xc):
-    # a meta-GGA and a range-separated hybrid: PySCF's own assembly is used
-    assert contracted_partial_hessian(_hessian_object(xc, basis="sto-3g")) is None
+    # a meta-GGA and a range-separated hybrid: PySCF's own assembly is used, exact terms only,
+    # so density-fitted terms are refused rather than silently computed exactly
+    hobj = _hessian_object(xc, basis="sto-3g")
+    assert contracted_partial_hessian(hobj) is None
+    with pytest.raises(ValueError, match="range separation"):
+        contracted_partial_hessian(hobj, "density-fitted")
 
 
 def test_the_density_fitted_assembly_equals_pyscfs():

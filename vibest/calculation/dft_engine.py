@@ -50,8 +50,8 @@ import numpy as np
 from ..errors import CalculationError, InputError
 from .engine import Engine, EngineSettings, Evaluation
 from .methods import DFTSettings, elements_beyond_krypton
-from .orbital_response import covers, orbital_response, pyscf_response
-from .hessian_assembly import TWO_ELECTRON_WAYS, contracted_partial_hessian
+from .orbital_response import orbital_response, pyscf_response
+from .hessian_assembly import contracted_partial_hessian, two_electron_problem
 
 
 #: Atoms with an atomic number above this get their Hessian rows and dipole derivatives from
@@ -219,20 +219,18 @@ class PySCFEngine(Engine):
         """Refuses, before any SCF, Hessian two-electron terms the assembly cannot take this way
         (density-fitted terms need vibest's assembly, which covers LDA and GGA functionals without
         range separation only), so that such a request fails at once, not after an optimisation."""
-        two_electron = self.settings.dft.hessian_two_electron
-        if two_electron not in TWO_ELECTRON_WAYS:
-            raise InputError(f"{self.settings.method}: Hessian two-electron terms are one of "
-                             f"{', '.join(TWO_ELECTRON_WAYS)}, not {two_electron!r}")
-        if two_electron != "exact" and not covers(make_rks(self.mol, self.settings.dft, self.resources.memory_mb)):
-            raise InputError(f"{self.settings.method}: {two_electron} two-electron Hessian terms are available "
-                             f"for LDA and GGA functionals without range separation only, not {self.settings.dft.functional}")
+        dft = self.settings.dft
+        if dft.hessian_two_electron == "exact":
+            return
+        problem = two_electron_problem(make_rks(self.mol, dft, self.resources.memory_mb), dft.hessian_two_electron)
+        if problem:
+            raise InputError(f"{self.settings.method}: {problem}")
 
     def _assembly(self, hobj) -> Callable:
         """The Hessian assembly: vibest's (vibest.calculation.hessian_assembly) where it covers the
         functional, else PySCF's own, which has exact two-electron terms only."""
-        two_electron = self.settings.dft.hessian_two_electron
-        contracted = contracted_partial_hessian(hobj, two_electron)
-        return hobj.partial_hess_elec if contracted is None else contracted  # None: exact terms (checked at construction)
+        contracted = contracted_partial_hessian(hobj, self.settings.dft.hessian_two_electron)
+        return hobj.partial_hess_elec if contracted is None else contracted
 
     def heavy_atom_rows(self, positions_bohr: np.ndarray, say: Callable[[str, str], None] | None = None,
                         gradients: bool = True):

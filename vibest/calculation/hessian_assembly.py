@@ -24,7 +24,9 @@ measured while other work ran; tests/test_hessian_assembly.py).
 
 It covers closed-shell LDA and GGA functionals without range separation or non-local
 correlation (:func:`vibest.calculation.orbital_response.covers`, shared with the response); for anything else
-:func:`contracted_partial_hessian` returns None and the caller keeps PySCF's assembly.
+:func:`contracted_partial_hessian` returns None and the caller keeps PySCF's assembly, which
+has exact two-electron terms only: density-fitted ones are then refused
+(:func:`two_electron_problem`, which the engine also asks before any SCF).
 """
 
 from __future__ import annotations
@@ -43,14 +45,29 @@ _SECOND = np.array([[4, 5, 6], [5, 7, 8], [6, 8, 9]])
 TWO_ELECTRON_WAYS = ("exact", "density-fitted")
 
 
+def two_electron_problem(mf, two_electron: str) -> str | None:
+    """Why the assembly cannot take the two-electron terms the way ``two_electron`` says for the
+    Kohn-Sham object ``mf`` (no SCF needed), or None: an unknown way, or density-fitted terms for
+    a functional it does not cover (PySCF's own assembly, the fallback, has exact terms only)."""
+    if two_electron not in TWO_ELECTRON_WAYS:
+        return (f"Hessian two-electron terms (two_electron) are one of {', '.join(TWO_ELECTRON_WAYS)}, "
+                f"not {two_electron!r}")
+    if two_electron != "exact" and not covers(mf):
+        return (f"{two_electron} two-electron Hessian terms are available for LDA and GGA functionals "
+                f"without range separation only, not {mf.xc}")
+    return None
+
+
 def contracted_partial_hessian(hobj, two_electron: str = "exact") -> Callable | None:
     """A drop-in for ``hobj.partial_hess_elec`` (PySCF's RKS Hessian object ``hobj``) that
     contracts the functional's terms per atom pair and takes the two-electron terms as
-    ``two_electron`` says (:data:`TWO_ELECTRON_WAYS`); None when the functional is not covered.
-    Returns (natm, natm, 3, 3) in Eh/Bohr^2 like PySCF's."""
-    if two_electron not in TWO_ELECTRON_WAYS:
-        raise ValueError(f"two_electron is one of {TWO_ELECTRON_WAYS}, not {two_electron!r}")
+    ``two_electron`` says (:data:`TWO_ELECTRON_WAYS`); None when the functional is not covered
+    and the terms are exact (then PySCF's assembly is the same thing). Raises ValueError with
+    :func:`two_electron_problem`'s reason otherwise."""
     mf = hobj.base
+    problem = two_electron_problem(mf, two_electron)
+    if problem:
+        raise ValueError(problem)
     if not covers(mf):
         return None
     ni = mf._numint
