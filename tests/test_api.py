@@ -88,3 +88,45 @@ def test_screening_loop_example_runs():
     lines = [line for line in res.stdout.splitlines() if "cm^-1" in line]
     assert len(lines) == 3, res.stdout  # three molecules in one process, each predicted
     assert "caution" in res.stdout
+
+
+def test_measured_spectra_and_candidates_as_a_user_types_them(tmp_path):
+    """A path where a spectrum goes, SMILES strings or (name, SMILES) pairs where candidates go
+    (as the CLI takes them) give the same ranking as the objects; what cannot be one is a
+    one-line input error naming the argument, not an AttributeError from deep inside (found by a new-user
+    pass, 2026-12-04: ``rank_candidates("x.jdx", ["CCO"])`` failed with "'str' object has no
+    attribute 'problem'")."""
+    import vibest
+    from vibest.errors import InputError
+
+    from .conftest import prediction_of
+
+    water, methanol = prediction_of("O"), prediction_of("CO")
+    path = tmp_path / "water.csv"
+    with open(path, "w") as fh:
+        fh.write("wavenumber,absorbance\n")
+        for x, y in zip(water.spectrum.wavenumbers_cm1, water.spectrum.absorbance_normalised):
+            fh.write(f"{x},{y}\n")
+    spec = vibest.load_spectrum(path)
+    store = vibest.RecordStore(tmp_path / "s.sqlite")
+    by_objects = vibest.rank_candidates(spec, [vibest.Candidate("water", "O"), vibest.Candidate("methanol", "CO")],
+                                       store=store, calc=vibest.CalculationOptions(workers=1))
+    by_text = vibest.rank_candidates(str(path), ["O", ("methanol", "CO")], store=store,
+                                    calc=vibest.CalculationOptions(workers=1))
+    assert [e.candidate.smiles for e in by_text.entries] == [e.candidate.smiles for e in by_objects.entries] == ["O", "CO"]
+    assert [e.score for e in by_text.entries] == pytest.approx([e.score for e in by_objects.entries])
+    assert [e.candidate.name for e in by_text.entries] == ["O", "methanol"]
+    assert vibest.compare(water, path).score == pytest.approx(vibest.compare(water, spec).score)
+    assert vibest.fit_components(path, [vibest.Component("water", water), vibest.Component("methanol", methanol)]).shares
+    with pytest.raises(InputError, match="candidates"):
+        vibest.rank_candidates(spec, "CCO")
+    with pytest.raises(InputError, match="candidates"):
+        vibest.rank_candidates(spec, [3])
+    with pytest.raises(InputError, match="predict_many"):
+        vibest.predict_many("CCO")
+    with pytest.raises(InputError, match="measured"):
+        vibest.rank_candidates(water, ["O"])
+    with pytest.raises(InputError, match="prediction"):
+        vibest.compare("O", spec)
+    with pytest.raises(InputError, match="before"):
+        vibest.difference_spectrum(None, spec)

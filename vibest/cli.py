@@ -342,10 +342,48 @@ def _spec_options(scale_factor, scale_model, fwhm, line_shape, range_cm1=(400.0,
     return opts
 
 
+class _StdoutUntilReaderGoes:
+    """sys.stdout that, once its reader has gone (``| head``), drops further output instead of
+    raising, so that a command still writes the files it was asked for (--plot, --csv, --json...)
+    and ends normally; until 2026-12-04 the first write after ``head`` had read its lines ended the
+    command at once, with exit 0 and the files not written."""
+
+    def __init__(self, stream):
+        self._stream = stream
+        self.reader_gone = False
+
+    def write(self, text):
+        if not self.reader_gone:
+            try:
+                return self._stream.write(text)
+            except BrokenPipeError:
+                self._drop()
+        return len(text)
+
+    def flush(self):
+        if not self.reader_gone:
+            try:
+                self._stream.flush()
+            except BrokenPipeError:
+                self._drop()
+
+    def _drop(self):
+        self.reader_gone = True
+        try:  # what is still buffered goes nowhere, also when the interpreter flushes at exit
+            os.dup2(os.open(os.devnull, os.O_WRONLY), self._stream.fileno())
+        except (OSError, ValueError, AttributeError):
+            pass
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+
 class _Commands(click.Group):
     """The command group, with click's own usage errors turned into one line like vibest's."""
 
     def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True, **extra):
+        stdout = sys.stdout
+        sys.stdout = _StdoutUntilReaderGoes(stdout)
         try:
             return super().main(args=args, prog_name=prog_name, complete_var=complete_var, standalone_mode=False,
                                 **extra)
@@ -357,6 +395,8 @@ class _Commands(click.Group):
             _fail(exc.format_message().replace("\n", " ") + hint, exc.exit_code)
         except BrokenPipeError:
             _quiet_broken_pipe()
+        finally:
+            sys.stdout = stdout
 
 
 def _quiet_broken_pipe() -> None:

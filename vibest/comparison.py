@@ -26,7 +26,7 @@ import numpy as np
 from scipy import optimize, signal, stats
 
 from .errors import InputError
-from .measured import MeasuredSpectrum, preprocess
+from .measured import MeasuredSpectrum, as_measured, preprocess
 from .pipeline import Prediction
 from .spectrum import broaden, grid, line_shape_values
 
@@ -564,9 +564,10 @@ def peak_table(pred: Prediction, prep: _Prepared, predicted_linear: np.ndarray, 
     return tuple(rows)
 
 
-def compare(pred: Prediction, measured: MeasuredSpectrum, options: ComparisonOptions | None = None,
+def compare(pred: Prediction, measured: MeasuredSpectrum | str, options: ComparisonOptions | None = None,
             **changes) -> Comparison:
-    """Score a prediction against a measured spectrum, optionally fitting a scale factor and/or shift.
+    """Score a prediction (from :func:`vibest.predict`) against a measured spectrum (or the path of
+    its file), optionally fitting a scale factor and/or shift.
 
     ``options`` (:class:`ComparisonOptions`; default settings when None), with any of its fields
     given as keywords on top (``compare(pred, spec, fit_scale=True)``).
@@ -585,6 +586,9 @@ def compare(pred: Prediction, measured: MeasuredSpectrum, options: ComparisonOpt
     and/or shift maximising the score) and :func:`peak_table`. The fitted values are reported in
     the result; the prediction itself is not changed.
     """
+    if isinstance(pred, (str, bytes)) or not hasattr(pred, "spectrum"):
+        raise InputError(f"compare takes a prediction (vibest.predict(smiles)), not {type(pred).__name__}")
+    measured = as_measured(measured)
     opts = comparison_options(options, **changes)
     prep = prepare(pred, measured, opts)
     curve = _AlignedCurve(pred, prep, opts)

@@ -33,7 +33,7 @@ from scipy.optimize import nnls
 
 from .comparison import DEFAULT_COMPARE_RANGE_CM1, DEFAULT_MAX_SHIFT_CM1, MIN_COMPARE_WIDTH_CM1, predicted_curve
 from .errors import InputError
-from .measured import MeasuredSpectrum, preprocess
+from .measured import MeasuredSpectrum, as_measured, preprocess
 from .pipeline import CAUTION, PLOT_CAUTION, Prediction
 from .spectrum import grid
 
@@ -209,10 +209,12 @@ def _mole_basis(components: list[Component], g: np.ndarray, areas: np.ndarray) -
                   "not estimated: predicted and measured components have no common intensity scale")
 
 
-def fit_components(measured: MeasuredSpectrum, components: list[Component], *,
+def fit_components(measured: MeasuredSpectrum | str, components: list[Component], *,
                    range_cm1: tuple[float, float] = DEFAULT_COMPARE_RANGE_CM1, baseline: bool = False,
                    gas_phase: bool | None = None) -> MixtureFit:
-    """Fit ``measured`` as a non-negative combination of ``components`` (see the module docstring)."""
+    """Fit ``measured`` (a spectrum or the path of its file) as a non-negative combination of
+    ``components`` (see the module docstring)."""
+    measured = as_measured(measured)
     _check(components)
     lo, hi = max(range_cm1[0], measured.range_cm1[0]), min(range_cm1[1], measured.range_cm1[1])
     for c in components:

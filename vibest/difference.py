@@ -25,7 +25,7 @@ import numpy as np
 
 from .comparison import DEFAULT_MATCH_TOLERANCE_CM1, MIN_COMPARE_WIDTH_CM1, pick_peaks
 from .errors import InputError
-from .measured import MeasuredSpectrum, preprocess
+from .measured import MeasuredSpectrum, as_measured, preprocess
 from .pipeline import CAUTION, PLOT_CAUTION, Prediction
 from .spectrum import grid, line_shape_values
 
@@ -176,14 +176,16 @@ def _changes(g, diff, start: Prediction | None, product: Prediction | None) -> t
     return tuple(sorted(out, key=lambda c: -abs(c.change_absorbance)))
 
 
-def difference_spectrum(before: MeasuredSpectrum, after: MeasuredSpectrum, *, scale_on_cm1: tuple[float, float] | None = None,
+def difference_spectrum(before: MeasuredSpectrum | str, after: MeasuredSpectrum | str, *, scale_on_cm1: tuple[float, float] | None = None,
                scale: float | None = None, start: Prediction | None = None, product: Prediction | None = None,
                baseline: bool = False) -> Difference:
     """after - s * before on the range both cover (see the module docstring).
 
     ``scale_on_cm1``: a window (cm^-1) holding a band that does not change, to scale on (None:
     automatic); ``scale``: a fixed factor instead (1.0: no scaling); ``start``/``product``: predictions of the starting material and the product, to
-    assign the bands that go and appear; ``baseline``: subtract a rubber-band baseline first."""
+    assign the bands that go and appear; ``baseline``: subtract a rubber-band baseline first.
+    ``before`` and ``after`` may also be paths of spectrum files."""
+    before, after = as_measured(before, "before"), as_measured(after, "after")
     lo, hi = _shared_range(before, after)
     g = grid(lo, hi, STEP_CM1)
     b = preprocess(before, g, baseline=baseline, normalise=False)

@@ -11,7 +11,7 @@ from typing import Callable
 from .comparison import SCORES, Comparison, ComparisonOptions, compare, comparison_options
 from .errors import InputError, VibestError
 from .hydrogen_bonding import with_hydrogen_bonding
-from .measured import MeasuredSpectrum
+from .measured import MeasuredSpectrum, as_measured
 from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record
 from .store import RecordStore
 from .structure import build_molecule
@@ -25,6 +25,30 @@ class Candidate:
     name: str
     smiles: str
     problem: str = ""
+
+
+def as_candidates(values, what: str = "candidates") -> list[Candidate]:
+    """``values`` as a list of :class:`Candidate`: each a Candidate, a SMILES string (named by
+    itself) or a (name, SMILES) pair. A single string, or anything else, is an InputError that
+    names the argument or call (``what``)."""
+    if isinstance(values, (str, bytes)):
+        raise InputError(f"{what} takes a list of structures, not one string: write [{values!r}]")
+    try:
+        values = list(values)
+    except TypeError:
+        raise InputError(f"{what} takes a list of structures, not {type(values).__name__}") from None
+    out = []
+    for v in values:
+        if isinstance(v, Candidate):
+            out.append(v)
+        elif isinstance(v, str):
+            out.append(Candidate(v, v))
+        elif isinstance(v, (tuple, list)) and len(v) == 2:
+            out.append(Candidate(str(v[0]), str(v[1])))
+        else:
+            raise InputError(f"{what}: {v!r} is not a structure; give SMILES strings, (name, SMILES) pairs or "
+                             "vibest.Candidate objects")
+    return out
 
 
 @dataclass(frozen=True)
@@ -200,13 +224,16 @@ def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions,
     return analyse(record, spec, notes=tuple(notes)), hit
 
 
-def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
+def rank_candidates(measured: MeasuredSpectrum | str | Path, candidates: list[Candidate | str], *,
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
                     store: RecordStore | None = None, options: ComparisonOptions | None = None,
                     progress: Callable[[int, int, str], None] | None = None, refine: int = 0,
                     refine_calc: CalculationOptions | None = None, refine_progress=None,
                     **changes) -> Ranking:
     """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
+
+    ``measured``: a spectrum or the path of its file; ``candidates``: :class:`Candidate` objects,
+    SMILES strings or (name, SMILES) pairs.
 
     A candidate that cannot be predicted is listed last with its error; it never stops the ranking.
     ``options`` (:class:`vibest.comparison.ComparisonOptions`), with any of its fields given as
@@ -219,6 +246,7 @@ def rank_candidates(measured: MeasuredSpectrum, candidates: list[Candidate], *,
     ``refine_progress(stage, done, total, message)`` hears the stages of each refining calculation
     (minutes each at a density-functional level).
     """
+    measured, candidates = as_measured(measured), as_candidates(candidates)
     if not candidates:
         raise InputError("no candidate structures given")
     if refine and refine_calc is None:

@@ -26,10 +26,10 @@ from .confidence import LOW_CONFIDENCE, Assessment, assess
 from .decoys import Decoy, make_decoys
 from .errors import InputError
 from .evidence import GroupEvidence, group_evidence
-from .measured import MeasuredSpectrum
+from .measured import MeasuredSpectrum, as_measured
 from .ms import CONTRADICTED, MassEvidence, MsCheck
 from .pipeline import CAUTION, SpectrumOptions
-from .ranking import Candidate, Ranking, rank_candidates
+from .ranking import Candidate, Ranking, as_candidates, rank_candidates
 from .store import RecordStore
 from .structure import canonical_smiles
 
@@ -80,22 +80,25 @@ class Verdict:
                 "ranking": self.ranking.to_dict()}
 
 
-def check_structure(measured: MeasuredSpectrum, smiles: str, *, name: str | None = None,
-                    decoys: int = DEFAULT_DECOYS, candidates: list[Candidate] | tuple = (),
+def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str | None = None,
+                    decoys: int = DEFAULT_DECOYS, candidates: list[Candidate | str] | tuple = (),
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
                     store: RecordStore | None = None, progress: Callable[[int, int, str], None] | None = None,
                     options: ComparisonOptions | None = None, mass_evidence: MassEvidence | None = None,
                     **changes) -> Verdict:
     """Judge whether ``measured`` is the structure ``smiles`` (see the module docstring).
 
-    ``decoys``: how many generated decoys to rank with it; ``candidates``: further structures to
-    rank; ``options`` (:class:`vibest.comparison.ComparisonOptions`, any field also as a keyword)
+    ``measured``: a spectrum or the path of its file; ``decoys``: how many generated decoys to
+    rank with it; ``candidates``: further structures to rank (as :func:`vibest.ranking.rank_candidates` takes them); ``options`` (:class:`vibest.comparison.ComparisonOptions`, any field also as a keyword)
     say how each is compared (and the confidence is given only for the settings it was calibrated for).
     ``mass_evidence``: a mass spectrum, formula or mass (:class:`vibest.ms.MassEvidence`); each
     candidate is checked against it, contradicted decoys are dropped when it says so, and an
     intended structure it contradicts is not supported whatever the IR ranking."""
     if decoys < 0:
         raise InputError("the number of decoys cannot be negative")
+    if not isinstance(smiles, str):
+        raise InputError(f"smiles must be a SMILES string, not {type(smiles).__name__}")
+    measured, candidates = as_measured(measured), as_candidates(candidates)
     own = canonical_smiles(smiles)
     intended = Candidate(name or smiles, smiles)
     made = tuple(make_decoys(smiles, decoys))

@@ -15,7 +15,7 @@ from typing import Callable, Iterable
 
 from ..errors import InputError, VibestError
 from ..pipeline import CAUTION, CalculationOptions, SpectrumOptions, analyse
-from ..ranking import Candidate, read_candidates
+from ..ranking import Candidate, as_candidates, read_candidates
 from ..store import RecordStore, open_store, structure_identity
 
 #: Statuses of a batch entry.
@@ -75,27 +75,6 @@ class BatchEntry:
 def read_batch_input(path: str | Path) -> list[Candidate]:
     """Molecules from a file: ``SMILES [name]`` per line, or CSV with 'smiles' (and 'name') columns."""
     return read_candidates(path)
-
-
-def _as_candidates(molecules: Iterable) -> list[Candidate]:
-    if isinstance(molecules, (str, bytes)):
-        raise InputError("predict_many takes a list of molecules, not one string: write predict_many([smiles]) "
-                         "or vibest.predict(smiles)")
-    try:
-        molecules = list(molecules)
-    except TypeError:
-        raise InputError(f"predict_many takes a list of molecules, not {type(molecules).__name__}") from None
-    out = []
-    for m in molecules:
-        if isinstance(m, Candidate):
-            out.append(m)
-        elif isinstance(m, str):
-            out.append(Candidate(m, m))
-        elif isinstance(m, (tuple, list)) and len(m) == 2:
-            out.append(Candidate(str(m[0]), str(m[1])))
-        else:
-            raise InputError(f"batch input {m!r}: give SMILES strings, (name, smiles) pairs or Candidates")
-    return out
 
 
 def _safe_name(text: str) -> str:
@@ -161,7 +140,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
 
     spec.validate()
     spec.resolve_scale(calc.engine.method)
-    cands = _as_candidates(molecules)
+    cands = as_candidates(molecules, "predict_many")
     store = open_store(store)
     out_dir = Path(output_dir) if output_dir is not None else None
     if out_dir is not None:

@@ -198,6 +198,19 @@ def load_spectrum(path: str | Path, kind: str | None = None, block: int | None =
     return check_values(_with_sampling(finish(x, y, kind, str(path), p.stem, notes)))
 
 
+def as_measured(value, what: str = "measured") -> MeasuredSpectrum:
+    """``value`` as a :class:`MeasuredSpectrum`: one as it is, a path (str or os.PathLike) read by
+    :func:`load_spectrum`; anything else is an InputError naming the argument (``what``)."""
+    import os
+
+    if isinstance(value, MeasuredSpectrum):
+        return value
+    if isinstance(value, (str, os.PathLike)):
+        return load_spectrum(value)
+    raise InputError(f"{what} must be a measured spectrum (vibest.load_spectrum(path)) or a file path, "
+                    f"not {type(value).__name__}")
+
+
 def _with_sampling(spec: MeasuredSpectrum, state: str = "", procedure: str = "") -> MeasuredSpectrum:
     from ..sampling import GAS, sampling_of
 
