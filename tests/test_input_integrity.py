@@ -137,6 +137,19 @@ def test_click_usage_errors_are_one_line_and_a_closed_pipe_is_quiet():
     assert "rror" not in piped.stderr
 
 
+def test_output_piped_into_a_reader_that_stopped_still_writes_the_files_asked_for(tmp_path):
+    """``vibest compare ... --plot F | true``: the reader is gone before the first line; the
+    table goes nowhere, but the plot is written and said, and the exit is normal (until
+    2026-12-04 the command ended at the first line, exit 0, no plot)."""
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    plot = tmp_path / "x.png"
+    cmd = (f"{sys.executable} -m vibest.cli compare {root}/examples/hx07-recovered-solvent.csv O --plot {plot} "
+           "--no-store --workers 1 | true")
+    res = subprocess.run(cmd, shell=True, capture_output=True, text=True, timeout=300)
+    assert plot.is_file() and f"wrote {plot}" in res.stderr, res.stderr
+    assert "rror" not in res.stderr
+
+
 @pytest.mark.slow
 def test_sigterm_ends_a_batch_like_ctrl_c(tmp_path):
     """SIGTERM (a scheduler stopping the job) gives the summary and exit 130, like Ctrl-C."""
