@@ -193,6 +193,25 @@ def test_branch_maxima_follow_the_classical_p_r_separation():
     assert np.sum(y) * 0.1 == pytest.approx(1.0, abs=1e-3)
 
 
+def test_gas_phase_contour_keeps_the_line_shapes_tail():
+    """Far from a band the P+R envelope (unit area, within a few s of the centre) convolved with a
+    Lorentzian is the Lorentzian's own tail: f * L (x) = L(x) (1 + O(s^2 / x^2)) (a property of
+    convolution, common practice, no source). So the curve falls smoothly with distance: no cut
+    where the envelope's window ends (until 2026-12-04 the tails beyond 6 s + 5 FWHM were dropped,
+    a step of 0.05 in y**0.5 at B = 0.1 cm^-1, FWHM 16), and the band keeps its area."""
+    from vibest.gas_phase import envelope_spectrum
+    from vibest.spectrum import line_shape_values
+
+    x = grid(400, 4000, 1.0)
+    y = envelope_spectrum([1500.0], [100.0], 0.1, 0.0, 16.0, "lorentzian", x).absorption_km_mol_cm1
+    far = np.abs(x - 1500.0) >= 100.0  # 6 s^2 / x^2 < 0.03 there (s = 6.4 cm^-1)
+    assert y[far] / (100.0 * line_shape_values(x[far], 1500.0, 16.0, "lorentzian")) == pytest.approx(1.0, abs=0.05)
+    right = x >= 1560.0
+    assert np.all(np.diff(y[right]) < 0)  # falls all the way, no step
+    lorentz_area_in_range = 100.0 * line_shape_values(x, 1500.0, 16.0, "lorentzian").sum()
+    assert y.sum() == pytest.approx(lorentz_area_in_range, rel=0.005)
+
+
 def test_gas_phase_contour_keeps_intensity_and_is_chosen_from_the_file(tmp_path):
     """A band with a contour keeps its integrated intensity; a JCAMP-DX file with ##STATE=GAS
     switches the contour on by itself (JCAMP-DX 4.24 label, open standard)."""

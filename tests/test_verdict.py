@@ -224,6 +224,21 @@ def test_logistic_fit_and_calibration_error_on_known_data():
     assert expected_calibration_error(np.full(100, 0.9), np.zeros(100)) == pytest.approx(0.9)
 
 
+def test_calibration_error_of_a_calibrated_model_is_sampling_noise():
+    """Consistency resampling (Broecker & Smith 2007, from memory): labels drawn from the
+    confidences themselves give the ECE a perfectly calibrated model shows; it is pure sampling
+    noise, so it shrinks about as 1/sqrt(n) (common practice, no source): a hundred times the
+    rankings, a tenth of the error. Certain confidences (0 or 1) have no noise at all."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import confidence as bench
+
+    p = np.random.default_rng(5).uniform(0.05, 0.95, 10000)
+    small, large = bench.calibrated_ece(p[:100], draws=400), bench.calibrated_ece(p, draws=100)
+    assert small[0] > 0.04 and small[1] > small[0]
+    assert large[0] == pytest.approx(small[0] / np.sqrt(100), rel=0.6)
+    assert bench.calibrated_ece(np.tile([0.0, 1.0], 50), draws=50) == (0.0, 0.0)
+
+
 @pytest.mark.slow
 def test_verdict_on_real_spectra(measured_folder, tmp_path):
     store = tmp_path / "store.sqlite"

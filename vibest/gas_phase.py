@@ -118,13 +118,18 @@ def envelope_spectrum(wavenumbers_cm1, intensities_km_mol, b_cm1: float, q_fract
             y += a * line_shape_values(x, c, fwhm_cm1, line_shape)
         return Spectrum(x, y, line_shape, float(fwhm_cm1))
     s = np.sqrt(2.0 * b_cm1 * _KT_HC_PER_K * temperature_K)
-    half = max(6.0 * s + 5.0 * fwhm_cm1, 10 * step)
-    offsets = np.arange(-half, half + step / 2, step)
-    kernel_line = line_shape_values(offsets, 0.0, fwhm_cm1, line_shape) * step
-    branches = np.convolve(branch_profile(offsets, b_cm1, temperature_K), kernel_line, mode="same")
+    n = max(int(np.ceil((6.0 * s + 5.0 * fwhm_cm1) / step)), 10)  # the envelope's window, +-n steps
+    half = n * step
+    # the line shape over twice the window, so that the convolution is whole within the window
+    wide = np.arange(-2 * n, 2 * n + 1) * step
+    kernel_line = line_shape_values(wide, 0.0, fwhm_cm1, line_shape) * step
+    branches = np.convolve(kernel_line, branch_profile(np.arange(-n, n + 1) * step, b_cm1, temperature_K), mode="same")
     for c, a, qq in zip(nu, inten, q):
         if c <= 0:
             continue
-        contour = np.interp(x - c, offsets, branches, left=0.0, right=0.0)
+        # beyond the window the envelope (unit area, within 6 s of the centre) has the line shape's own
+        # tail; cut off there, the tails' loss showed as steps in the curve (and in y**0.5 compared)
+        contour = np.where(np.abs(x - c) <= half, np.interp(x - c, wide, branches),
+                           line_shape_values(x, c, fwhm_cm1, line_shape))
         y += a * ((1.0 - qq) * contour + qq * line_shape_values(x, c, fwhm_cm1, line_shape))
     return Spectrum(x, y, line_shape, float(fwhm_cm1))
