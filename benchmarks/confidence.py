@@ -15,8 +15,10 @@ structure is the label. A logistic model P(right | s1, m, f) is fitted
 measured spectra (leave-one-spectrum-out), never with the model's own training rows; the ECE is
 printed twice, with the chosen subset and penalty (shipped as cross_validated_ece), and nested
 (the subset and penalty also chosen without the held-out spectrum: the fairer figure, about 100 s).
-Printed: the reliability table, expected calibration error (ECE), and the two targets (wrong first
-candidates flagged by low confidence or a poor fit; right ones with confidence >= 0.7).
+Printed: the reliability table, expected calibration error (ECE) beside the ECE that a perfectly
+calibrated model would show with the same confidences (its sampling noise: about 0.10 on ~100
+rankings), and the two targets (wrong first candidates flagged by low confidence or a poor fit;
+right ones with confidence >= 0.7).
 
     python benchmarks/confidence.py [--method gfn2|gfn1] [--store FILE] [--write]
     python benchmarks/confidence.py --method gfn1 --refine 5 --refine-method b3lyp --store FILE [--write]
