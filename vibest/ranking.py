@@ -32,11 +32,11 @@ def as_candidates(values, what: str = "candidates") -> list[Candidate]:
     itself) or a (name, SMILES) pair. A single string, or anything else, is an InputError that
     names the argument or call (``what``)."""
     if isinstance(values, (str, bytes)):
-        raise InputError(f"{what} takes a list of structures, not one string: write [{values!r}]")
+        raise InputError(f"{what}: a list of structures is needed, not one string: write [{values!r}]")
     try:
         values = list(values)
     except TypeError:
-        raise InputError(f"{what} takes a list of structures, not {type(values).__name__}") from None
+        raise InputError(f"{what}: a list of structures is needed, not {type(values).__name__}") from None
     out = []
     for v in values:
         if isinstance(v, Candidate):
