@@ -112,9 +112,13 @@ def test_dask_local_cluster_gives_the_same_results(tmp_path):
            [[(round(k.wavenumber_cm1, 3), k.label) for k in e.key_bands] for e in local_entries]
 
 
+#: The last four are larger (seconds each), so that the batch is still at work when it is stopped:
+#: with small molecules only, a stop that came late (the test's read of the busy store can lag)
+#: found every row done, and the batch rightly ended with exit 0 (a flake seen once in CI, 2026-12-04).
 KILL_SET = ["CCCCCC", "Cc1ccccc1", "CCOC(C)=O", "CC(=O)Nc1ccccc1", "CCCCO", "c1ccc2ccccc2c1", "CCN(CC)CC",
             "OC(=O)c1ccccc1", "CCCCCCC", "CC(C)CC(C)C", "CCc1ccccc1", "COc1ccccc1", "CCCC(=O)OC", "CC(C)O",
-            "NCCc1ccccc1", "Oc1ccccc1C"]
+            "NCCc1ccccc1", "Oc1ccccc1C", "CCCCCCCCCCCC", "c1ccc(cc1)-c1ccccc1", "CC(C)(C)c1ccc(O)cc1",
+            "CCCCCCCCCCO"]
 
 
 def _worker_children(pid: int) -> list[int]:
