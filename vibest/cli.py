@@ -369,10 +369,7 @@ class _StdoutUntilReaderGoes:
 
     def _drop(self):
         self.reader_gone = True
-        try:  # what is still buffered goes nowhere, also when the interpreter flushes at exit
-            os.dup2(os.open(os.devnull, os.O_WRONLY), self._stream.fileno())
-        except (OSError, ValueError, AttributeError):
-            pass
+        _stdout_to_devnull(self._stream)  # what is still buffered goes nowhere, also at exit
 
     def __getattr__(self, name):
         return getattr(self._stream, name)
@@ -399,13 +396,18 @@ class _Commands(click.Group):
             sys.stdout = stdout
 
 
+def _stdout_to_devnull(stream) -> None:
+    """Point ``stream``'s file descriptor at /dev/null (its reader has gone); streams without one
+    (a test runner's buffer) are left as they are."""
+    try:
+        os.dup2(os.open(os.devnull, os.O_WRONLY), stream.fileno())
+    except (OSError, ValueError, AttributeError):
+        pass
+
+
 def _quiet_broken_pipe() -> None:
     """Output piped into a program that stopped reading (``| head``): end quietly, as Unix tools do."""
-    try:
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-    except OSError:
-        pass
+    _stdout_to_devnull(sys.stdout)
     sys.exit(0)
 
 

@@ -586,7 +586,7 @@ def compare(pred: Prediction, measured: MeasuredSpectrum | str, options: Compari
     and/or shift maximising the score) and :func:`peak_table`. The fitted values are reported in
     the result; the prediction itself is not changed.
     """
-    if isinstance(pred, (str, bytes)) or not hasattr(pred, "spectrum"):
+    if not hasattr(pred, "spectrum"):
         raise InputError(f"compare takes a prediction (vibest.predict(smiles)), not {type(pred).__name__}")
     measured = as_measured(measured)
     opts = comparison_options(options, **changes)

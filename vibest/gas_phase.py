@@ -129,7 +129,7 @@ def envelope_spectrum(wavenumbers_cm1, intensities_km_mol, b_cm1: float, q_fract
             continue
         # beyond the window the envelope (unit area, within 6 s of the centre) has the line shape's own
         # tail; cut off there, the tails' loss showed as steps in the curve (and in y**0.5 compared)
-        contour = np.where(np.abs(x - c) <= half, np.interp(x - c, wide, branches),
-                           line_shape_values(x, c, fwhm_cm1, line_shape))
-        y += a * ((1.0 - qq) * contour + qq * line_shape_values(x, c, fwhm_cm1, line_shape))
+        line = line_shape_values(x, c, fwhm_cm1, line_shape)
+        contour = np.where(np.abs(x - c) <= half, np.interp(x - c, wide, branches), line)
+        y += a * ((1.0 - qq) * contour + qq * line)
     return Spectrum(x, y, line_shape, float(fwhm_cm1))

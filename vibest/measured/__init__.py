@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime
+import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -201,8 +202,6 @@ def load_spectrum(path: str | Path, kind: str | None = None, block: int | None =
 def as_measured(value, what: str = "measured") -> MeasuredSpectrum:
     """``value`` as a :class:`MeasuredSpectrum`: one as it is, a path (str or os.PathLike) read by
     :func:`load_spectrum`; anything else is an InputError naming the argument (``what``)."""
-    import os
-
     if isinstance(value, MeasuredSpectrum):
         return value
     if isinstance(value, (str, os.PathLike)):
