@@ -1,9 +1,11 @@
 """Scores, scale/shift fit, peak matching and ranking."""
 
+import dataclasses
 import sys
 from pathlib import Path
 
 import numpy as np
+
 import pytest
 
 from vibest.comparison import compare, match_peaks, Peak, predicted_curve, score, SCORES
@@ -120,6 +122,22 @@ def test_peak_table_names_the_carbonyl():
     comp = compare(pred, _synthetic_measured(pred, 1.0), condensed_shifts=False)
     strongest = max((r for r in comp.matches if r.matched), key=lambda r: r.measured_height)
     assert "C=O stretch" in strongest.character and strongest.shift_cm1 == pytest.approx(0, abs=2.5)
+
+
+def test_peak_table_columns_line_up():
+    """Every row's region and character start where the header's do, unmatched rows included
+    (the shift column once was narrower than the word "unmatched")."""
+    from vibest.output import peak_table
+
+    pred = prediction_of("CC(C)=O")
+    measured = _synthetic_measured(pred, 1.0)
+    x = measured.wavenumbers_cm1  # the C=O band taken out: the predicted one stays unmatched
+    measured = dataclasses.replace(measured, values=np.where((x > 1650) & (x < 1850), 0.0, measured.values))
+    lines = peak_table(compare(pred, measured, condensed_shifts=False)).splitlines()
+    assert any("unmatched" in line for line in lines[1:])
+    start = lines[0].index("region")
+    for line in lines[1:]:
+        assert line[start:].split()[0] in ("fingerprint", "group-frequency"), line
 
 
 def test_ranking_from_trade_facts(tmp_path):

@@ -185,13 +185,14 @@ def _jcamp_labels(pred: Prediction) -> dict:
 
 def peak_table(comp) -> str:
     """Plain-text peak-match table of a :class:`vibest.comparison.Comparison`."""
-    lines = [f"{'measured':>9} {'height':>6}  {'predicted':>9} {'height':>6}  {'shift':>6}  {'region':<11}  character"]
+    # columns as wide as their longest entry ("unmatched", "group-frequency"), so that rows align
+    lines = [f"{'measured':>9} {'height':>6}  {'predicted':>9} {'height':>6}  {'shift':>9}  {'region':<15}  character"]
     for m in comp.matches:
         meas = f"{m.measured_cm1:9.1f} {m.measured_height:6.2f}" if m.measured_cm1 is not None else f"{'-':>9} {'':>6}"
         prd = f"{m.predicted_cm1:9.1f} {m.predicted_height:6.2f}" if m.predicted_cm1 is not None else f"{'-':>9} {'':>6}"
-        shift = f"{m.shift_cm1:+6.1f}" if m.shift_cm1 is not None else f"{'unmatched':>6}"
+        shift = f"{m.shift_cm1:+9.1f}" if m.shift_cm1 is not None else f"{'unmatched':>9}"
         where = region_of(m.measured_cm1 if m.measured_cm1 is not None else m.predicted_cm1)
-        lines.append(f"{meas}  {prd}  {shift}  {where:<11}  {m.character}")
+        lines.append(f"{meas}  {prd}  {shift}  {where:<15}  {m.character}".rstrip())
     return "\n".join(lines)
 
 
