@@ -143,6 +143,18 @@ def test_shift_at_bound_flag_on_a_constructed_case():
     assert shift_flag(compare(water, _synthetic(water)), 20.0) is None
 
 
+def test_a_lone_candidate_keeps_its_flags(tmp_path):
+    """With no decoy to rank against there is no confidence, but a fit at the shift bound is still
+    said (the verdict once dropped every flag when the intended structure stood alone)."""
+    from vibest.store import RecordStore
+
+    water = prediction_of("O")
+    v = check_structure(_synthetic(water, shift_cm1=45.0), "O", decoys=0, store=RecordStore(tmp_path / "s.sqlite"))
+    assert v.assessment.confidence is None and "no decoy" in v.assessment.note
+    assert SHIFT_AT_BOUND in {f.kind for f in v.assessment.flags}
+    assert any("bound" in r for r in v.reasons) and v.conclusion == INCONCLUSIVE
+
+
 def test_margin_within_noise_poor_fit_and_low_confidence_on_constructed_cases():
     formaldehyde = prediction_of("C=O")
     measured = _synthetic(formaldehyde)

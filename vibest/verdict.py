@@ -17,7 +17,7 @@ Nothing here computes more than predictions (stored) and comparisons.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable
 
 from .calculation.driver import CalculationOptions
@@ -119,10 +119,9 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     entry = next(e for e in ranking.entries if e.candidate == intended)
     if entry.comparison is None:
         raise InputError(f"the intended structure could not be predicted: {entry.error}")
-    if len(pool) == 1:
-        assessment = Assessment(None, (), "no decoy or other candidate to rank against")
-    else:
-        assessment = assess(ranking, calc.method_name, spec.fwhm_cm1)
+    assessment = assess(ranking, calc.method_name, spec.fwhm_cm1)
+    if len(pool) == 1:  # no confidence, but the flags of a lone candidate's fit still hold
+        assessment = replace(assessment, note="no decoy or other candidate to rank against")
     evidence = tuple(group_evidence(entry.prediction, entry.comparison))
     conclusion, reasons = _conclude(intended, ranking, assessment, evidence)
     mine = next((c for c in checks if c.smiles == intended.smiles), None)
