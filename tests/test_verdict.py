@@ -153,6 +153,10 @@ def test_a_lone_candidate_keeps_its_flags(tmp_path):
     assert v.assessment.confidence is None and "no decoy" in v.assessment.note
     assert SHIFT_AT_BOUND in {f.kind for f in v.assessment.flags}
     assert any("bound" in r for r in v.reasons) and v.conclusion == INCONCLUSIVE
+    # unnamed, the report says the name is a SMILES ("CO" would read as carbon monoxide)
+    from vibest.output import verdict_report
+
+    assert "intended structure: O (SMILES)" in verdict_report(v)
 
 
 def test_margin_within_noise_poor_fit_and_low_confidence_on_constructed_cases():

@@ -155,14 +155,14 @@ def plot_prediction(pred: Prediction, path: str | Path, transmittance: bool = Fa
         ax.set_ylabel("absorbance (normalised)")
         ax.set_ylim(0, 1.55)
         ax.legend(loc="upper left", fontsize=7.5, frameon=False)
-    ax.set_title(f"predicted IR spectrum: {_short(pred.smiles, 40)}  ({pred.method_name}, {pred.medium})", fontsize=10)
+    ax.set_title(f"predicted IR spectrum: {short(pred.smiles, 40)}  ({pred.method_name}, {pred.medium})", fontsize=10)
     fig.text(0.01, 0.01, f"scaling: {pred.scale.describe()}.  {PLOT_CAUTION}", fontsize=6.5, color="#7f7f7f")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     write_with(path, fig.savefig)
     plt.close(fig)
 
 
-def _short(text: str, n: int) -> str:
+def short(text: str, n: int) -> str:
     return text if len(text) <= n else text[: n - 3] + "..."
 
 
@@ -276,7 +276,7 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
                                   gridspec_kw={"height_ratios": [3.2, 1]})
     ax.plot(g, m, color="black", lw=1.1, label=measured_label)
     shift = f", shifted {comp.shift_cm1:+.1f} cm$^{{-1}}$" if comp.settings.get("fit_shift") else ""
-    ax.plot(g, p, color="#c55a11", lw=1.1, label=f"predicted {_short(name or comp.smiles, 40)}{shift}")
+    ax.plot(g, p, color="#c55a11", lw=1.1, label=f"predicted {short(name or comp.smiles, 40)}{shift}")
     matched = [r for r in comp.matches if r.matched]
     unmatched = [r for r in comp.matches if r.measured_cm1 is not None and not r.matched]
     for row in matched:  # peak heights are absorbances: drawn on the compared (powered) scale
@@ -291,7 +291,7 @@ def plot_overlay(comp, path: str | Path, title: str = "", measured_label: str = 
     ax.set_ylim(0, 1.3)
     ax.set_ylabel("absorbance (normalised)" if power == 1.0 else f"(normalised absorbance)$^{{{power:g}}}$, as compared")
     ax.legend(loc="upper left", fontsize=7.5, frameon=False)
-    ax.set_title(title or f"{_short(name or comp.smiles, 40)}: {comp.score_name} score {comp.score:.3f}", fontsize=9.5)
+    ax.set_title(title or f"{short(name or comp.smiles, 40)}: {comp.score_name} score {comp.score:.3f}", fontsize=9.5)
     axr.plot(g, m - p, color="#404040", lw=0.8)
     axr.axhline(0, color="#999999", lw=0.6)
     axr.set_ylabel("residual")
@@ -371,7 +371,7 @@ def verdict_report(verdict) -> str:
     the ranking, and the evidence by functional group."""
     m = verdict.ranking.measured
     lines = [f"sample: {m.source}" + (f"  ({m.title})" if m.title else ""),
-             f"intended structure: {verdict.intended.name} ({verdict.intended.smiles})",
+             f"intended structure: {verdict.intended.label}",
              f"verdict: {verdict.conclusion.upper()}"]
     lines += [f"  {r}" for r in verdict.reasons]
     if verdict.assessment.confidence is None and verdict.assessment.note:

@@ -26,6 +26,12 @@ class Candidate:
     smiles: str
     problem: str = ""
 
+    @property
+    def label(self) -> str:
+        """"name (SMILES)"; an unnamed candidate (its name is its SMILES) is "CO (SMILES)", so
+        that a bare SMILES such as methanol's "CO" is not read as a name (carbon monoxide)."""
+        return f"{self.name} ({self.smiles})" if self.name != self.smiles else f"{self.smiles} (SMILES)"
+
 
 def as_candidates(values, what: str = "candidates") -> list[Candidate]:
     """``values`` as a list of :class:`Candidate`: each a Candidate, a SMILES string (named by
