@@ -30,8 +30,8 @@ def test_decoys_of_2_butanone():
     assert len(smiles) == len(decoys)  # distinct
     for d in decoys:
         assert Chem.MolFromSmiles(d.smiles) is not None and d.reason
-    # isomers and one-CH2 homologues only
-    assert {formula(s) for s in smiles} <= {"C4H8O", "C3H6O", "C5H10O"}
+    # isomers, one-CH2 homologues and the reduced alcohol only
+    assert {formula(s) for s in smiles} <= {"C4H8O", "C3H6O", "C5H10O", "C4H10O"}
 
 
 def test_ring_positions_are_moved():
@@ -43,6 +43,21 @@ def test_functional_group_changes():
     assert canon("COC") in {d.smiles for d in make_decoys("CCO")}  # alcohol -> ether
     assert canon("COC(C)=O") in {d.smiles for d in make_decoys("CC(=O)O")}  # acid -> methyl ester
     assert canon("CC(=O)O") in {d.smiles for d in make_decoys("COC(C)=O")}  # and back
+
+
+def test_redox_steps():
+    """Reduction and oxidation products (common practice, no source): 2-butanone reduces to
+    2-butanol; methanol oxidises to formaldehyde, formaldehyde to formic acid; a tertiary alcohol
+    has no carbonyl to oxidise to, and an acid, ester or amide carbonyl is not reduced here."""
+    butanone = {d.smiles: d.reason for d in make_decoys("CCC(C)=O")}
+    assert butanone[canon("CCC(C)O")] == "carbonyl reduced to alcohol"
+    assert canon("C=O") in {d.smiles for d in make_decoys("CO")}
+    formaldehyde = {d.smiles: d.reason for d in make_decoys("C=O")}
+    assert formaldehyde == {canon("CO"): "carbonyl reduced to alcohol",
+                            canon("O=CO"): "aldehyde oxidised to acid"}
+    assert not any("oxidised" in d.reason for d in make_decoys("CC(C)(C)O"))
+    for smiles in ("CC(=O)O", "CC(=O)OC", "CC(N)=O"):
+        assert not any("reduced" in d.reason for d in make_decoys(smiles))
 
 
 def test_count_limits_and_order_is_deterministic():

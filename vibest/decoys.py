@@ -9,7 +9,8 @@ a synthesis could have given instead match it worse. This module makes such stru
 * **functional-group changes**: keto/enol and allylic-alcohol tautomers (2-butanone ->
   3-buten-2-ol, but-2-en-2-ol), ketone -> enol ether (2-butanone -> ethyl vinyl ether),
   alcohol <-> ether, acid <-> methyl ester, double bond moved along a chain, one CH2 more or less,
-  a C- or N-methyl group removed, a methyl group added to an aromatic ring.
+  a C- or N-methyl group removed, a methyl group added to an aromatic ring, and the redox steps
+  (aldehyde or ketone <-> alcohol, aldehyde -> acid: 2-butanone -> 2-butanol).
 
 Each decoy is a valid, sanitizable molecule, distinct from the intended structure and from every
 other decoy by canonical SMILES, and carries the reason it was made. The order is deterministic:
@@ -48,6 +49,12 @@ TRANSFORMS: tuple[tuple[str, str], ...] = (
     ("methyl removed", "[CH3;X4][#6,#7;!$([CH3]):1]>>[*:1]"),
     # a methyl group on an aromatic C-H (benzene -> toluene, toluene -> the xylenes)
     ("methyl added to ring", "[cH:1]>>[c:1]C"),
+    # the redox steps a synthesis takes or misses: an aldehyde or ketone (not an acid, ester or
+    # amide carbon) to its alcohol, a primary or secondary alcohol to its aldehyde or ketone, an
+    # aldehyde to its acid (2-butanone -> 2-butanol, methanol -> formaldehyde -> formic acid)
+    ("carbonyl reduced to alcohol", "[C;X3;!$(C[O,N,S,F,Cl,Br,I]):1]=[O:2]>>[C:1][O:2]"),
+    ("alcohol oxidised to carbonyl", "[C;X4;!H0:1][OH1:2]>>[C:1]=[O:2]"),
+    ("aldehyde oxidised to acid", "[C;X3;!H0;!$(C[O,N,S,F,Cl,Br,I]):1]=[O:2]>>[C:1](=[O:2])O"),
 )
 #: A decoy has at least this many heavy atoms (methylamine's "methyl removed" is not ammonia).
 MIN_HEAVY_ATOMS = 2
