@@ -32,7 +32,7 @@ from pathlib import Path
 import numpy as np
 
 from vibest.analysis.calibration import (cross_validated_mad, error_statistics, fit_per_coordinate, fit_regions,
-                                         fit_uniform, pooled, predicted_wavenumbers, prepare_case, reference_molecules,
+                                         fit_uniform, held_out_names, pooled, predicted_wavenumbers, prepare_case, reference_molecules,
                                          split_train_test)
 from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM, ScaleModel
 from vibest.calculation.driver import calculation_options
@@ -43,7 +43,7 @@ from vibest.reference_records import REFERENCE_OPTIONS, computed_with, reference
 
 
 def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFERENCE_OPTIONS,
-                  cached_only: bool = False):
+                  cached_only: bool = False, references=None):
     """Assigned cases of every reference molecule; records are kept in ``cache`` (a pickle,
     written after each new molecule, so that an interrupted run resumes). ``cached_only`` leaves
     out molecules not in the cache (a partial fit, said in the output). A cached failure (the
@@ -53,7 +53,7 @@ def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFER
     if cache and cache.exists():
         records = pickle.loads(cache.read_bytes())
     cases = []
-    for ref in reference_molecules():
+    for ref in reference_molecules() if references is None else references:
         t0 = time.perf_counter()
         stale = records.get(ref.smiles)
         if isinstance(stale, HessianRecord) and not computed_with(stale, options):
@@ -86,6 +86,61 @@ def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFER
     return cases
 
 
+def basis_size(smiles: str, options) -> int:
+    """Basis functions of ``smiles`` in ``options``' density-functional basis (0 for tight binding)."""
+    from rdkit import Chem
+
+    from vibest.calculation.dft_engine import build_pyscf_molecule
+
+    if not options.engine.is_dft:
+        return 0
+    mol = Chem.AddHs(Chem.MolFromSmiles(smiles))
+    numbers = [a.GetAtomicNum() for a in mol.GetAtoms()]
+    positions = np.arange(3 * len(numbers), dtype=float).reshape(-1, 3) * 3.0  # the size needs no geometry
+    return int(build_pyscf_molecule(numbers, positions, Chem.GetFormalCharge(mol), 0, options.engine).nao)
+
+
+#: Fold assignments averaged over by :func:`paired_comparison`.
+PAIRED_SHUFFLES = 8
+
+
+def paired_comparison(methods: list[str], max_basis: int, records: Path) -> None:
+    """Methods side by side on the training molecules only (the held-out ones are never computed)
+    of at most ``max_basis`` basis functions in every method's basis, smallest first: each method's
+    4-fold cross-validated MAD of each scale model on the molecules all methods computed.
+    Records are kept in ``records``/METHOD.pkl (an interrupted run resumes)."""
+    held = held_out_names()
+    options = {m: calculation_options(m, workers=None) for m in methods}
+    sized = []
+    for ref in reference_molecules():
+        if ref.name not in held:
+            size = max(basis_size(ref.smiles, o) for o in options.values())
+            if size <= max_basis:
+                sized.append((size, ref))
+    references = [ref for _, ref in sorted(sized, key=lambda t: t[0])]
+    print(f"{len(references)} training molecules of at most {max_basis} basis functions", file=sys.stderr)
+    records.mkdir(parents=True, exist_ok=True)
+    cases = {m: compute_cases(cache=records / f"{m}.pkl", options=o, references=references)
+             for m, o in options.items()}
+    common = set.intersection(*({c.reference.name for c in cs} for cs in cases.values()))
+    print(f"{len(common)} training molecules computed by every method: {', '.join(sorted(common))}")
+    # the folds depend on the molecules' order (molecule k in fold k % 4), and on ~30 molecules
+    # that alone moves a figure by 1-2 cm^-1: every method gets the same PAIRED_SHUFFLES orders
+    orders = [np.random.default_rng(seed).permutation(len(common)) for seed in range(PAIRED_SHUFFLES)]
+    print(f"\n4-fold cross-validated MAD (cm-1), mean [min-max] over {PAIRED_SHUFFLES} fold assignments, the same for "
+          "every method")
+    print(f"{'method':<8} {'pairs':>5} {'uniform factor':>14}  " + "".join(f"{n:>22}" for n in (UNIFORM, REGION,
+                                                                                               PER_COORDINATE)))
+    for m, cs in cases.items():
+        cs = sorted((c for c in cs if c.reference.name in common), key=lambda c: c.reference.name)
+        row = []
+        for name in (UNIFORM, REGION, PER_COORDINATE):
+            cv = [cross_validated_mad([cs[i] for i in order], model_name=name) for order in orders]
+            row.append(f"{np.mean(cv):.1f} [{min(cv):.1f}-{max(cv):.1f}]")
+        pairs = sum(len(c.experimental_cm1) for c in cs)
+        print(f"{m:<8} {pairs:>5} {fit_uniform(cs):14.4f}  " + "".join(f"{r:>22}" for r in row))
+
+
 def fit_models(cases):
     """(train, test, {name: model}) fitted on the training split."""
     train, test = split_train_test(cases)
@@ -113,7 +168,15 @@ def main() -> None:
     ap.add_argument("--cv", action="store_true",  # kept for old command lines: the figure is always printed
                     help="also print the per-coordinate model's 4-fold cross-validated MAD over the training "
                          "molecules (the figure to choose coordinate types by; ~2 min)")
+    ap.add_argument("--paired", default=None, metavar="M1,M2",
+                    help="instead of fitting: compare methods side by side on the smaller training molecules "
+                         "(cross-validated MAD only; records kept in --records, a folder here)")
+    ap.add_argument("--max-basis", type=int, default=66,
+                    help="with --paired: the largest molecule, in basis functions of every method's basis [66]")
     args = ap.parse_args()
+    if args.paired:
+        paired_comparison(args.paired.split(","), args.max_basis, args.records or Path("paired-records"))
+        return
     level = parse_level(args.method)
     options = REFERENCE_OPTIONS if level.key == "gfn2" else calculation_options(args.method, workers=None if
                                                                                level.uses_dft else 1)
