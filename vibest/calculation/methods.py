@@ -129,8 +129,8 @@ METHODS: dict[str, Method] = {m.key: m for m in (
     # Two modern alternatives measured beside B3LYP (README "Levels of theory"). No scale models are
     # fitted for them (a fit needs their Hessians of the 82 reference molecules: hours on 2 cores;
     # side by side on 29 small training molecules, wB97X's per-coordinate model was only ~1.3 cm^-1
-    # better than B3LYP's, README "A modern functional for positions?"), so they serve as intensity
-    # methods (gfn1+wb97x) or, at the full level, with --scale-factor.
+    # better than B3LYP's and r2SCAN's ~2.3 worse, README "A modern functional for positions?"),
+    # so they serve as intensity methods (gfn1+wb97x) or, at the full level, with --scale-factor.
     # "wb97x-d3bj" is PySCF's keyword for the range-separated hybrid wB97X with D3(BJ) dispersion
     # (Najibi & Goerigk 2018 parameters, from memory), so no separate dispersion keyword.
     Method("wb97x", "wB97X-D3(BJ)/def2-SVP", DFT,
