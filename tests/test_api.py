@@ -111,8 +111,15 @@ def test_measured_spectra_and_candidates_as_a_user_types_them(tmp_path):
     store = vibest.RecordStore(tmp_path / "s.sqlite")
     by_objects = vibest.rank_candidates(spec, [vibest.Candidate("water", "O"), vibest.Candidate("methanol", "CO")],
                                        store=store, calc=vibest.CalculationOptions(workers=1))
-    by_text = vibest.rank_candidates(str(path), ["O", ("methanol", "CO")], store=store,
+    # the store as a path too, as predict() takes it (rank_candidates and check_structure once
+    # failed with "'str' object has no attribute 'get'": new-user pass, 2026-12-05)
+    by_text = vibest.rank_candidates(str(path), ["O", ("methanol", "CO")], store=str(tmp_path / "s.sqlite"),
                                     calc=vibest.CalculationOptions(workers=1))
+    assert all(e.from_store for e in by_text.entries)
+    verdict = vibest.check_structure(path, "O", decoys=0, store=tmp_path / "s.sqlite")
+    assert verdict.ranking.entries[0].from_store
+    with pytest.raises(InputError, match="store"):
+        vibest.rank_candidates(spec, ["O"], store=3)
     assert [e.candidate.smiles for e in by_text.entries] == [e.candidate.smiles for e in by_objects.entries] == ["O", "CO"]
     assert [e.score for e in by_text.entries] == pytest.approx([e.score for e in by_objects.entries])
     assert [e.candidate.name for e in by_text.entries] == ["O", "methanol"]

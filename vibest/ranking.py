@@ -13,7 +13,7 @@ from .errors import InputError, VibestError
 from .hydrogen_bonding import with_hydrogen_bonding
 from .measured import MeasuredSpectrum, as_measured
 from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record
-from .store import RecordStore
+from .store import RecordStore, open_store
 from .structure import build_molecule
 
 
@@ -232,14 +232,15 @@ def predict_stored(smiles: str, calc: CalculationOptions, spec: SpectrumOptions,
 
 def rank_candidates(measured: MeasuredSpectrum | str | Path, candidates: list[Candidate | str], *,
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
-                    store: RecordStore | None = None, options: ComparisonOptions | None = None,
+                    store: RecordStore | str | Path | None = None, options: ComparisonOptions | None = None,
                     progress: Callable[[int, int, str], None] | None = None, refine: int = 0,
                     refine_calc: CalculationOptions | None = None, refine_progress=None,
                     **changes) -> Ranking:
     """Predict (or reuse) every candidate, compare it with ``measured`` and rank by score.
 
     ``measured``: a spectrum or the path of its file; ``candidates``: :class:`Candidate` objects,
-    SMILES strings or (name, SMILES) pairs.
+    SMILES strings or (name, SMILES) pairs; ``store``: a result store or the path of its SQLite
+    file (None: nothing is stored).
 
     A candidate that cannot be predicted is listed last with its error; it never stops the ranking.
     ``options`` (:class:`vibest.comparison.ComparisonOptions`), with any of its fields given as
@@ -253,6 +254,7 @@ def rank_candidates(measured: MeasuredSpectrum | str | Path, candidates: list[Ca
     (minutes each at a density-functional level).
     """
     measured, candidates = as_measured(measured), as_candidates(candidates)
+    store = None if store is None else open_store(store)
     if not candidates:
         raise InputError("no candidate structures given")
     if refine and refine_calc is None:

@@ -18,6 +18,7 @@ Nothing here computes more than predictions (stored) and comparisons.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from pathlib import Path
 from typing import Callable
 
 from .calculation.driver import CalculationOptions
@@ -83,12 +84,14 @@ class Verdict:
 def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str | None = None,
                     decoys: int = DEFAULT_DECOYS, candidates: list[Candidate | str] | tuple = (),
                     calc: CalculationOptions = CalculationOptions(), spec: SpectrumOptions = SpectrumOptions(),
-                    store: RecordStore | None = None, progress: Callable[[int, int, str], None] | None = None,
+                    store: RecordStore | str | Path | None = None,
+                    progress: Callable[[int, int, str], None] | None = None,
                     options: ComparisonOptions | None = None, mass_evidence: MassEvidence | None = None,
                     **changes) -> Verdict:
     """Judge whether ``measured`` is the structure ``smiles`` (see the module docstring).
 
-    ``measured``: a spectrum or the path of its file; ``decoys``: how many generated decoys to
+    ``measured``: a spectrum or the path of its file; ``store``: a result store or the path of
+    its SQLite file (None: nothing is stored); ``decoys``: how many generated decoys to
     rank with it; ``candidates``: further structures to rank (as :func:`vibest.ranking.rank_candidates` takes them); ``options`` (:class:`vibest.comparison.ComparisonOptions`, any field also as a keyword)
     say how each is compared (and the confidence is given only for the settings it was calibrated for).
     ``mass_evidence``: a mass spectrum, formula or mass (:class:`vibest.ms.MassEvidence`); each
