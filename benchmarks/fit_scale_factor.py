@@ -32,8 +32,8 @@ from pathlib import Path
 import numpy as np
 
 from vibest.analysis.calibration import (cross_validated_mad, error_statistics, fit_per_coordinate, fit_regions,
-                                         fit_uniform, held_out_names, pooled, predicted_wavenumbers, prepare_case, reference_molecules,
-                                         split_train_test)
+                                         fit_uniform, held_out_names, pooled, predicted_wavenumbers, prepare_case,
+                                         reference_molecules, split_train_test)
 from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM, ScaleModel
 from vibest.calculation.driver import calculation_options
 from vibest.errors import VibestError
@@ -125,7 +125,7 @@ def paired_comparison(methods: list[str], max_basis: int, records: Path) -> None
     common = set.intersection(*({c.reference.name for c in cs} for cs in cases.values()))
     print(f"{len(common)} training molecules computed by every method: {', '.join(sorted(common))}")
     # the folds depend on the molecules' order (molecule k in fold k % 4), and on ~30 molecules
-    # that alone moves a figure by 1-2 cm^-1: every method gets the same PAIRED_SHUFFLES orders
+    # that alone moves a figure by up to ~3 cm^-1: every method gets the same PAIRED_SHUFFLES orders
     orders = [np.random.default_rng(seed).permutation(len(common)) for seed in range(PAIRED_SHUFFLES)]
     print(f"\n4-fold cross-validated MAD (cm-1), mean [min-max] over {PAIRED_SHUFFLES} fold assignments, the same for "
           "every method")
