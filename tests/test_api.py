@@ -137,3 +137,30 @@ def test_measured_spectra_and_candidates_as_a_user_types_them(tmp_path):
         vibest.compare("O", spec)
     with pytest.raises(InputError, match="before"):
         vibest.difference_spectrum(None, spec)
+
+
+def test_settings_of_the_wrong_type_are_one_line_input_errors(tmp_path):
+    """Settings passed as a user might guess them (a method name where CalculationOptions go, a
+    number where SpectrumOptions go, a string of decoys, a negative band width) are one-line
+    InputErrors that say what to pass; they used to fail deep inside with AttributeError,
+    TypeError or ValueError (new-user pass, 2026-12-05). No calculation is needed to refuse."""
+    import vibest
+    from vibest.errors import InputError
+
+    from .conftest import prediction_of
+
+    water = prediction_of("O")
+    from vibest.measured import MeasuredSpectrum
+
+    spec = MeasuredSpectrum(water.spectrum.wavenumbers_cm1, water.spectrum.absorbance_normalised, "absorbance",
+                            source="constructed")
+    cases = [(dict(calc="gfn2"), "calculation_options"), (dict(spec=16), "SpectrumOptions"),
+             (dict(options="x"), "ComparisonOptions"), (dict(refine=1, refine_calc="b3lyp"), "refine_calc"),
+             (dict(method="gfn2"), "calc=vibest.calculation_options"), (dict(fwhm_cm1=-3.0), "positive"),
+             (dict(step_cm1=0.0), "positive")]
+    for kwargs, words in cases:
+        with pytest.raises(InputError, match=words):
+            vibest.rank_candidates(spec, ["O"], **kwargs)
+    for decoys in ("3", -1, 2.5, True):
+        with pytest.raises(InputError, match="decoys"):
+            vibest.check_structure(spec, "O", decoys=decoys)

@@ -353,6 +353,9 @@ class ComparisonOptions:
             raise InputError(f"intensity power {self.intensity_power} must be between 0.1 and 2")
         if self.tolerance_cm1 <= 0:
             raise InputError(f"peak-match tolerance {self.tolerance_cm1:g} cm^-1 must be positive")
+        for name, value in (("band width fwhm_cm1", self.fwhm_cm1), ("grid step step_cm1", self.step_cm1)):
+            if value is not None and not (np.isfinite(value) and value > 0):
+                raise InputError(f"{name} {value:g} cm^-1 must be positive")
         from .sampling import CRYSTALS
 
         if self.atr not in ("auto", "off", *CRYSTALS):
@@ -376,7 +379,9 @@ def comparison_options(options: ComparisonOptions | None = None, **changes) -> C
     base = options or ComparisonOptions()
     unknown = set(changes) - {f.name for f in dataclasses.fields(ComparisonOptions)}
     if unknown:
-        raise InputError(f"unknown comparison option(s) {', '.join(sorted(unknown))}")
+        hint = ("; the level of theory goes in calc=vibest.calculation_options('gfn2')"
+                if unknown & {"method", "level"} else "")
+        raise InputError(f"unknown comparison option(s) {', '.join(sorted(unknown))}{hint}")
     return dataclasses.replace(base, **changes).checked() if changes else base.checked()
 
 

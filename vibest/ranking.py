@@ -33,6 +33,22 @@ class Candidate:
         return f"{self.name} ({self.smiles})" if self.name != self.smiles else f"{self.smiles} (SMILES)"
 
 
+#: What each settings argument of the ranking calls must be: (type, None allowed, how to make one).
+_SETTINGS_TYPES = {"calc": (CalculationOptions, False, "vibest.calculation_options('gfn2')"),
+                   "spec": (SpectrumOptions, False, "vibest.SpectrumOptions(fwhm_cm1=16)"),
+                   "options": (ComparisonOptions, True, "vibest.ComparisonOptions(), or its fields as keywords"),
+                   "refine_calc": (CalculationOptions, True, "vibest.calculation_options('b3lyp')")}
+
+
+def check_settings_types(**values) -> None:
+    """A one-line InputError for a settings argument of the wrong type (``calc="gfn2"``), which
+    would otherwise fail deep inside with an AttributeError."""
+    for name, value in values.items():
+        kind, optional, how = _SETTINGS_TYPES[name]
+        if not (isinstance(value, kind) or (optional and value is None)):
+            raise InputError(f"{name} must be a {kind.__name__} ({how}), not {type(value).__name__}")
+
+
 def as_candidates(values, what: str = "candidates") -> list[Candidate]:
     """``values`` as a list of :class:`Candidate`: each a Candidate, a SMILES string (named by
     itself) or a (name, SMILES) pair. A single string, or anything else, is an InputError that
@@ -255,6 +271,7 @@ def rank_candidates(measured: MeasuredSpectrum | str | Path, candidates: list[Ca
     """
     measured, candidates = as_measured(measured), as_candidates(candidates)
     store = None if store is None else open_store(store)
+    check_settings_types(calc=calc, spec=spec, options=options, refine_calc=refine_calc)
     if not candidates:
         raise InputError("no candidate structures given")
     if refine and refine_calc is None:

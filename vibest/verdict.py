@@ -18,6 +18,7 @@ Nothing here computes more than predictions (stored) and comparisons.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from numbers import Integral
 from pathlib import Path
 from typing import Callable
 
@@ -97,8 +98,8 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     ``mass_evidence``: a mass spectrum, formula or mass (:class:`vibest.ms.MassEvidence`); each
     candidate is checked against it, contradicted decoys are dropped when it says so, and an
     intended structure it contradicts is not supported whatever the IR ranking."""
-    if decoys < 0:
-        raise InputError("the number of decoys cannot be negative")
+    if isinstance(decoys, bool) or not isinstance(decoys, Integral) or decoys < 0:
+        raise InputError(f"decoys must be a whole number of at least 0, not {decoys!r}")
     if not isinstance(smiles, str):
         raise InputError(f"smiles must be a SMILES string, not {type(smiles).__name__}")
     measured, candidates = as_measured(measured), as_candidates(candidates)
