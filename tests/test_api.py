@@ -157,10 +157,12 @@ def test_settings_of_the_wrong_type_are_one_line_input_errors(tmp_path):
     cases = [(dict(calc="gfn2"), "calculation_options"), (dict(spec=16), "SpectrumOptions"),
              (dict(options="x"), "ComparisonOptions"), (dict(refine=1, refine_calc="b3lyp"), "refine_calc"),
              (dict(method="gfn2"), "calc=vibest.calculation_options"), (dict(fwhm_cm1=-3.0), "positive"),
-             (dict(step_cm1=0.0), "positive")]
+             (dict(step_cm1=0.0), "positive"), (dict(fwhm_cm1="16"), "positive number")]
     for kwargs, words in cases:
         with pytest.raises(InputError, match=words):
             vibest.rank_candidates(spec, ["O"], **kwargs)
+    with pytest.raises(InputError, match="calculation_options"):  # the batch call checks the same way
+        vibest.predict_many(["O"], calc="gfn2")
     for decoys in ("3", -1, 2.5, True):
         with pytest.raises(InputError, match="decoys"):
             vibest.check_structure(spec, "O", decoys=decoys)

@@ -27,7 +27,7 @@ from scipy import optimize, signal, stats
 
 from .errors import InputError
 from .measured import MeasuredSpectrum, as_measured, preprocess
-from .pipeline import Prediction
+from .pipeline import Prediction, is_real
 from .spectrum import broaden, grid, line_shape_values
 
 SCORES = ("pearson", "spearman", "cosine", "overlap", "regional")
@@ -354,8 +354,8 @@ class ComparisonOptions:
         if self.tolerance_cm1 <= 0:
             raise InputError(f"peak-match tolerance {self.tolerance_cm1:g} cm^-1 must be positive")
         for name, value in (("band width fwhm_cm1", self.fwhm_cm1), ("grid step step_cm1", self.step_cm1)):
-            if value is not None and not (np.isfinite(value) and value > 0):
-                raise InputError(f"{name} {value:g} cm^-1 must be positive")
+            if value is not None and not (is_real(value) and value > 0):
+                raise InputError(f"{name} {value!r} cm^-1 must be a positive number")
         from .sampling import CRYSTALS
 
         if self.atr not in ("auto", "off", *CRYSTALS):

@@ -36,7 +36,7 @@ CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical
 PLOT_CAUTION = "Estimate only: confirm with reference standards and validated methods."
 
 
-def _is_real(value) -> bool:
+def is_real(value) -> bool:
     """A finite real number (not a bool, not a string)."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         return False
@@ -66,7 +66,7 @@ class SpectrumOptions:
             value = getattr(self, name)
             if value is None and name == "scale_factor":
                 continue
-            if not _is_real(value):
+            if not is_real(value):
                 raise InputError(f"{name} must be a number, not {value!r}")
         try:
             lo, hi = (float(v) for v in self.range_cm1)

@@ -269,9 +269,9 @@ def rank_candidates(measured: MeasuredSpectrum | str | Path, candidates: list[Ca
     ``refine_progress(stage, done, total, message)`` hears the stages of each refining calculation
     (minutes each at a density-functional level).
     """
+    check_settings_types(calc=calc, spec=spec, options=options, refine_calc=refine_calc)  # before any file is read
     measured, candidates = as_measured(measured), as_candidates(candidates)
     store = None if store is None else open_store(store)
-    check_settings_types(calc=calc, spec=spec, options=options, refine_calc=refine_calc)
     if not candidates:
         raise InputError("no candidate structures given")
     if refine and refine_calc is None:

@@ -15,7 +15,7 @@ from typing import Callable, Iterable
 
 from ..errors import InputError, VibestError
 from ..pipeline import CAUTION, CalculationOptions, SpectrumOptions, analyse
-from ..ranking import Candidate, as_candidates, read_candidates
+from ..ranking import Candidate, as_candidates, check_settings_types, read_candidates
 from ..store import RecordStore, open_store, structure_identity
 
 #: Statuses of a batch entry.
@@ -138,6 +138,7 @@ def predict_many(molecules: Iterable, *, store: RecordStore | str | Path | None 
     from ..calculation.hessian import default_workers
     from .pool import DaskPool, InProcessPool, LocalPool
 
+    check_settings_types(calc=calc, spec=spec)
     spec.validate()
     spec.resolve_scale(calc.engine.method)
     cands = as_candidates(molecules, "predict_many")
