@@ -46,6 +46,15 @@ def test_rank_command_table_csv_and_plots(tmp_path):
     assert sorted(p.name for p in (tmp_path / "plots").iterdir()) == ["rank1.png", "rank2.png"]
 
 
+def test_rank_table_shows_an_unnamed_candidate_once(tmp_path):
+    """An unnamed candidate's name is its SMILES: the table said "CC(C)=O  (CC(C)=O)"."""
+    m = _measured_csv(tmp_path / "m.csv")
+    res = CliRunner().invoke(main, ["rank", str(m), "CC(C)=O", "-q", "--store", str(tmp_path / "s.sqlite")])
+    assert res.exit_code == 0, res.output
+    row = next(l for l in res.output.splitlines() if l.strip().startswith("1 "))
+    assert row.count("CC(C)=O") == 1 and row.rstrip().endswith("CC(C)=O (SMILES)"), row
+
+
 def test_missing_measured_file_and_no_candidates_exit_2(tmp_path):
     res = CliRunner().invoke(main, ["rank", str(tmp_path / "none.jdx"), "CC", "-q"])
     assert res.exit_code == 2 and "no such file" in res.output
