@@ -32,7 +32,7 @@ from ase.units import Bohr
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from fit_scale_factor import PAIRED_SHUFFLES, compute_cases  # noqa: E402
+from fit_scale_factor import PAIRED_SHUFFLES, compute_cases, trial_method  # noqa: E402
 
 from vibest.analysis.anharmonic import dimensionless_force_constants, rotation_terms, vpt2  # noqa: E402
 from vibest.analysis.calibration import cross_validated_mad, fit_uniform  # noqa: E402
@@ -84,6 +84,17 @@ def corrected(case, delta_cm1):
     return dataclasses.replace(case, reference=dataclasses.replace(case.reference, fundamentals_cm1=fund))
 
 
+def unscaled_line(cases, deltas) -> str:
+    """MAD of the unscaled VPT2 fundamentals beside that of the harmonic ones with one factor
+    fitted on the same fundamentals (in sample)."""
+    w = np.concatenate([c.modes.wavenumbers_cm1[list(c.assignment.modes)] for c in cases])
+    d = np.concatenate([dc[list(c.assignment.modes)] for c, dc in zip(cases, deltas)])
+    e = np.concatenate([c.experimental_cm1 for c in cases])
+    s = w @ e / (w @ w)
+    return (f"unscaled VPT2 fundamentals: MAD {np.abs(w + d - e).mean():.1f}; harmonic with one factor fitted on "
+            f"these ({s:.4f}, in sample): MAD {np.abs(s * w - e).mean():.1f}")
+
+
 def cv_row(cases, orders) -> str:
     parts = []
     for name in (UNIFORM, REGION, PER_COORDINATE):
@@ -94,26 +105,29 @@ def cv_row(cases, orders) -> str:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--records", type=Path, required=True, help="B3LYP records (fit_scale_factor.py --paired)")
-    ap.add_argument("--anharmonic-method", default="gfn2", help="gfn1, gfn2 or b3lyp")
+    ap.add_argument("--records", type=Path, required=True, help="records of --harmonic-method (fit_scale_factor.py --paired)")
+    ap.add_argument("--harmonic-method", default="b3lyp",
+                    help="method of the records: b3lyp, or b3lyp/BASIS as in fit_scale_factor.py --paired")
+    ap.add_argument("--anharmonic-method", default="gfn2", help="gfn1, gfn2, b3lyp or b3lyp/BASIS")
     ap.add_argument("--forces", type=Path, default=None, help="pickle to keep the force constants in")
     ap.add_argument("--max-atoms", type=int, default=1000, help="compute molecules of at most this many atoms")
     ap.add_argument("--only", default=None, help="comma-separated molecule names (fundamentals.csv) to use")
     ap.add_argument("--harmonic-below", default="0,500,2500",
                     help="comma-separated thresholds (cm^-1) to try, each a row [0,500,2500]")
     args = ap.parse_args()
-    cases = compute_cases(verbose=False, cache=args.records, options=calculation_options("b3lyp", workers=None),
+    harmonic, anharmonic = trial_method(args.harmonic_method), trial_method(args.anharmonic_method)
+    cases = compute_cases(verbose=False, cache=args.records, options=calculation_options(harmonic, workers=None),
                           cached_only=True)
     if args.only:
         names = set(args.only.split(","))
         cases = [c for c in cases if c.reference.name in names]
-    forces = force_constants(cases, args.anharmonic_method, args.forces or
-                             args.records.with_name(f"forces-{args.anharmonic_method}.pkl"), args.max_atoms)
+    forces = force_constants(cases, anharmonic, args.forces or args.records.with_name(f"forces-{anharmonic}.pkl"),
+                             args.max_atoms)
     cases = sorted((c for c in cases if c.record.smiles in forces), key=lambda c: c.reference.name)
     orders = [np.random.default_rng(seed).permutation(len(cases)) for seed in range(PAIRED_SHUFFLES)]
     pairs = sum(len(c.experimental_cm1) for c in cases)
-    print(f"{len(cases)} training molecules, {pairs} fundamentals; B3LYP harmonic wavenumbers, VPT2 corrections from "
-          f"{method_named(args.anharmonic_method).name}")
+    print(f"{len(cases)} training molecules, {pairs} fundamentals; harmonic wavenumbers from "
+          f"{method_named(harmonic).name}, VPT2 corrections from {method_named(anharmonic).name}")
     print(f"4-fold cross-validated MAD (cm-1), mean [min-max] over {PAIRED_SHUFFLES} fold assignments")
     print(f"{'corrections':<28} {'uniform factor':>14}  {UNIFORM:>18}  {REGION:>18}  {PER_COORDINATE:>18}")
     print(f"{'none (harmonic)':<28} {cv_row(cases, orders)}", flush=True)
@@ -121,14 +135,8 @@ def main() -> None:
         deltas = [corrections(c, forces[c.record.smiles], below) for c in cases]
         shifted = [corrected(c, d) for c, d in zip(cases, deltas)]
         print(f"{f'VPT2, modes >= {below:.0f} cm-1':<28} {cv_row(shifted, orders)}", flush=True)
-        if method_named(args.anharmonic_method).is_dft:
-            v = np.concatenate([c.modes.wavenumbers_cm1[list(c.assignment.modes)] + d[list(c.assignment.modes)]
-                                for c, d in zip(cases, deltas)])
-            w = np.concatenate([c.modes.wavenumbers_cm1[list(c.assignment.modes)] for c in cases])
-            e = np.concatenate([c.experimental_cm1 for c in cases])
-            s = w @ e / (w @ w)
-            print(f"{'':<28} unscaled VPT2 fundamentals: MAD {np.abs(v - e).mean():.1f}; harmonic with one factor "
-                  f"fitted on these ({s:.4f}, in sample): MAD {np.abs(s * w - e).mean():.1f}")
+        if method_named(anharmonic).is_dft:
+            print(f"{'':<28} {unscaled_line(cases, deltas)}")
 
 
 if __name__ == "__main__":
