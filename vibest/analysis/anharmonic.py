@@ -101,6 +101,38 @@ def _resonant(k: float, denominator: float, factor: float) -> bool:
     return d < RESONANCE_WINDOW_CM1 and k ** 4 / (factor * max(d, 1e-6) ** 3) > MARTIN_THRESHOLD_CM1
 
 
+def _x_diagonal(i: int, w, k3, k4, resonances: list) -> float:
+    """x_ii (cm^-1), its 2w_i = w_j resonant terms left out (and listed in ``resonances``)."""
+    total = k4[i, i] / 16.0
+    for j in range(len(w)):
+        kij = k3[i, i, j]
+        terms = 2.0 / w[j] + 1.0 / (2.0 * (2 * w[i] + w[j]))
+        if _resonant(kij, 2 * w[i] - w[j], 256.0):
+            resonances.append(("2w_i=w_j", i, j, j))
+        else:
+            terms -= 1.0 / (2.0 * (2 * w[i] - w[j]))
+        total -= kij ** 2 / 16.0 * terms
+    return total
+
+
+def _x_off_diagonal(i: int, j: int, w, k3, k4, resonances: list) -> float:
+    """x_ij (cm^-1) without the Coriolis term, its w_i + w_j = w_k type resonant terms left out."""
+    total = k4[i, j] / 4.0 - np.sum(k3[i, i, :] * k3[j, j, :] / w) / 4.0
+    for k in range(len(w)):
+        kijk = k3[i, j, k]
+        if kijk == 0.0:
+            continue
+        terms = -1.0 / (w[i] + w[j] + w[k])
+        for sign_j, sign_k in ((1, -1), (-1, -1), (-1, 1)):
+            d = w[i] + sign_j * w[j] + sign_k * w[k]
+            if _resonant(kijk, d, 64.0):
+                resonances.append(("w_i+w_j=w_k", i, j, k))
+                continue
+            terms += (1.0 if sign_k < 0 else -1.0) / d
+        total += kijk ** 2 / 8.0 * terms
+    return total
+
+
 def vpt2(harmonic_cm1, cubic_cm1, quartic_cm1, rotational_constants_cm1=None, zetas=None) -> AnharmonicResult:
     """VPT2 fundamentals (see the module docstring).
 
@@ -116,36 +148,15 @@ def vpt2(harmonic_cm1, cubic_cm1, quartic_cm1, rotational_constants_cm1=None, ze
     k4 = np.asarray(quartic_cm1, dtype=float)
     m = len(w)
     x = np.zeros((m, m))
-    resonances = []
+    resonances: list = []
+    coriolis = np.zeros((m, m))
+    if rotational_constants_cm1 is not None:
+        b = np.asarray(rotational_constants_cm1, dtype=float)
+        coriolis = np.einsum("a,aij->ij", b, np.asarray(zetas, dtype=float) ** 2) * (w[:, None] / w[None, :]
+                                                                                      + w[None, :] / w[:, None])
     for i in range(m):
-        total = k4[i, i] / 16.0
-        for j in range(m):
-            kij = k3[i, i, j]
-            terms = 2.0 / w[j] + 1.0 / (2.0 * (2 * w[i] + w[j]))
-            if _resonant(kij, 2 * w[i] - w[j], 256.0):
-                resonances.append(("2w_i=w_j", i, j, j))
-            else:
-                terms -= 1.0 / (2.0 * (2 * w[i] - w[j]))
-            total -= kij ** 2 / 16.0 * terms
-        x[i, i] = total
-    for i in range(m):
+        x[i, i] = _x_diagonal(i, w, k3, k4, resonances)
         for j in range(i + 1, m):
-            total = k4[i, j] / 4.0 - np.sum(k3[i, i, :] * k3[j, j, :] / w) / 4.0
-            for k in range(m):
-                kijk = k3[i, j, k]
-                if kijk == 0.0:
-                    continue
-                terms = -1.0 / (w[i] + w[j] + w[k])
-                for sign_j, sign_k in ((1, -1), (-1, -1), (-1, 1)):
-                    d = w[i] + sign_j * w[j] + sign_k * w[k]
-                    if _resonant(kijk, d, 64.0):
-                        resonances.append(("w_i+w_j=w_k", i, j, k))
-                        continue
-                    terms += (1.0 if sign_k < 0 else -1.0) / d
-                total += kijk ** 2 / 8.0 * terms
-            if rotational_constants_cm1 is not None:
-                b = np.asarray(rotational_constants_cm1, dtype=float)
-                total += float(np.sum(b * np.asarray(zetas)[:, i, j] ** 2)) * (w[i] / w[j] + w[j] / w[i])
-            x[i, j] = x[j, i] = total
+            x[i, j] = x[j, i] = _x_off_diagonal(i, j, w, k3, k4, resonances) + coriolis[i, j]
     nu = w + 2 * np.diag(x) + 0.5 * (x.sum(axis=1) - np.diag(x))
     return AnharmonicResult(w, nu, x, tuple(resonances))
