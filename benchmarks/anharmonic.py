@@ -36,7 +36,6 @@ from fit_scale_factor import PAIRED_SHUFFLES, compute_cases, trial_method  # noq
 
 from vibest.analysis.anharmonic import dimensionless_force_constants, rotation_terms, vpt2  # noqa: E402
 from vibest.analysis.calibration import cross_validated_mad, fit_uniform  # noqa: E402
-from vibest.analysis.harmonic import _AU_TO_CM1  # noqa: E402
 from vibest.analysis.scaling import PER_COORDINATE, REGION, UNIFORM  # noqa: E402
 from vibest.calculation.anharmonic_forces import mode_force_constants  # noqa: E402
 from vibest.calculation.driver import calculation_options  # noqa: E402
@@ -66,8 +65,8 @@ def force_constants(cases, method: str, cache: Path, max_atoms: int) -> dict:
 
 def corrections(case, forces, harmonic_below_cm1: float) -> np.ndarray:
     """nu_i - w_i (cm^-1) of the case's modes; 0 for modes below ``harmonic_below_cm1``."""
-    lam = (case.modes.wavenumbers_cm1 / _AU_TO_CM1) ** 2
-    w, k3, k4 = dimensionless_force_constants(lam, forces.cubic_au, forces.quartic_au)
+    w = case.modes.wavenumbers_cm1
+    k3, k4 = dimensionless_force_constants(w, forces.cubic_au, forces.quartic_au)
     keep = w >= harmonic_below_cm1
     b, zetas = rotation_terms(case.record.positions_angstrom, case.modes.masses_amu, case.modes.modes_mass_weighted)
     result = vpt2(w[keep], k3[np.ix_(keep, keep, keep)], k4[np.ix_(keep, keep)], b, zetas[:, keep][:, :, keep])

@@ -7,7 +7,7 @@ from ase.units import Bohr
 from scipy import constants as sc
 
 from vibest.analysis.anharmonic import dimensionless_force_constants, rotation_terms, vpt2
-from vibest.analysis.harmonic import _AU_TO_CM1, harmonic_analysis
+from vibest.analysis.harmonic import eigenvalues_to_wavenumbers, harmonic_analysis
 from vibest.calculation.anharmonic_forces import mode_force_constants
 from vibest.calculation.driver import calculation_options, compute_record
 from vibest.calculation.engine import Engine, Evaluation, EngineSettings, make_engine
@@ -18,7 +18,10 @@ _EH_CM1 = sc.physical_constants["hartree-inverse meter relationship"][0] / 100.0
 
 
 class PolynomialEngine(Engine):
-    """Energy of a function of the Cartesian coordinates (Bohr): ``energy_and_gradient(x)``."""
+    """Energy of a function of the Cartesian coordinates (Bohr): ``energy_and_gradient(x)``;
+    a gradient-only engine, like the tight-binding ones."""
+
+    settings = EngineSettings()
 
     def __init__(self, energy_and_gradient):
         self.f = energy_and_gradient
@@ -46,9 +49,9 @@ def test_vpt2_is_exact_for_a_morse_oscillator():
     """For V = D (1 - exp(-a x))^2, w_e x_e = w_e^2 / (4 D) (Morse 1929; Herzberg, Spectra of
     Diatomic Molecules), and VPT2 gives it exactly. Derivatives at the minimum: 2Da^2, -6Da^3, 14Da^4."""
     depth, a, mu = 0.17, 1.0, 0.98  # Eh, 1/Bohr, amu: roughly HCl (values from memory)
-    w, k3, k4 = dimensionless_force_constants(np.array([2 * depth * a ** 2 / mu]),
-                                              np.array([[[-6 * depth * a ** 3 / mu ** 1.5]]]),
-                                              np.array([[14 * depth * a ** 4 / mu ** 2]]))
+    w = eigenvalues_to_wavenumbers([2 * depth * a ** 2 / mu])
+    k3, k4 = dimensionless_force_constants(w, np.array([[[-6 * depth * a ** 3 / mu ** 1.5]]]),
+                                           np.array([[14 * depth * a ** 4 / mu ** 2]]))
     res = vpt2(w, k3, k4)
     wexe = w[0] ** 2 / (4 * depth * _EH_CM1)
     assert abs(res.x_cm1[0, 0] + wexe) < 1e-6 * wexe
@@ -70,8 +73,9 @@ def test_finite_difference_force_constants_reproduce_the_morse_anharmonicity():
     modes = harmonic_analysis(numbers, x, h, masses_amu=masses)
     f = mode_force_constants(PolynomialEngine(_morse(depth, a, r0)), numbers, x, masses, modes.modes_mass_weighted)
     assert f.hessians == 3
-    w, k3, k4 = dimensionless_force_constants(f.eigenvalues_au, f.cubic_au, f.quartic_au)
+    w = eigenvalues_to_wavenumbers(f.eigenvalues_au)
     assert abs(w[0] - modes.wavenumbers_cm1[0]) < 0.05
+    k3, k4 = dimensionless_force_constants(w, f.cubic_au, f.quartic_au)
     res = vpt2(w, k3, k4)
     assert abs(res.x_cm1[0, 0] + w[0] ** 2 / (4 * depth * _EH_CM1)) < 0.6
 
@@ -128,8 +132,8 @@ def test_b3lyp_vpt2_corrections_of_water_match_its_measured_anharmonicity():
                          EngineSettings.for_method(METHODS["b3lyp"]))
     f = mode_force_constants(engine, record.numbers, record.positions_angstrom, modes.masses_amu,
                              modes.modes_mass_weighted)
-    lam = (modes.wavenumbers_cm1 / _AU_TO_CM1) ** 2
-    w, k3, k4 = dimensionless_force_constants(lam, f.cubic_au, f.quartic_au)
+    w = modes.wavenumbers_cm1
+    k3, k4 = dimensionless_force_constants(w, f.cubic_au, f.quartic_au)
     b, zetas = rotation_terms(record.positions_angstrom, modes.masses_amu, modes.modes_mass_weighted)
     shifts = vpt2(w, k3, k4, b, zetas).corrections_cm1
     measured = np.array([1594.75 - 1648.5, 3657.05 - 3832.2, 3755.93 - 3942.5])

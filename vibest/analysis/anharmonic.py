@@ -58,22 +58,21 @@ class AnharmonicResult:
         return self.fundamentals_cm1 - self.harmonic_cm1
 
 
-def dimensionless_force_constants(eigenvalues_au, cubic_au, quartic_au) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def dimensionless_force_constants(harmonic_cm1, cubic_au, quartic_au) -> tuple[np.ndarray, np.ndarray]:
     """Convert force constants over mass-weighted normal coordinates (Bohr amu^1/2) to cm^-1 over
     dimensionless ones.
 
     Args:
-        eigenvalues_au: mass-weighted Hessian eigenvalues lambda_i (M,), Eh/(Bohr^2 amu), positive.
+        harmonic_cm1: harmonic wavenumbers w_i (M,), cm^-1, positive (they set each coordinate's scale).
         cubic_au: phi_ijk (M, M, M), Eh/(Bohr^3 amu^3/2).
         quartic_au: semi-diagonal phi_iijj (M, M), Eh/(Bohr^4 amu^2).
-    Returns: (w_i in cm^-1, k_ijk in cm^-1, k_iijj in cm^-1).
+    Returns: (k_ijk in cm^-1, k_iijj in cm^-1).
     """
-    lam = np.asarray(eigenvalues_au, dtype=float)
-    omega = np.sqrt(lam * _HARTREE_J / (_BOHR_M ** 2 * _AMU_KG))  # rad/s
+    omega = 2 * np.pi * sc.c * 100.0 * np.asarray(harmonic_cm1, dtype=float)  # rad/s
     length = np.sqrt(sc.hbar / omega) / (_BOHR_M * np.sqrt(_AMU_KG))  # Bohr amu^1/2 per unit q
     cubic = np.asarray(cubic_au) * np.einsum("i,j,k->ijk", length, length, length) * _HARTREE_J / _CM1_J
     quartic = np.asarray(quartic_au) * np.outer(length ** 2, length ** 2) * _HARTREE_J / _CM1_J
-    return omega / (2 * np.pi * sc.c * 100.0), cubic, quartic
+    return cubic, quartic
 
 
 def coriolis_zetas(modes_mass_weighted, axes) -> np.ndarray:
