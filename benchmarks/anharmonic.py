@@ -123,6 +123,9 @@ def main() -> None:
     forces = force_constants(cases, anharmonic, args.forces or args.records.with_name(f"forces-{anharmonic}.pkl"),
                              args.max_atoms)
     cases = sorted((c for c in cases if c.record.smiles in forces), key=lambda c: c.reference.name)
+    if not cases:
+        raise SystemExit(f"no {method_named(harmonic).name} records to use in {args.records}: make them with "
+                         f"fit_scale_factor.py --paired {args.harmonic_method} --records DIR")
     orders = [np.random.default_rng(seed).permutation(len(cases)) for seed in range(PAIRED_SHUFFLES)]
     pairs = sum(len(c.experimental_cm1) for c in cases)
     print(f"{len(cases)} training molecules, {pairs} fundamentals; harmonic wavenumbers from "
