@@ -50,6 +50,9 @@ def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFER
     message) is tried again by a run that computes: a newer version may compute the molecule
     (iodomethane at B3LYP, refused until the effective core potential of 2026-12-04)."""
     records = {}
+    if cached_only and not (cache and cache.exists()):
+        sys.exit("--cached-only needs the records file of an earlier run (--records FILE)"
+                 + (f": {cache} does not exist" if cache else ""))
     if cache and cache.exists():
         records = pickle.loads(cache.read_bytes())
     cases = []
@@ -81,7 +84,7 @@ def compute_cases(verbose: bool = True, cache: Path | None = None, options=REFER
             print(f"  {ref.name:<36} {case.record.natoms:>3} atoms {time.perf_counter() - t0:6.1f} s  "
                   f"{len(a.rows)}/{len(ref.fundamentals_cm1)} assigned ({a.method})", file=sys.stderr)
         cases.append(case)
-    if cache:
+    if cache and not cached_only:  # a run that only reads never rewrites the file
         cache.write_bytes(pickle.dumps(records))
     return cases
 
@@ -209,6 +212,8 @@ def main() -> None:
     options = REFERENCE_OPTIONS if level.key == "gfn2" else calculation_options(args.method, workers=None if
                                                                                level.uses_dft else 1)
     cases = compute_cases(cache=args.records, options=options, cached_only=args.cached_only)
+    if not cases:
+        sys.exit(f"no reference molecule of {args.records} has a record at {args.method}: nothing to fit")
     train, test, models = fit_models(cases)
     n_rows = sum(len(c.reference.fundamentals_cm1) for c in cases)
     n_pairs = sum(len(c.assignment.rows) for c in cases)

@@ -436,3 +436,16 @@ def test_the_hessian_reuses_the_optimisers_last_scf(monkeypatch):
     fresh, apt, ev = make_engine(record.numbers, x, 0, 0, EngineSettings.for_method(SMALL)).hessian_and_dipole_derivatives(x)
     assert np.abs(record.hessian_hartree_bohr2 - fresh).max() < 1e-6
     assert np.abs(record.dipole_derivatives_e - apt).max() < 1e-6
+
+
+def test_a_hessian_without_dipole_derivatives_is_the_same_hessian():
+    """VPT2's displaced Hessians skip the electric-field response (benchmark cost): the Hessian is
+    unchanged and no dipole derivatives are returned, rather than stale or zero ones
+    (vibest's own consistency; the Hessian itself is checked against PySCF above)."""
+    mol = build_molecule("O")
+    x = mol.positions_angstrom / Bohr
+    engine = make_engine(mol.numbers, x, 0, 0, EngineSettings.for_method(SMALL))
+    full, apt, _ = engine.hessian_and_dipole_derivatives(x)
+    bare, none, _ = engine.hessian_and_dipole_derivatives(x, dipole_derivatives=False)
+    assert apt is not None and apt.shape == (3 * len(mol.numbers), 3) and none is None
+    assert np.abs(full - bare).max() < 1e-6

@@ -230,13 +230,6 @@ def assessment_lines(assessment) -> list[str]:
     return lines
 
 
-def _name_cell(candidate, mark: str = "") -> str:
-    """"name*  (SMILES)"; an unnamed candidate (its name is its SMILES) is shown once, as "CO* (SMILES)"."""
-    if candidate.name == candidate.smiles:
-        return f"{candidate.smiles}{mark} (SMILES)"
-    return f"{candidate.name}{mark}  ({candidate.smiles})"
-
-
 def ranking_table(ranking, assessment=None) -> str:
     lines = [f"# measured: {ranking.measured.source}  ({ranking.measured.title})"]
     for note in ranking.measured.notes:
@@ -246,7 +239,7 @@ def ranking_table(ranking, assessment=None) -> str:
     lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'shift':>6}  {'peaks':>7}  name  (SMILES)")
     for e in ranking.entries:
         if e.error:
-            lines.append(f"{'-':>4}  {'failed':>7}  {'':>7}  {'':>6}  {'':>7}  {_name_cell(e.candidate)}: {e.error}")
+            lines.append(f"{'-':>4}  {'failed':>7}  {'':>7}  {'':>6}  {'':>7}  {e.candidate.label}: {e.error}")
             continue
         c = e.comparison
         peaks = f"{sum(m.matched for m in c.matches)}/{sum(m.measured_cm1 is not None for m in c.matches)}"
@@ -254,7 +247,7 @@ def ranking_table(ranking, assessment=None) -> str:
         shift = f"{c.shift_cm1:+6.1f}" if c.settings.get("fit_shift") else f"{'-':>6}"
         mark = " *" if e.refined else ""
         note = f"  [{e.note}]" if e.note else ""
-        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {shift}  {peaks:>7}  {_name_cell(e.candidate, mark)}{note}")
+        lines.append(f"{e.rank:>4}  {e.score:7.4f}  {margin}  {shift}  {peaks:>7}  {e.candidate.marked_label(mark)}{note}")
     lines.append(f"# score: {ranking.score_name}; margin: score minus the next candidate's; shift: fitted shift of "
                  f"the predicted wavenumbers (cm^-1), '-' when not fitted; peaks: measured peaks matched / picked")
     refined = [e for e in ranking.entries if e.refined]

@@ -30,7 +30,13 @@ class Candidate:
     def label(self) -> str:
         """"name (SMILES)"; an unnamed candidate (its name is its SMILES) is "CO (SMILES)", so
         that a bare SMILES such as methanol's "CO" is not read as a name (carbon monoxide)."""
-        return f"{self.name} ({self.smiles})" if self.name != self.smiles else f"{self.smiles} (SMILES)"
+        return self.marked_label()
+
+    def marked_label(self, mark: str = "") -> str:
+        """The :attr:`label` with ``mark`` (such as the refined rows' "*") after the name."""
+        if self.name == self.smiles:
+            return f"{self.smiles}{mark} (SMILES)"
+        return f"{self.name}{mark} ({self.smiles})"
 
 
 #: What each settings argument of the ranking calls must be: (type, None allowed, how to make one).

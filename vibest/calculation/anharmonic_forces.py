@@ -42,10 +42,10 @@ class ModeForceConstants:
 
 def _projected(engine: Engine, numbers, positions_bohr, basis, charge, uhf, workers) -> np.ndarray:
     """The engine's Hessian at ``positions_bohr`` (analytic for a density-functional engine, as
-    in vibest.calculation.driver, else by finite differences of gradients), mass-weighted and
-    projected on the modes."""
+    in vibest.calculation.driver, but without the dipole derivatives, which VPT2 does not use;
+    else by finite differences of gradients), mass-weighted and projected on the modes."""
     if engine.settings.is_dft:
-        h = engine.hessian_and_dipole_derivatives(positions_bohr)[0]
+        h = engine.hessian_and_dipole_derivatives(positions_bohr, dipole_derivatives=False)[0]
     else:
         reference = engine.evaluate(positions_bohr)
         h = finite_difference_hessian(engine, numbers, positions_bohr, charge, uhf, workers=workers,

@@ -165,11 +165,14 @@ class PySCFEngine(Engine):
 
     # -- analytic second derivatives -------------------------------------------------------
     def hessian_and_dipole_derivatives(self, positions_bohr: np.ndarray, progress: StepProgress | None = None,
-                                       reference: Evaluation | None = None) -> tuple[np.ndarray, np.ndarray, Evaluation]:
+                                       reference: Evaluation | None = None, dipole_derivatives: bool = True
+                                       ) -> tuple[np.ndarray, np.ndarray | None, Evaluation]:
         """Analytic Hessian (3N, 3N) in Eh/Bohr^2, dipole derivatives (3N, 3) in e, and the
         evaluation (energy, gradient, dipole) at ``positions_bohr``. ``reference``: this engine's
         evaluation at ``positions_bohr`` (the optimiser's last); when the last SCF was at those
-        positions, that SCF and its gradient are reused instead of computed again."""
+        positions, that SCF and its gradient are reused instead of computed again.
+        ``dipole_derivatives=False`` skips the electric-field response (None is returned in their
+        place): for callers that need the Hessian only."""
         def say(step, message=""):
             if progress:
                 progress(step, message)
@@ -199,8 +202,10 @@ class PySCFEngine(Engine):
                 de2 = de2 + hobj.hess_nuc(self.mol, atoms)
                 if mf.do_disp():
                     de2 = de2 + hobj.get_dispersion()
-                say("coupled-perturbed equations (electric field)")
-                apt = field_dipole_derivatives(mf, h1ao, fx)
+                apt = None
+                if dipole_derivatives:
+                    say("coupled-perturbed equations (electric field)")
+                    apt = field_dipole_derivatives(mf, h1ao, fx)
             except Exception as exc:
                 raise CalculationError(f"{self.settings.method} Hessian failed: {exc}") from None
             n = self.mol.natm
@@ -211,8 +216,10 @@ class PySCFEngine(Engine):
         rows = self.heavy_atom_rows(positions_bohr, say)
         if rows is not None:
             idx, fd_hessian, fd_apt = rows
-            hessian, apt = _with_rows(hessian, idx, fd_hessian), apt.copy()
-            apt[idx] = fd_apt
+            hessian = _with_rows(hessian, idx, fd_hessian)
+            if apt is not None:
+                apt = apt.copy()
+                apt[idx] = fd_apt
         return hessian, apt, evaluation
 
     def _check_hessian_terms(self) -> None:
