@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import argparse
 import csv
+import itertools
 import json
 import sys
 from pathlib import Path
@@ -312,6 +313,26 @@ def calibrated_ece(p: np.ndarray, draws: int = 2000) -> tuple[float, float]:
     return float(np.median(values)), float(np.quantile(values, 0.95))
 
 
+def threshold_rule_bound(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, wrong_flagged: float = 0.8,
+                         steps: int = 41) -> tuple[float, dict]:
+    """The largest share of right first candidates that a rule "sure when every feature is at or
+    above its threshold" (and, for refined rankings, the levels agree) leaves unflagged while it
+    flags at least ``wrong_flagged`` of the wrong ones, over thresholds at ``steps`` quantiles
+    of each feature. The thresholds are chosen on the rankings they are judged on, so the figure
+    is optimistic: a bound on what score, margin and matched share can separate, not a model.
+    Returns (share, thresholds by feature)."""
+    x = np.array([[float(r[f]) for f in features] for r in rows])
+    y = np.array([bool(r["right"]) for r in rows])
+    vetoed = np.array([not r.get("agree", True) for r in rows])
+    grids = np.quantile(x, np.linspace(0, 1, steps), axis=0).T  # (features, steps)
+    best, at = 0.0, {}
+    for cut in itertools.product(*grids):
+        sure = np.all(x >= np.array(cut), axis=1) & ~vetoed
+        if (~sure[~y]).mean() >= wrong_flagged and sure[y].mean() > best:
+            best, at = float(sure[y].mean()), dict(zip(features, (float(c) for c in cut)))
+    return best, at
+
+
 def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: float = PENALTIES[0],
            nested: bool = True) -> dict:
     p, y, poor = cross_validated(rows, features, l2)
@@ -359,7 +380,11 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: floa
             w, g = sel & wrong, sel & right
             print(f"  {kind:<8} {flagged[w].sum():>3} of {w.sum():>3} wrong flagged; "
                   f"{(~flagged[g]).sum():>3} of {g.sum():>3} right with confidence >= {LOW_CONFIDENCE}")
-    return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y),
+    bound, cut = threshold_rule_bound(rows)
+    print(f"the most any rule 'sure when {', '.join(FEATURE_NAMES)} are each above a threshold' can reach, the "
+          f"thresholds chosen on these same rankings (optimistic): right sure {bound:.0%} while >= 80 % of wrong "
+          "ones are flagged (at " + ", ".join(f"{k} {v:.3f}" for k, v in cut.items()) + ")")
+    return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y), "threshold_rule_bound": bound,
             "wrong_flagged": float(flagged[wrong].mean()), "right_confident": float((~flagged[right]).mean())}
 
 

@@ -184,6 +184,28 @@ def test_a_clear_case_has_no_flags():
     assert result.flags == () and result.confidence > 0.9 and result.sure
 
 
+def test_the_threshold_rule_bound_sees_separation_and_its_absence():
+    """benchmarks/confidence.py's bound on what score, margin and matched share can separate
+    (the reason given for the missed right-first-sure target): constructed rankings. Right ones
+    above every wrong one on the score: all sure with every wrong one flagged. Right and wrong
+    with the same features, in three groups of a third each: a rule sure of any group leaves a
+    third of the wrong ones unflagged, so none flags 80 % of them and keeps a right one sure.
+    A refined ranking whose levels disagree is never sure (vibest's own rules, no source)."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import confidence as bench
+
+    def row(score, right, agree=True):
+        return {"score": score, "margin": 0.1, "matched": 0.5, "right": int(right), "agree": agree}
+
+    separable = [row(0.9 + 0.01 * k, True) for k in range(5)] + [row(0.3 + 0.01 * k, False) for k in range(5)]
+    assert bench.threshold_rule_bound(separable)[0] == 1.0
+    mixed = [row(0.5 + 0.1 * (k % 3), k % 2 == 0) for k in range(12)]
+    mixed += [row(s["score"], not s["right"]) for s in mixed]  # every feature vector both right and wrong
+    assert bench.threshold_rule_bound(mixed)[0] == 0.0
+    vetoed = [row(0.9, True, agree=False)] + separable
+    assert bench.threshold_rule_bound(vetoed)[0] == 5 / 6
+
+
 @pytest.mark.parametrize("method,name", [("gfn2", "GFN2-xTB"), ("gfn1", "GFN1-xTB"),
                                          ("gfn1-refine5-b3lyp", "B3LYP-D3(BJ)/6-31G(d)")])
 def test_calibration_refit_reproduces_the_shipped_model(method, name):

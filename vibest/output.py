@@ -236,7 +236,7 @@ def ranking_table(ranking, assessment=None) -> str:
         lines.append(f"# note: {note}")
     coverage = {n for e in ranking.entries if e.comparison for n in e.comparison.notes if "cover" in n}
     lines += [f"# note: {n}" for n in sorted(coverage)]
-    lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'shift':>6}  {'peaks':>7}  name  (SMILES)")
+    lines.append(f"{'rank':>4}  {'score':>7}  {'margin':>7}  {'shift':>6}  {'peaks':>7}  name (SMILES)")
     for e in ranking.entries:
         if e.error:
             lines.append(f"{'-':>4}  {'failed':>7}  {'':>7}  {'':>6}  {'':>7}  {e.candidate.label}: {e.error}")
