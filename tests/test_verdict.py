@@ -186,7 +186,8 @@ def test_a_clear_case_has_no_flags():
 
 def test_the_threshold_rule_bound_sees_separation_and_its_absence():
     """benchmarks/confidence.py's bound on what score, margin and matched share can separate
-    (the reason given for the missed right-first-sure target): constructed rankings. Right ones
+    and the trade-off of confidences at any threshold (the reasons given for the missed
+    right-first-sure target): constructed rankings. Right ones
     above every wrong one on the score: all sure with every wrong one flagged. Right and wrong
     with the same features, in three groups of a third each: a rule sure of any group leaves a
     third of the wrong ones unflagged, so none flags 80 % of them and keeps a right one sure.
@@ -204,6 +205,10 @@ def test_the_threshold_rule_bound_sees_separation_and_its_absence():
     assert bench.threshold_rule_bound(mixed)[0] == 0.0
     vetoed = [row(0.9, True, agree=False)] + separable
     assert bench.threshold_rule_bound(vetoed)[0] == 5 / 6
+    # the same trade-off read off confidences at any threshold
+    p, right = np.array([0.9, 0.8, 0.6, 0.5, 0.4]), np.array([True, True, False, True, False])
+    assert bench.best_threshold_share(p, right, np.zeros(5, bool)) == 2 / 3  # threshold 0.8: both wrong below
+    assert bench.best_threshold_share(p, right, np.array([True, False, False, False, False])) == 1 / 3
 
 
 @pytest.mark.parametrize("method,name", [("gfn2", "GFN2-xTB"), ("gfn1", "GFN1-xTB"),
