@@ -394,6 +394,12 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: floa
     print("how far apart right and wrong first candidates lie (right ones kept sure while >= 80 % of wrong ones "
           "are flagged):")
     print(f"  held-out confidences, at the best threshold instead of {LOW_CONFIDENCE}: {moved:.0%}")
+    # the features alone, judged on the rankings they were fitted to (only the levels-disagree flag kept)
+    disagreed = np.array([not r.get("agree", True) for r in rows])
+    coef = fit_rows(rows, FEATURE_NAMES, 0.0)
+    fitted = np.array([probability(coef, r) for r in rows])
+    print(f"  a logistic model of {', '.join(FEATURE_NAMES)}, unpenalised, judged on the rankings it was fitted to "
+          f"(optimistic), at its best threshold: {best_threshold_share(fitted, y.astype(bool), disagreed):.0%}")
     print(f"  a rule 'sure when {', '.join(FEATURE_NAMES)} are each above a threshold', thresholds chosen on these "
           f"same rankings (optimistic): {bound:.0%} (at " + ", ".join(f"{k} {v:.3f}" for k, v in cut.items()) + ")")
     return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y), "threshold_rule_bound": bound,
