@@ -189,3 +189,21 @@ def test_every_command_is_there_when_run_as_a_module():
     out = subprocess.run([sys.executable, "-m", "vibest.cli", "--help"], capture_output=True, text=True, check=True)
     for command in ("predict", "compare", "rank", "check", "batch", "difference", "components", "series", "store"):
         assert f"  {command}" in out.stdout, command
+
+
+def test_progress_in_a_log_file_says_what_each_stage_works_on(capsys):
+    """Progress written to a file (not a terminal) is a few lines: the first of each stage and
+    one every 5 s. Candidates read from the store pass in a blink, so the line naming the
+    candidate a long calculation is for would be skipped; it is printed when the stage changes
+    (found with `check --refine 5 ... 2> log`: the log named no refined candidate)."""
+    from vibest.cli import ProgressLine
+
+    progress = ProgressLine()
+    assert not progress.tty  # pytest captures stderr
+    for k, name in enumerate(["toluene", "benzene", "ethylbenzene"]):
+        progress("candidates", k, 3, f"{k}/3 {name} at B3LYP")
+    progress("optimisation", 0, 0, "E = -310.9 Eh")
+    progress("optimisation", 1, 0, "E = -311.0 Eh")  # within 5 s: skipped, and no stage follows
+    lines = [line.split("] ", 1)[1] for line in capsys.readouterr().err.splitlines()]
+    assert lines == ["candidates: 0/3 toluene at B3LYP", "candidates: 2/3 ethylbenzene at B3LYP",
+                     "optimisation step 0: E = -310.9 Eh"]

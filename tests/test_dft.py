@@ -238,6 +238,46 @@ def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_pa
     assert "refined" in path.read_text().splitlines()[0]
 
 
+def test_check_refine_recomputes_the_verdicts_best_candidates(tmp_path, monkeypatch):
+    """`check --refine K` (check_structure(refine=K)): the intended structure and its decoys are
+    ranked at the default level, the best K recomputed at the refining level (here the
+    small-basis test level) and ranked again; the group evidence comes from the intended
+    structure's refined prediction. The test level has no calibrated confidence, so the
+    assessment says why; where a refined model holds, its number carries the note that its
+    calibration had no decoy rankings (assess stubbed: which note, not the chemistry).
+    Constructed measured spectrum: methanol's own default-level curve (mechanics only)."""
+    import vibest.verdict as verdict_module
+    from vibest.confidence import Assessment
+    from vibest.measured import MeasuredSpectrum
+    from vibest.pipeline import SpectrumOptions
+    from vibest.verdict import REFINED_DECOYS_NOTE, check_structure
+
+    from .conftest import prediction_of
+
+    methanol = prediction_of("CO")
+    measured = MeasuredSpectrum(methanol.spectrum.wavenumbers_cm1, methanol.spectrum.absorbance_normalised,
+                                "absorbance")
+    spec = SpectrumOptions(scale_factor=0.97)  # no scale model is fitted for the test level
+    store = tmp_path / "store.sqlite"
+    heard: list[str] = []
+    verdict = check_structure(measured, "CO", name="methanol", decoys=2, calc=CalculationOptions(workers=1),
+                              spec=spec, store=store, refine=2, refine_calc=small_options(),
+                              refine_progress=lambda stage, done, total, message: heard.append(stage))
+    refined = [e for e in verdict.ranking.entries if e.refined]
+    assert heard and verdict.ranking.refine == 2 and len(refined) == 2
+    assert all(e.method == SMALL.name for e in refined) and [e.rank for e in refined] == [1, 2]
+    mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)
+    assert mine.refined and mine.prediction.method_name == SMALL.name  # the evidence is read from this prediction
+    assert verdict.assessment.confidence is None and verdict.assessment.note
+    monkeypatch.setattr(verdict_module, "assess", lambda *a, **k: Assessment(0.9, ()))
+    again = check_structure(measured, "CO", name="methanol", decoys=2, calc=CalculationOptions(workers=1), spec=spec,
+                            store=store, refine=2, refine_calc=small_options())  # from the store
+    assert again.assessment.note == REFINED_DECOYS_NOTE
+    plain = check_structure(measured, "CO", name="methanol", decoys=2, calc=CalculationOptions(workers=1), spec=spec,
+                            store=store)
+    assert plain.assessment.note == "" and not plain.ranking.refine
+
+
 @pytest.mark.slow
 def test_chlorine_rows_include_the_grid_response():
     """PySCF's analytic RKS Hessian leaves out the grid's motion (pyscf/pyscf #3339), which for

@@ -30,7 +30,9 @@ from .structure import DEFAULT_SEED
 
 
 class ProgressLine:
-    """Progress on stderr: one rewritten line on a terminal, a few plain lines otherwise."""
+    """Progress on stderr: one rewritten line on a terminal, a few plain lines otherwise (the
+    first of each stage, then one every 5 s; when the stage changes, the last line skipped is
+    printed first, so that what the new stage works on, such as the candidate, is said)."""
 
     def __init__(self, enabled: bool = True, prefix: str = ""):
         self.enabled = enabled
@@ -38,6 +40,7 @@ class ProgressLine:
         self.tty = sys.stderr.isatty()
         self.last_stage = None
         self.last_print = 0.0
+        self.skipped = ""
         self.t0 = time.perf_counter()
 
     def __call__(self, stage: str, done: int, total: int, message: str = "") -> None:
@@ -55,8 +58,12 @@ class ProgressLine:
         if self.tty:
             click.echo("\r" + text.ljust(100)[:120], nl=False, err=True)
         elif stage != self.last_stage or now - self.last_print > 5.0 or (stage == "hessian" and done == total):
+            if self.skipped and stage != self.last_stage:
+                click.echo(self.skipped, err=True)
             click.echo(text, err=True)
-            self.last_print = now
+            self.last_print, self.skipped = now, ""
+        else:
+            self.skipped = text
         self.last_stage = stage
 
     def finish(self) -> None:
@@ -282,6 +289,18 @@ def _mass_evidence(ms_path, ms_block, formula, nominal_mass, ms_drop):
         return None
     spectrum = load_mass_spectrum(ms_path, block=ms_block) if ms_path else None
     return MassEvidence(spectrum, formula, nominal_mass, ms_drop)
+
+
+def refine_options(f):
+    """A second look at the best candidates at a density-functional level (rank, check)."""
+    for opt in reversed([
+        click.option("--refine", type=click.IntRange(min=0), default=0, show_default=True, metavar="K",
+                     help="Recompute the best K candidates at --refine-method and rank them again."),
+        click.option("--refine-method", default="b3lyp", show_default=True, metavar="METHOD",
+                     help="Level of theory for --refine (a density-functional one, e.g. b3lyp or gfn2+b3lyp)."),
+    ]):
+        f = opt(f)
+    return f
 
 
 def report_option(f):
@@ -643,10 +662,7 @@ def compare_command(measured, smiles, y_kind, block, score_name, compare_range, 
 @report_option
 @click.option("--plot-dir", metavar="DIR", default=None, help="Write overlay plots of the best candidates here.")
 @click.option("--top", type=click.IntRange(min=1), default=3, show_default=True, help="How many overlays to plot.")
-@click.option("--refine", type=click.IntRange(min=0), default=0, show_default=True, metavar="K",
-              help="Recompute the best K candidates at --refine-method and rank them again.")
-@click.option("--refine-method", default="b3lyp", show_default=True, metavar="METHOD",
-              help="Level of theory for --refine (a density-functional one, e.g. b3lyp or gfn2+b3lyp).")
+@refine_options
 @mass_options
 @click.option("--decoys", type=click.IntRange(min=0), default=0, show_default=True, metavar="N",
               help="Also rank up to N decoys (isomers, functional-group changes) of each candidate.")
@@ -734,6 +750,7 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 @comparison_options
 @calculation_options
 @spectrum_options
+@refine_options
 @mass_options
 @click.option("--json", "json_path", metavar="FILE", help="The verdict with ranking and evidence as JSON.")
 @report_option
@@ -742,8 +759,8 @@ def rank_command(measured, candidates, candidates_file, y_kind, block, score_nam
 @click.option("-q", "--quiet", is_flag=True, help="No progress output.")
 def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block, score_name, compare_range, fit_scale,
                   fit_shift, max_shift, baseline, tolerance, phase, intensity_power, sample_values, calc_values, scale_factor,
-                  scale_model, fwhm, line_shape, ms_path, ms_block, formula, nominal_mass, ms_drop, json_path,
-                  report_path, plot_path, store_path, no_store, quiet) -> None:
+                  scale_model, fwhm, line_shape, refine, refine_method, ms_path, ms_block, formula, nominal_mass,
+                  ms_drop, json_path, report_path, plot_path, store_path, no_store, quiet) -> None:
     """Is the MEASURED sample the structure SMILES? A verdict in plain words, with its decoys
     ranked, a calibrated confidence, flags and the evidence of each functional group."""
     from . import output
@@ -759,12 +776,14 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
         spec = load_spectrum(measured, kind=y_kind, block=block)
         calc = _calc_options(**calc_values)
         sopts = _spec_options(scale_factor, scale_model, fwhm, line_shape)
+        refine_calc = _calc_options(**(calc_values | {"method": refine_method})) if refine else None
 
         def report(done, total, label):
             progress("candidates", done, total, f"{done}/{total} {label}")
 
         verdict = check_structure(spec, smiles, name=name, decoys=decoys, candidates=extra, calc=calc, spec=sopts,
-                                  store=_store(store_path, no_store), progress=report,
+                                  store=_store(store_path, no_store), progress=report, refine=refine,
+                                  refine_calc=refine_calc, refine_progress=progress,
                                   options=_comparison(score_name, compare_range, fit_scale, fit_shift, max_shift,
                                                       baseline, tolerance, phase, intensity_power,
                                                       sample_values),
@@ -777,7 +796,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
                         mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
                         title=f"{output.short(verdict.intended.label, 60)}: {verdict.conclusion} (rank {mine.rank})",
                         name=verdict.intended.name)),
-                    ("--report", report_path, lambda: _report(report_path, "verdict_report", verdict, calc))])
+                    ("--report", report_path, lambda: _report(report_path, "verdict_report", verdict,
+                                                              refine_calc if refine else calc))])
 
 
 class BatchBar:

@@ -372,8 +372,9 @@ def verdict_report(verdict) -> str:
              f"intended structure: {verdict.intended.label}",
              f"verdict: {verdict.conclusion.upper()}"]
     lines += [f"  {r}" for r in verdict.reasons]
-    if verdict.assessment.confidence is None and verdict.assessment.note:
-        lines.append(f"  (no calibrated confidence: {verdict.assessment.note})")
+    if verdict.assessment.note:
+        lines.append(f"  (no calibrated confidence: {verdict.assessment.note})" if verdict.assessment.confidence is None
+                     else f"  (note: {verdict.assessment.note})")
     lines.append("")
     n = len(verdict.decoys)
     lines.append(f"ranking ({n} decoy{'' if n == 1 else 's'}: isomers and functional-group changes of the intended "

@@ -37,6 +37,10 @@ from .structure import canonical_smiles
 
 CONSISTENT, NOT_SUPPORTED, INCONCLUSIVE = "consistent", "not supported", "inconclusive"
 DEFAULT_DECOYS = 8
+#: Said beside a refined verdict's confidence: the refined model's calibration rankings had no
+#: decoys (their density-functional records would take hours; benchmarks/confidence.py).
+REFINED_DECOYS_NOTE = ("the refined level's confidence was calibrated on rankings of the benchmark's own "
+                       "molecules, none with generated decoys: read it as approximate here")
 
 
 @dataclass(frozen=True)
@@ -88,6 +92,7 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
                     store: RecordStore | str | Path | None = None,
                     progress: Callable[[int, int, str], None] | None = None,
                     options: ComparisonOptions | None = None, mass_evidence: MassEvidence | None = None,
+                    refine: int = 0, refine_calc: CalculationOptions | None = None, refine_progress=None,
                     **changes) -> Verdict:
     """Judge whether ``measured`` is the structure ``smiles`` (see the module docstring).
 
@@ -97,7 +102,10 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     say how each is compared (and the confidence is given only for the settings it was calibrated for).
     ``mass_evidence``: a mass spectrum, formula or mass (:class:`vibest.ms.MassEvidence`); each
     candidate is checked against it, contradicted decoys are dropped when it says so, and an
-    intended structure it contradicts is not supported whatever the IR ranking."""
+    intended structure it contradicts is not supported whatever the IR ranking.
+    ``refine`` K > 0: the best K are recomputed at ``refine_calc`` (a density-functional level)
+    and ranked again, as :func:`vibest.ranking.rank_candidates` does; the confidence, flags and
+    group evidence then come from the refined predictions."""
     if isinstance(decoys, bool) or not isinstance(decoys, Integral) or decoys < 0:
         raise InputError(f"decoys must be a whole number of at least 0, not {decoys!r}")
     if not isinstance(smiles, str):
@@ -119,11 +127,13 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     checks, dropped = mass_evidence.screen(pool, keep=intended.smiles) if mass_evidence else ([], [])
     pool = [c for c in pool if c.smiles not in {d.smiles for d in dropped}]
     ranking = rank_candidates(measured, pool, calc=calc, spec=spec, store=store, progress=progress, options=options,
-                              **changes)
+                              refine=refine, refine_calc=refine_calc, refine_progress=refine_progress, **changes)
     entry = next(e for e in ranking.entries if e.candidate == intended)
     if entry.comparison is None:
         raise InputError(f"the intended structure could not be predicted: {entry.error}")
-    assessment = assess(ranking, calc.method_name, spec.fwhm_cm1)
+    assessment = assess(ranking, (refine_calc if refine else calc).method_name, spec.fwhm_cm1)
+    if ranking.refine and assessment.confidence is not None:
+        assessment = replace(assessment, note=REFINED_DECOYS_NOTE)
     if len(pool) == 1:  # no confidence, but the flags of a lone candidate's fit still hold
         assessment = replace(assessment, note="no decoy or other candidate to rank against")
     evidence = tuple(group_evidence(entry.prediction, entry.comparison))
