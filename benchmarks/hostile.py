@@ -127,6 +127,9 @@ def cases(f: dict[str, Path], tmp: Path) -> list[tuple[str, list[str], str]]:
     out.append(("check decoys -1", ["check", str(f["good.csv"]), "CC=O", "--decoys", "-1"], "refuse"))
     out.append(("check bad SMILES", ["check", str(f["good.csv"]), "C1CC"], "refuse"))
     out.append(("check ok", ["check", str(f["good.csv"]), "CC=O", "--decoys", "2"], "ok"))
+    out.append(("check --refine -1", ["check", str(f["good.csv"]), "CC=O", "--refine", "-1"], "refuse"))
+    out.append(("check --refine-method unknown", ["check", str(f["good.csv"]), "CC=O", "--refine", "2",
+                                                 "--refine-method", "nonsense"], "refuse"))
     good = str(f["good.csv"])
     for name in ("zeros.csv", "flat.csv", "pipe.csv", "binary.jdx"):
         out.append((f"difference {name}", ["difference", good, str(f[name])], "refuse"))
@@ -199,6 +202,9 @@ API_CASES = [
     ("load_spectrum(kind=x)", "vibest.load_spectrum(JUNK, kind='x')"),
     ("compare(None, None)", "vibest.compare(vibest.predict('O'), vibest.load_spectrum('/nonexistent.csv'))"),
     ("rank_candidates([])", "vibest.rank_candidates(None, [])"),
+    ("check_structure(refine, no level)", "vibest.check_structure(JUNK, 'CCO', refine=2)"),
+    ("check_structure(refine_calc=str)", "vibest.check_structure(JUNK, 'CCO', refine=2, refine_calc='b3lyp')"),
+    ("rank_candidates(refine='2')", "vibest.rank_candidates(JUNK, ['CCO'], refine='2')"),
     ("HessianRecord.load(junk)", "vibest.HessianRecord.load(JUNK)"),
     ("HessianRecord.load(binary)", "vibest.HessianRecord.load(sys.executable)"),
     ("RecordStore(dir)", "vibest.RecordStore('/').count()"),

@@ -166,3 +166,11 @@ def test_settings_of_the_wrong_type_are_one_line_input_errors(tmp_path):
     for decoys in ("3", -1, 2.5, True):
         with pytest.raises(InputError, match="decoys"):
             vibest.check_structure(spec, "O", decoys=decoys)
+    # refining: a whole K and a level to refine with, checked by both calls before any file is read
+    for kwargs, words in [(dict(refine="2"), "whole number"), (dict(refine=True), "whole number"),
+                          (dict(refine=2), "a level of theory to refine with"), (dict(refine=-1), "at least 0"),
+                          (dict(refine=2, refine_calc="b3lyp"), "refine_calc must be")]:
+        for call in (lambda: vibest.rank_candidates("/nonexistent.csv", ["O"], **kwargs),
+                     lambda: vibest.check_structure("/nonexistent.csv", "O", **kwargs)):
+            with pytest.raises(InputError, match=words):
+                call()

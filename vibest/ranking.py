@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import dataclasses
 from dataclasses import dataclass
+from numbers import Integral
 from pathlib import Path
 from typing import Callable
 
@@ -53,6 +54,17 @@ def check_settings_types(**values) -> None:
         kind, optional, how = _SETTINGS_TYPES[name]
         if not (isinstance(value, kind) or (optional and value is None)):
             raise InputError(f"{name} must be a {kind.__name__} ({how}), not {type(value).__name__}")
+
+
+def check_ranking_settings(calc, spec, options, refine, refine_calc) -> None:
+    """The settings of a ranking (:func:`rank_candidates`, vibest.verdict.check_structure) checked
+    before any file is read or structure made: their types, and a level to refine with when
+    ``refine`` asks for one."""
+    check_settings_types(calc=calc, spec=spec, options=options, refine_calc=refine_calc)
+    if isinstance(refine, bool) or not isinstance(refine, Integral) or refine < 0:
+        raise InputError(f"refine must be a whole number of at least 0, not {refine!r}")
+    if refine and refine_calc is None:
+        raise InputError("refining needs a level of theory to refine with (refine_calc=vibest.calculation_options('b3lyp'))")
 
 
 def as_candidates(values, what: str = "candidates") -> list[Candidate]:
@@ -275,13 +287,11 @@ def rank_candidates(measured: MeasuredSpectrum | str | Path, candidates: list[Ca
     ``refine_progress(stage, done, total, message)`` hears the stages of each refining calculation
     (minutes each at a density-functional level).
     """
-    check_settings_types(calc=calc, spec=spec, options=options, refine_calc=refine_calc)  # before any file is read
+    check_ranking_settings(calc, spec, options, refine, refine_calc)  # before any file is read
     measured, candidates = as_measured(measured), as_candidates(candidates)
     store = None if store is None else open_store(store)
     if not candidates:
         raise InputError("no candidate structures given")
-    if refine and refine_calc is None:
-        raise InputError("refining needs a level of theory to refine with (e.g. --refine-method b3lyp)")
     opts = comparison_options(options, **changes)
     scored, failed = [], []
     for k, cand in enumerate(candidates):

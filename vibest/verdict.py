@@ -31,7 +31,7 @@ from .evidence import GroupEvidence, group_evidence
 from .measured import MeasuredSpectrum, as_measured
 from .ms import CONTRADICTED, MassEvidence, MsCheck
 from .pipeline import CAUTION, SpectrumOptions
-from .ranking import Candidate, Ranking, as_candidates, rank_candidates
+from .ranking import Candidate, Ranking, as_candidates, check_ranking_settings, rank_candidates
 from .store import RecordStore
 from .structure import canonical_smiles
 
@@ -106,6 +106,7 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     ``refine`` K > 0: the best K are recomputed at ``refine_calc`` (a density-functional level)
     and ranked again, as :func:`vibest.ranking.rank_candidates` does; the confidence, flags and
     group evidence then come from the refined predictions."""
+    check_ranking_settings(calc, spec, options, refine, refine_calc)  # before any file is read
     if isinstance(decoys, bool) or not isinstance(decoys, Integral) or decoys < 0:
         raise InputError(f"decoys must be a whole number of at least 0, not {decoys!r}")
     if not isinstance(smiles, str):
