@@ -132,3 +132,16 @@ def test_reaction_reports_render(tmp_path):
         assert 'data-errors=""' in body and 'data-plots="0"' not in body, (table, body)
         got = len(re.findall(r"<tr>", re.search(rf'<table id="{table}">(.*?)</table>', dom, re.S).group(1))) - 1
         assert got == rows, table
+
+
+def test_a_note_beside_a_given_confidence_is_not_called_the_reason_for_none():
+    """The report's assessment block: a note beside a confidence that is given (the refined
+    verdict's calibration note) is labelled as a note, and only a missing confidence gets
+    "why no confidence" (vibest's own wording, no source)."""
+    from vibest.confidence import Assessment
+    from vibest.report import _assessment
+
+    given = _assessment(Assessment(0.9, (), "calibrated without decoy rankings"))
+    assert "note on the confidence" in given and "why no confidence" not in given and "0.90" in given
+    withheld = _assessment(Assessment(None, (), "gas-phase spectra only"))
+    assert "why no confidence" in withheld and "not given" in withheld

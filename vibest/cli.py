@@ -794,7 +794,8 @@ def check_command(measured, smiles, name, decoys, candidates_file, y_kind, block
         _write_all([("--json", json_path, lambda: atomic_write_text(json_path, json.dumps(verdict.to_dict(), indent=1))),
                     ("--plot", plot_path, lambda: output.plot_overlay(
                         mine.comparison, plot_path, measured_label=f"measured {Path(measured).name}",
-                        title=f"{output.short(verdict.intended.label, 60)}: {verdict.conclusion} (rank {mine.rank})",
+                        title=f"{output.short(verdict.intended.label, 60)}: {verdict.conclusion} (rank {mine.rank}"
+                              + (f", {mine.method})" if refine else ")"),
                         name=verdict.intended.name)),
                     ("--report", report_path, lambda: _report(report_path, "verdict_report", verdict,
                                                               refine_calc if refine else calc))])

@@ -300,7 +300,8 @@ def _assessment(assessment) -> str:
         return ""
     conf = "not given" if assessment.confidence is None else f"{assessment.confidence:.2f}"
     items = "".join(f"<li><b>{_e(f.kind)}</b>: {_e(f.message)}</li>" for f in assessment.flags)
-    return (_meta([("confidence that the first is right", conf), ("why no confidence", assessment.note)])
+    why = "why no confidence" if assessment.confidence is None else "note on the confidence"
+    return (_meta([("confidence that the first is right", conf), (why, assessment.note)])
             + (f"<ul>{items}</ul>" if items else ""))
 
 
