@@ -238,19 +238,19 @@ def test_rank_refine_recomputes_the_best_candidates_at_the_refining_level(tmp_pa
     assert "refined" in path.read_text().splitlines()[0]
 
 
-def test_check_refine_recomputes_the_verdicts_best_candidates(tmp_path, monkeypatch):
+def test_check_refine_recomputes_the_verdicts_best_candidates(tmp_path):
     """`check --refine K` (check_structure(refine=K)): the intended structure and its decoys are
     ranked at the default level, the best K recomputed at the refining level (here the
     small-basis test level) and ranked again; the group evidence comes from the intended
     structure's refined prediction. The test level has no calibrated confidence, so the
-    assessment says why; where a refined model holds, its number carries the note that its
-    calibration had no decoy rankings (assess stubbed: which note, not the chemistry).
+    assessment says why; where a refined model holds (a model of the test's own here: which
+    note, not the chemistry), its number carries the note that its calibration had no decoy
+    rankings, and only when decoys are ranked.
     Constructed measured spectrum: methanol's own default-level curve (mechanics only)."""
-    import vibest.verdict as verdict_module
-    from vibest.confidence import Assessment
     from vibest.measured import MeasuredSpectrum
     from vibest.pipeline import SpectrumOptions
-    from vibest.verdict import REFINED_DECOYS_NOTE, check_structure
+    from vibest.confidence import REFINED_DECOYS_NOTE
+    from vibest.verdict import check_structure
 
     from .conftest import prediction_of
 
@@ -269,13 +269,18 @@ def test_check_refine_recomputes_the_verdicts_best_candidates(tmp_path, monkeypa
     mine = next(e for e in verdict.ranking.entries if e.candidate == verdict.intended)
     assert mine.refined and mine.prediction.method_name == SMALL.name  # the evidence is read from this prediction
     assert verdict.assessment.confidence is None and verdict.assessment.note
-    monkeypatch.setattr(verdict_module, "assess", lambda *a, **k: Assessment(0.9, ()))
-    again = check_structure(measured, "CO", name="methanol", decoys=2, calc=CalculationOptions(workers=1), spec=spec,
-                            store=store, refine=2, refine_calc=small_options())  # from the store
-    assert again.assessment.note == REFINED_DECOYS_NOTE
-    plain = check_structure(measured, "CO", name="methanol", decoys=2, calc=CalculationOptions(workers=1), spec=spec,
-                            store=store)
-    assert plain.assessment.note == "" and not plain.ranking.refine
+    decoys = [e.candidate for e in verdict.ranking.entries if e.candidate != verdict.intended]
+    assert decoys and all(c.decoy_of == "CO" for c in decoys)
+    # a model that holds for any ranking refined with K = 2 (the shipped refined one holds only
+    # for K = 5 at B3LYP/6-31G(d))
+    from vibest.confidence import ConfidenceModel, assess
+
+    model = ConfidenceModel(0.0, 1.0, 1.0, 0.0, {"refine": 2}, poor_fit_score=0.0, cross_validated_ece=0.0)
+    with_note = assess(verdict.ranking, model=model)
+    assert with_note.confidence is not None and with_note.note == REFINED_DECOYS_NOTE
+    no_decoys = dataclasses.replace(verdict.ranking, entries=tuple(
+        dataclasses.replace(e, candidate=dataclasses.replace(e.candidate, decoy_of="")) for e in verdict.ranking.entries))
+    assert assess(no_decoys, model=model).confidence is not None and assess(no_decoys, model=model).note == ""
 
 
 @pytest.mark.slow

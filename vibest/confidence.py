@@ -44,6 +44,10 @@ LOW_CONFIDENCE = 0.7
 TIE_MARGIN = 1e-3
 #: A fitted shift within this of its bound (cm^-1) counts as at the bound.
 BOUND_SLACK_CM1 = 0.5
+#: Said beside a refined ranking's confidence when generated decoys are ranked: the refined
+#: model's calibration rankings had none (their density-functional records would take hours).
+REFINED_DECOYS_NOTE = ("the refined level's confidence was calibrated on rankings of the benchmark's own "
+                       "molecules, none with generated decoys: read it as approximate here")
 
 SHIFT_AT_BOUND = "shift at bound"
 LEVELS_DISAGREE = "levels disagree"
@@ -316,6 +320,8 @@ def assess(ranking, method_name: str | None = None, fwhm_cm1: float | None = Non
                                         "explains this spectrum well"))
         if len(scored) > 1 and not (first.refined ^ scored[1].refined):
             confidence = model.probability(first.score, first.score - scored[1].score, matched_share(first.comparison))
+            if refine and any(e.candidate.decoy_of for e in scored):
+                note = REFINED_DECOYS_NOTE
         elif len(scored) == 1:
             note = "one candidate only: nothing to be sure against"
         else:

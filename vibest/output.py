@@ -223,7 +223,8 @@ def assessment_lines(assessment) -> list[str]:
         return []
     if assessment.confidence is not None:
         lines = [f"confidence that the first candidate is right: {assessment.confidence:.2f}"
-                 + ("" if assessment.confidence >= 0.7 else " (low)")]
+                 + ("" if assessment.confidence >= 0.7 else " (low)")
+                 + (f" (note: {assessment.note})" if assessment.note else "")]
     else:
         lines = [f"confidence: not given ({assessment.note})"]
     lines += [f"flag ({f.kind}): {f.message}" for f in assessment.flags]

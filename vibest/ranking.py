@@ -21,11 +21,13 @@ from .structure import build_molecule
 @dataclass(frozen=True)
 class Candidate:
     """A candidate structure: display name and SMILES; ``problem`` says why a row of a
-    candidates file could not be read (the candidate then fails alone, with that reason)."""
+    candidates file could not be read (the candidate then fails alone, with that reason);
+    ``decoy_of`` is the SMILES of the structure a generated decoy was made from (vibest.decoys)."""
 
     name: str
     smiles: str
     problem: str = ""
+    decoy_of: str = ""
 
     @property
     def label(self) -> str:
@@ -229,7 +231,7 @@ def with_decoys(candidates: list[Candidate], per_candidate: int) -> list[Candida
         for d in make_decoys(c.smiles, per_candidate):
             if d.smiles not in seen:
                 seen.add(d.smiles)
-                out.append(Candidate(f"{d.name} of {c.name}", d.smiles))
+                out.append(Candidate(f"{d.name} of {c.name}", d.smiles, decoy_of=c.smiles))
     return out
 
 

@@ -37,10 +37,6 @@ from .structure import canonical_smiles
 
 CONSISTENT, NOT_SUPPORTED, INCONCLUSIVE = "consistent", "not supported", "inconclusive"
 DEFAULT_DECOYS = 8
-#: Said beside a refined verdict's confidence: the refined model's calibration rankings had no
-#: decoys (their density-functional records would take hours; benchmarks/confidence.py).
-REFINED_DECOYS_NOTE = ("the refined level's confidence was calibrated on rankings of the benchmark's own "
-                       "molecules, none with generated decoys: read it as approximate here")
 
 
 @dataclass(frozen=True)
@@ -118,7 +114,7 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     seen = {own}
     pool = [intended]
     for d in made:
-        pool.append(Candidate(d.name, d.smiles))
+        pool.append(Candidate(d.name, d.smiles, decoy_of=smiles))
         seen.add(d.smiles)
     for c in candidates:
         key = canonical_smiles(c.smiles)
@@ -133,8 +129,6 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     if entry.comparison is None:
         raise InputError(f"the intended structure could not be predicted: {entry.error}")
     assessment = assess(ranking, (refine_calc if refine else calc).method_name, spec.fwhm_cm1)
-    if ranking.refine and assessment.confidence is not None:
-        assessment = replace(assessment, note=REFINED_DECOYS_NOTE)
     if len(pool) == 1:  # no confidence, but the flags of a lone candidate's fit still hold
         assessment = replace(assessment, note="no decoy or other candidate to rank against")
     evidence = tuple(group_evidence(entry.prediction, entry.comparison))
