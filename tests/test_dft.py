@@ -271,6 +271,8 @@ def test_check_refine_recomputes_the_verdicts_best_candidates(tmp_path):
     assert verdict.assessment.confidence is None and verdict.assessment.note
     decoys = [e.candidate for e in verdict.ranking.entries if e.candidate != verdict.intended]
     assert decoys and all(c.decoy_of == "CO" for c in decoys)
+    rows = verdict.to_dict()["ranking"]["candidates"]  # and the JSON says which rows are decoys
+    assert sorted(r["decoy_of"] for r in rows) == [""] + ["CO"] * len(decoys)
     # a model that holds for any ranking refined with K = 2 (the shipped refined one holds only
     # for K = 5 at B3LYP/6-31G(d))
     from vibest.confidence import ConfidenceModel, assess

@@ -114,7 +114,8 @@ class RankedCandidate:
     screening_rank: int | None = None
 
     def to_dict(self) -> dict:
-        d = {"rank": self.rank, "name": self.candidate.name, "smiles": self.candidate.smiles, "score": self.score,
+        d = {"rank": self.rank, "name": self.candidate.name, "smiles": self.candidate.smiles,
+             "decoy_of": self.candidate.decoy_of, "score": self.score,
              "margin_to_next": self.margin_to_next, "error": self.error, "from_store": self.from_store,
              "method": self.method, "refined": self.refined, "screening_rank": self.screening_rank, "note": self.note}
         if self.comparison is not None:
