@@ -363,14 +363,14 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: floa
         sel = (p >= lo) & ((p < hi) | (hi == 1.0))
         if sel.any():
             print(f"  {lo:.1f}-{hi:.1f}      {sel.sum():>8} {y[sel].mean():7.0%} {p[sel].mean():7.2f}")
-    flagged, vetoed = (p < LOW_CONFIDENCE) | poor, poor.copy()  # vetoed: flagged whatever the confidence
-    if "agree" in rows[0]:  # refined rankings: the levels-disagree flag
-        disagree = np.array([not r["agree"] for r in rows])
+    disagree = np.array([not r.get("agree", True) for r in rows])  # refined rankings: the levels-disagree flag
+    vetoed = poor | disagree  # flagged whatever the confidence
+    flagged = (p < LOW_CONFIDENCE) | vetoed
+    if "agree" in rows[0]:
         for kind in ("all", "isomers", "without"):
             sel = np.array([r["ranking"] == kind for r in rows])
             print(f"  {kind:<8} levels agree: right first {y[sel & ~disagree].sum()} of {(sel & ~disagree).sum()}; "
                   f"disagree: {y[sel & disagree].sum()} of {(sel & disagree).sum()}")
-        flagged, vetoed = flagged | disagree, vetoed | disagree
     wrong, right = y == 0, y == 1
     print(f"\nexpected calibration error (10 bins, held out): {ece:.3f}   (target <= 0.10)")
     print(f"  a perfectly calibrated model with these confidences would show {noise_median:.3f} (median), "
@@ -395,11 +395,10 @@ def report(rows: list[dict], features: tuple[str, ...] = FEATURE_NAMES, l2: floa
           "are flagged):")
     print(f"  held-out confidences, at the best threshold instead of {LOW_CONFIDENCE}: {moved:.0%}")
     # the features alone, judged on the rankings they were fitted to (only the levels-disagree flag kept)
-    disagreed = np.array([not r.get("agree", True) for r in rows])
     coef = fit_rows(rows, FEATURE_NAMES, 0.0)
     fitted = np.array([probability(coef, r) for r in rows])
     print(f"  a logistic model of {', '.join(FEATURE_NAMES)}, unpenalised, judged on the rankings it was fitted to "
-          f"(optimistic), at its best threshold: {best_threshold_share(fitted, y.astype(bool), disagreed):.0%}")
+          f"(optimistic), at its best threshold: {best_threshold_share(fitted, y.astype(bool), disagree):.0%}")
     print(f"  a rule 'sure when {', '.join(FEATURE_NAMES)} are each above a threshold', thresholds chosen on these "
           f"same rankings (optimistic): {bound:.0%} (at " + ", ".join(f"{k} {v:.3f}" for k, v in cut.items()) + ")")
     return {"ece": ece, "nested_ece": nested_ece, "log_loss": log_loss(p, y), "threshold_rule_bound": bound,

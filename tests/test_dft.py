@@ -282,7 +282,8 @@ def test_check_refine_recomputes_the_verdicts_best_candidates(tmp_path):
     assert with_note.confidence is not None and with_note.note == REFINED_DECOYS_NOTE
     no_decoys = dataclasses.replace(verdict.ranking, entries=tuple(
         dataclasses.replace(e, candidate=dataclasses.replace(e.candidate, decoy_of="")) for e in verdict.ranking.entries))
-    assert assess(no_decoys, model=model).confidence is not None and assess(no_decoys, model=model).note == ""
+    without_note = assess(no_decoys, model=model)
+    assert without_note.confidence is not None and without_note.note == ""
 
 
 @pytest.mark.slow

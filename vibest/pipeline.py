@@ -11,6 +11,7 @@ import dataclasses
 import platform
 import time
 from dataclasses import dataclass
+from numbers import Integral
 
 import numpy as np
 
@@ -34,6 +35,11 @@ CAUTION = ("Predicted spectra are estimates from an approximate quantum-chemical
            "identification with reference standards and a validated method.")
 #: The caution's short form, printed at the foot of every plot.
 PLOT_CAUTION = "Estimate only: confirm with reference standards and validated methods."
+
+
+def is_count(value) -> bool:
+    """A whole number of at least 0 (any integer type, numpy's too; not a bool)."""
+    return not isinstance(value, bool) and isinstance(value, Integral) and value >= 0
 
 
 def is_real(value) -> bool:

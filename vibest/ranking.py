@@ -5,7 +5,6 @@ from __future__ import annotations
 import csv
 import dataclasses
 from dataclasses import dataclass
-from numbers import Integral
 from pathlib import Path
 from typing import Callable
 
@@ -13,7 +12,8 @@ from .comparison import SCORES, Comparison, ComparisonOptions, compare, comparis
 from .errors import InputError, VibestError
 from .hydrogen_bonding import with_hydrogen_bonding
 from .measured import MeasuredSpectrum, as_measured
-from .pipeline import CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record
+from .pipeline import (CAUTION, CalculationOptions, Prediction, SpectrumOptions, analyse, check_cost, compute_record,
+                       is_count)
 from .store import RecordStore, open_store
 from .structure import build_molecule
 
@@ -63,7 +63,7 @@ def check_ranking_settings(calc, spec, options, refine, refine_calc) -> None:
     before any file is read or structure made: their types, and a level to refine with when
     ``refine`` asks for one."""
     check_settings_types(calc=calc, spec=spec, options=options, refine_calc=refine_calc)
-    if isinstance(refine, bool) or not isinstance(refine, Integral) or refine < 0:
+    if not is_count(refine):
         raise InputError(f"refine must be a whole number of at least 0, not {refine!r}")
     if refine and refine_calc is None:
         raise InputError("refining needs a level of theory to refine with (refine_calc=vibest.calculation_options('b3lyp'))")

@@ -18,7 +18,6 @@ Nothing here computes more than predictions (stored) and comparisons.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from numbers import Integral
 from pathlib import Path
 from typing import Callable
 
@@ -30,7 +29,7 @@ from .errors import InputError
 from .evidence import GroupEvidence, group_evidence
 from .measured import MeasuredSpectrum, as_measured
 from .ms import CONTRADICTED, MassEvidence, MsCheck
-from .pipeline import CAUTION, SpectrumOptions
+from .pipeline import CAUTION, SpectrumOptions, is_count
 from .ranking import Candidate, Ranking, as_candidates, check_ranking_settings, rank_candidates
 from .store import RecordStore
 from .structure import canonical_smiles
@@ -103,7 +102,7 @@ def check_structure(measured: MeasuredSpectrum | str, smiles: str, *, name: str 
     and ranked again, as :func:`vibest.ranking.rank_candidates` does; the confidence, flags and
     group evidence then come from the refined predictions."""
     check_ranking_settings(calc, spec, options, refine, refine_calc)  # before any file is read
-    if isinstance(decoys, bool) or not isinstance(decoys, Integral) or decoys < 0:
+    if not is_count(decoys):
         raise InputError(f"decoys must be a whole number of at least 0, not {decoys!r}")
     if not isinstance(smiles, str):
         raise InputError(f"smiles must be a SMILES string, not {type(smiles).__name__}")
